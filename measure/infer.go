@@ -1,0 +1,415 @@
+package measure
+
+import (
+	"errors"
+	"fmt"
+	"sort"
+	"strings"
+
+	"github.com/loadline/loadline/model"
+)
+
+// InferOptions steers shape inference.
+type InferOptions struct {
+	// Dims gives values for symbolic dimensions of the graph inputs, by name
+	// ("batch": 1). Unbound symbols stay symbols.
+	Dims map[string]int64
+	// IgnoreDeclared makes inference ignore the value_info and output types
+	// the file declares, so that every shape is derived (used when scoring
+	// inference against ground truth).
+	IgnoreDeclared bool
+}
+
+// Unresolved is a node whose output shapes could not be inferred.
+type Unresolved struct {
+	Node   string `json:"node"`
+	Op     string `json:"op"`
+	Reason string `json:"reason"`
+}
+
+// Inference is the result of shape inference on a model's main graph.
+type Inference struct {
+	Model *model.Model
+	// Values maps each value name of the main graph to what is known of it.
+	Values map[string]*Value
+	// Inputs and Outputs are the main graph's runtime inputs (initializers
+	// excluded) and outputs, in file order.
+	Inputs, Outputs []NamedValue
+	// Unresolved lists nodes, main graph and subgraphs, whose outputs stay
+	// unknown, in the order they were met.
+	Unresolved []Unresolved
+	// Subgraphs maps a control-flow node's name to what inference learned of
+	// each of its subgraphs' values, for cost counting of their bodies.
+	Subgraphs map[*model.Graph]map[string]*Value
+}
+
+// NamedValue is a graph input or output with what is known of it.
+type NamedValue struct {
+	Name  string
+	Value *Value
+}
+
+// Limits that keep inference bounded on hostile files.
+const (
+	maxGraphDepth = 64      // nesting of subgraphs
+	maxEvalSteps  = 2000000 // node evaluations, including unrolled constant loops
+)
+
+// errDepth is returned when subgraphs nest deeper than maxGraphDepth.
+var errDepth = errors.New("subgraphs nest too deep")
+
+type engine struct {
+	m          *model.Model
+	opts       InferOptions
+	unresolved []Unresolved
+	subgraphs  map[*model.Graph]map[string]*Value
+	steps      int
+	depth      int
+	quiet      int // >0 while evaluating speculatively (loop unrolling)
+}
+
+type scope struct {
+	parent *scope
+	vals   map[string]*Value
+}
+
+func (s *scope) lookup(name string) *Value {
+	for ; s != nil; s = s.parent {
+		if v, ok := s.vals[name]; ok {
+			return v
+		}
+	}
+	return nil
+}
+
+// Infer infers the type, shape and, where small and static, the contents of
+// every value of the model's main graph and of its subgraphs.
+func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
+	if m == nil || m.Graph == nil {
+		return nil, errors.New("model has no graph")
+	}
+	e := &engine{m: m, opts: opts, subgraphs: map[*model.Graph]map[string]*Value{}}
+	g := m.Graph
+	sc := &scope{vals: map[string]*Value{}}
+	res := &Inference{Model: m, Subgraphs: e.subgraphs}
+
+	for _, t := range g.Initializers {
+		sc.vals[t.Name] = tensorValue(t)
+	}
+	for _, sp := range g.Sparse {
+		if sp.Values != nil {
+			sc.vals[sp.Values.Name] = &Value{Type: model.TensorType(sp.Values.DType, model.KnownShape(sp.Dims...)), Weight: true}
+		}
+	}
+	for _, in := range g.Inputs {
+		if _, isInit := sc.vals[in.Name]; isInit {
+			continue // IR < 4 lists initializers among the inputs too
+		}
+		v := &Value{Type: bindDims(in.Type, opts.Dims)}
+		sc.vals[in.Name] = v
+		res.Inputs = append(res.Inputs, NamedValue{in.Name, v})
+	}
+	if err := e.inferNodes(g, sc, "graph"); err != nil {
+		return nil, err
+	}
+	e.applyDeclared(g, sc, true)
+	res.Values = sc.vals
+	for _, out := range g.Outputs {
+		v := sc.lookup(out.Name)
+		if v == nil {
+			return nil, fmt.Errorf("graph output %q is produced by no node, input or initializer", out.Name)
+		}
+		res.Outputs = append(res.Outputs, NamedValue{out.Name, v})
+	}
+	res.Unresolved = e.unresolved
+	return res, nil
+}
+
+// bindDims replaces the symbols named in dims by their values.
+func bindDims(t model.Type, dims map[string]int64) model.Type {
+	if len(dims) == 0 || !t.RankKnown {
+		return t
+	}
+	t.Shape = t.Shape.Clone()
+	for i, d := range t.Shape {
+		if v, ok := dims[d.Symbol]; ok && !d.IsKnown() {
+			t.Shape[i] = model.Known(v)
+		}
+	}
+	if t.Elem != nil {
+		el := bindDims(*t.Elem, dims)
+		t.Elem = &el
+	}
+	return t
+}
+
+// declaredTypes returns the types the file declares for intermediate values
+// and outputs of g.
+func (e *engine) declaredTypes(g *model.Graph) map[string]model.Type {
+	if e.opts.IgnoreDeclared {
+		return nil
+	}
+	decl := map[string]model.Type{}
+	for _, vi := range g.ValueInfo {
+		decl[vi.Name] = bindDims(vi.Type, e.opts.Dims)
+	}
+	for _, vi := range g.Outputs {
+		decl[vi.Name] = bindDims(vi.Type, e.opts.Dims)
+	}
+	return decl
+}
+
+// applyDeclared fills what inference left unknown with what the file
+// declares; inferred facts win where both exist.
+func (e *engine) applyDeclared(g *model.Graph, sc *scope, _ bool) {
+	for name, t := range e.declaredTypes(g) {
+		v := sc.vals[name]
+		if v == nil || v.Weight {
+			continue
+		}
+		sc.vals[name] = withDeclared(v, t)
+	}
+}
+
+func withDeclared(v *Value, t model.Type) *Value {
+	if t.Kind == model.KindUnknown {
+		return v
+	}
+	nv := *v
+	if !v.Type.RankKnown && v.Type.Kind != model.KindSequence {
+		dt := v.Type.DType
+		nv.Type = t
+		if dt != model.Undefined {
+			nv.Type.DType = dt
+		}
+		return &nv
+	}
+	if nv.Type.DType == model.Undefined {
+		nv.Type.DType = t.DType
+	}
+	if t.RankKnown && v.Type.RankKnown && len(t.Shape) == len(v.Type.Shape) {
+		s := v.Type.Shape.Clone()
+		for i := range s {
+			if !s[i].IsKnown() && t.Shape[i].IsKnown() {
+				s[i] = t.Shape[i]
+			}
+		}
+		nv.Type.Shape = s
+	}
+	return &nv
+}
+
+// inferNodes runs the nodes of g in file order within scope sc.
+func (e *engine) inferNodes(g *model.Graph, sc *scope, path string) error {
+	decl := e.declaredTypes(g)
+	for i, n := range g.Nodes {
+		e.steps++
+		if e.steps > maxEvalSteps {
+			return fmt.Errorf("%s.node[%d]: inference stopped after %d node evaluations (runaway loop unrolling?)", path, i, maxEvalSteps)
+		}
+		ins := make([]*Value, len(n.Inputs))
+		for j, name := range n.Inputs {
+			if name == "" {
+				continue
+			}
+			v := sc.lookup(name)
+			if v == nil {
+				return fmt.Errorf("%s.node[%d] (%s %q) reads %q, which no earlier node, graph input or initializer provides: the graph has a cycle or is not in topological order", path, i, n.Op, n.Name, name)
+			}
+			ins[j] = v
+		}
+		outs, err := e.inferNode(n, ins, sc, fmt.Sprintf("%s.node[%d]", path, i))
+		if err != nil {
+			if errors.Is(err, errDepth) || errors.Is(err, errFatal) {
+				return err
+			}
+			e.markUnresolved(n, i, err.Error())
+			outs = nil
+		}
+		for j, name := range n.Outputs {
+			if name == "" {
+				continue
+			}
+			var v *Value
+			if j < len(outs) {
+				v = outs[j]
+			}
+			if v == nil {
+				v = &Value{Type: model.Type{Kind: model.KindTensor}}
+			}
+			if t, ok := decl[name]; ok {
+				v = withDeclared(v, t)
+			}
+			sc.vals[name] = v
+		}
+	}
+	return nil
+}
+
+// errFatal wraps errors that must stop inference rather than mark a node.
+var errFatal = errors.New("fatal")
+
+func (e *engine) markUnresolved(n *model.Node, i int, reason string) {
+	if e.quiet > 0 {
+		return
+	}
+	name := n.Name
+	if name == "" {
+		name = fmt.Sprintf("%s#%d", n.Op, i)
+	}
+	e.unresolved = append(e.unresolved, Unresolved{Node: name, Op: n.Op, Reason: reason})
+}
+
+// inferNode dispatches to the operator's rule, a model-local function, or
+// reports the operator as unknown.
+func (e *engine) inferNode(n *model.Node, ins []*Value, sc *scope, path string) ([]*Value, error) {
+	domain := n.Domain
+	if domain == "ai.onnx" {
+		domain = ""
+	}
+	if f := e.m.FindFunction(n.Domain, n.Op); f != nil {
+		return e.inferFunction(f, n, ins, sc, path)
+	}
+	key := n.Op
+	if domain != "" {
+		key = domain + ":" + n.Op
+	}
+	rule, ok := opRules()[key]
+	if !ok {
+		if domain != "" {
+			return nil, fmt.Errorf("no shape rule for operator %s of domain %q", n.Op, n.Domain)
+		}
+		return nil, fmt.Errorf("no shape rule for operator %s", n.Op)
+	}
+	for j, v := range ins {
+		if v != nil && v.Type.Kind == model.KindTensor && !v.Type.RankKnown && !rule.rankFree {
+			return nil, fmt.Errorf("input %d (%q) has unknown shape", j, n.Inputs[j])
+		}
+	}
+	c := &ctx{e: e, node: n, in: ins, sc: sc, path: path, opset: e.opsetFor(domain)}
+	outs, err := rule.infer(c)
+	if err != nil {
+		return nil, err
+	}
+	return outs, nil
+}
+
+func (e *engine) opsetFor(domain string) int64 {
+	v := e.m.Opset(domain)
+	if v == 0 && domain == "" {
+		return 21
+	}
+	return v
+}
+
+// inferFunction infers a call of a model-local function by inferring its
+// body in a fresh scope, with the caller's attributes substituted.
+func (e *engine) inferFunction(f *model.Function, call *model.Node, ins []*Value, sc *scope, path string) ([]*Value, error) {
+	if e.depth >= maxGraphDepth {
+		return nil, fmt.Errorf("%s: %w (function %s)", path, errDepth, f.Name)
+	}
+	e.depth++
+	defer func() { e.depth-- }()
+	fs := &scope{vals: map[string]*Value{}}
+	for i, name := range f.Inputs {
+		if i < len(ins) && ins[i] != nil {
+			fs.vals[name] = ins[i]
+		}
+	}
+	attrs := map[string]*model.Attr{}
+	for _, a := range f.AttrProtos {
+		attrs[a.Name] = a
+	}
+	for _, a := range call.Attrs {
+		attrs[a.Name] = a
+	}
+	body := &model.Graph{Name: f.Name}
+	for _, n := range f.Nodes {
+		nn := *n
+		nn.Attrs = nil
+		for _, a := range n.Attrs {
+			if a.RefName != "" {
+				ref, ok := attrs[a.RefName]
+				if !ok {
+					continue
+				}
+				ra := *ref
+				ra.Name = a.Name
+				nn.Attrs = append(nn.Attrs, &ra)
+				continue
+			}
+			nn.Attrs = append(nn.Attrs, a)
+		}
+		body.Nodes = append(body.Nodes, &nn)
+	}
+	saved := e.m.Opsets
+	if len(f.Opsets) > 0 {
+		merged := map[string]int64{}
+		for k, v := range saved {
+			merged[k] = v
+		}
+		for k, v := range f.Opsets {
+			merged[k] = v
+		}
+		e.m.Opsets = merged
+	}
+	err := e.inferNodes(body, fs, path+".function("+f.Name+")")
+	e.m.Opsets = saved
+	if err != nil {
+		return nil, err
+	}
+	outs := make([]*Value, len(call.Outputs))
+	for i, name := range f.Outputs {
+		if i < len(outs) {
+			outs[i] = fs.vals[name]
+		}
+	}
+	return outs, nil
+}
+
+// inferSubgraph infers a control-flow body. bound gives values for the
+// body's formal inputs (nil entries fall back to the declared type).
+func (e *engine) inferSubgraph(g *model.Graph, outer *scope, bound []*Value, path string) ([]*Value, *scope, error) {
+	if e.depth >= maxGraphDepth {
+		return nil, nil, fmt.Errorf("%s: %w (limit %d)", path, errDepth, maxGraphDepth)
+	}
+	e.depth++
+	defer func() { e.depth-- }()
+	sc := &scope{parent: outer, vals: map[string]*Value{}}
+	for _, t := range g.Initializers {
+		sc.vals[t.Name] = tensorValue(t)
+	}
+	for i, in := range g.Inputs {
+		if i < len(bound) && bound[i] != nil {
+			sc.vals[in.Name] = bound[i]
+		} else {
+			sc.vals[in.Name] = &Value{Type: bindDims(in.Type, e.opts.Dims)}
+		}
+	}
+	if err := e.inferNodes(g, sc, path); err != nil {
+		return nil, nil, err
+	}
+	e.applyDeclared(g, sc, false)
+	if e.quiet == 0 {
+		e.subgraphs[g] = sc.vals
+	}
+	outs := make([]*Value, len(g.Outputs))
+	for i, o := range g.Outputs {
+		v := sc.lookup(o.Name)
+		if v == nil {
+			return nil, nil, fmt.Errorf("%s: subgraph output %q is produced by nothing", path, o.Name)
+		}
+		outs[i] = v
+	}
+	return outs, sc, nil
+}
+
+// UnresolvedSummary prints unresolved nodes one per line, for messages.
+func (r *Inference) UnresolvedSummary() string {
+	lines := make([]string, len(r.Unresolved))
+	for i, u := range r.Unresolved {
+		lines[i] = fmt.Sprintf("%s (%s): %s", u.Node, u.Op, u.Reason)
+	}
+	sort.Strings(lines)
+	return strings.Join(lines, "\n")
+}

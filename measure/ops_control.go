@@ -1,0 +1,3 @@
+package measure
+
+var controlOps = map[string]opRule{}

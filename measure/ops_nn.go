@@ -1,0 +1,3 @@
+package measure
+
+var nnOps = map[string]opRule{}

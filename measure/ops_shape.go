@@ -1,0 +1,3 @@
+package measure
+
+var shapeOps = map[string]opRule{}
