@@ -1,0 +1,83 @@
+// Package corpus locates ONNX's own backend test suite, the models and
+// tensors of Debian's libonnx-testdata package, for tests that check
+// loadline against the outside world.
+package corpus
+
+import (
+	"io/fs"
+	"os"
+	"path/filepath"
+	"sort"
+	"testing"
+)
+
+// DefaultDir is where Debian's libonnx-testdata package installs the suite
+// (`dpkg -L libonnx-testdata`).
+const DefaultDir = "/usr/share/libonnx-testdata/data"
+
+// Folders are the suite's model folders under Dir.
+var Folders = []string{"node", "simple", "pytorch-converted", "pytorch-operator"}
+
+// Dir returns the suite's data folder: $LOADLINE_CORPUS_DIR when set, else
+// DefaultDir. It returns "" when the folder does not exist.
+func Dir() string {
+	dir := os.Getenv("LOADLINE_CORPUS_DIR")
+	if dir == "" {
+		dir = DefaultDir
+	}
+	if st, err := os.Stat(dir); err != nil || !st.IsDir() {
+		return ""
+	}
+	return dir
+}
+
+// Required reports whether tests must fail rather than skip when the
+// corpus (or another outside oracle) is missing: LOADLINE_REQUIRE_CORPUS=1.
+func Required() bool { return os.Getenv("LOADLINE_REQUIRE_CORPUS") == "1" }
+
+// Missing skips the test with msg, or fails it when Required.
+func Missing(t testing.TB, msg string) {
+	t.Helper()
+	if Required() {
+		t.Fatalf("%s (LOADLINE_REQUIRE_CORPUS=1)", msg)
+	}
+	t.Skip(msg)
+}
+
+// Require returns Dir, skipping the test with a visible message when the
+// corpus is absent, or failing it when LOADLINE_REQUIRE_CORPUS=1.
+func Require(t testing.TB) string {
+	t.Helper()
+	dir := Dir()
+	if dir == "" {
+		Missing(t, "ONNX backend test corpus not found at "+DefaultDir+" (apt-get install libonnx-testdata, or set LOADLINE_CORPUS_DIR)")
+	}
+	return dir
+}
+
+// Models returns the path of every model.onnx in the suite's Folders,
+// sorted, after Require.
+func Models(t testing.TB) []string {
+	t.Helper()
+	dir := Require(t)
+	var out []string
+	for _, f := range Folders {
+		err := filepath.WalkDir(filepath.Join(dir, f), func(p string, e fs.DirEntry, err error) error {
+			if err != nil {
+				return err
+			}
+			if !e.IsDir() && e.Name() == "model.onnx" {
+				out = append(out, p)
+			}
+			return nil
+		})
+		if err != nil {
+			t.Fatalf("listing corpus: %v", err)
+		}
+	}
+	if len(out) == 0 {
+		Missing(t, "no model.onnx under "+dir)
+	}
+	sort.Strings(out)
+	return out
+}
