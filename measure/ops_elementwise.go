@@ -37,7 +37,7 @@ var unaryFloat = map[string]func(float64) float64{
 	"Elu": nil, "Selu": nil, "Celu": nil, "LeakyRelu": nil, "ThresholdedRelu": nil, "HardSigmoid": nil,
 	"HardSwish": nil, "Shrink": nil, "Gelu": nil, "Mish": nil, "Softmax": nil, "LogSoftmax": nil, "Hardmax": nil,
 	"LpNormalization": nil, "MeanVarianceNormalization": nil, "BitwiseNot": nil, "Bernoulli": nil,
-	"RandomUniformLike": nil, "RandomNormalLike": nil, "Det": nil,
+	"RandomUniformLike": nil, "RandomNormalLike": nil,
 }
 
 type binaryOp struct {
@@ -99,12 +99,6 @@ var binaryOps = map[string]binaryOp{
 	"BitwiseAnd": {ints: knownPair(func(a, b int64) int64 { return a & b })},
 	"BitwiseOr":  {ints: knownPair(func(a, b int64) int64 { return a | b })},
 	"BitwiseXor": {ints: knownPair(func(a, b int64) int64 { return a ^ b })},
-	"PRelu": {floats: func(a, b float64) float64 {
-		if a < 0 {
-			return a * b
-		}
-		return a
-	}},
 	"Equal":          cmpOp(func(a, b float64) bool { return a == b }),
 	"Less":           cmpOp(func(a, b float64) bool { return a < b }),
 	"Greater":        cmpOp(func(a, b float64) bool { return a > b }),
@@ -119,6 +113,9 @@ func init() {
 	for op, b := range binaryOps {
 		elementwiseOps[op] = opRule{infer: binaryRule(op, b)}
 	}
+	// PRelu's slope broadcasts onto X (per channel in opsets before 7): the
+	// output is always shaped like X.
+	elementwiseOps["PRelu"] = opRule{infer: same}
 	elementwiseOps["Mean"] = opRule{infer: binaryRule("Mean", binaryOp{})}
 	elementwiseOps["Mod"] = opRule{infer: inferMod}
 	elementwiseOps["BitShift"] = opRule{infer: inferBitShift}

@@ -236,3 +236,31 @@ func (v *Value) rank() (int, bool) {
 
 // shapeKnown reports whether the value is a tensor of known rank.
 func (v *Value) shapeKnown() bool { return v != nil && v.Type.RankKnown }
+
+// dataEqual reports whether two contents hold the same elements.
+func dataEqual(a, b *Data) bool {
+	if a == nil || b == nil || a.kind() != b.kind() || a.Len() != b.Len() {
+		return false
+	}
+	switch a.kind() {
+	case 'i':
+		for i := range a.Ints {
+			if a.Ints[i] != b.Ints[i] {
+				return false
+			}
+		}
+	case 'f':
+		for i := range a.Floats {
+			if a.Floats[i] != b.Floats[i] && !(a.Floats[i] != a.Floats[i] && b.Floats[i] != b.Floats[i]) {
+				return false
+			}
+		}
+	case 's':
+		for i := range a.Strings {
+			if a.Strings[i] != b.Strings[i] {
+				return false
+			}
+		}
+	}
+	return true
+}

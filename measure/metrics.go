@@ -1,0 +1,94 @@
+package measure
+
+import (
+	"github.com/loadline/loadline/model"
+)
+
+// Metrics are the figures of one model, as loadline's JSON contract
+// (loadline.measure/v1) names them. Each figure is defined once, in the file
+// that computes it; the README's "Conventions" section repeats the
+// definitions.
+type Metrics struct {
+	Path       string       `json:"path"`
+	Format     string       `json:"format"`
+	FileBytes  int64        `json:"file_bytes"`
+	Params     int64        `json:"params"`
+	ParamBytes int64        `json:"param_bytes"`
+	Inputs     []IOInfo     `json:"inputs"`
+	Outputs    []IOInfo     `json:"outputs"`
+	Unresolved []Unresolved `json:"unresolved"`
+	Error      string       `json:"error"`
+
+	// ParamsByDType breaks param_bytes down by dtype.
+	ParamsByDType []DTypeBytes `json:"params_by_dtype"`
+	// Opsets are the operator set versions the model imports.
+	Opsets map[string]int64 `json:"opsets,omitempty"`
+	// Nodes is the number of nodes of the main graph.
+	Nodes int `json:"nodes"`
+}
+
+// IOInfo is a graph input or output: name, dtype, and shape with symbolic
+// dims as strings.
+type IOInfo struct {
+	Name  string `json:"name"`
+	DType string `json:"dtype"`
+	Shape []any  `json:"shape"`
+}
+
+// Options steers measuring.
+type Options struct {
+	// Dims binds symbolic dims by name.
+	Dims map[string]int64
+}
+
+// Measure infers shapes and computes the figures of a decoded model.
+// fileBytes is the size of the model file as stored.
+func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
+	inf, err := Infer(m, InferOptions{Dims: opts.Dims})
+	if err != nil {
+		return nil, err
+	}
+	out := &Metrics{
+		Format:     m.Format,
+		FileBytes:  fileBytes,
+		Unresolved: inf.Unresolved,
+		Opsets:     m.Opsets,
+		Nodes:      len(m.Graph.Nodes),
+		Inputs:     []IOInfo{},
+		Outputs:    []IOInfo{},
+	}
+	if out.Unresolved == nil {
+		out.Unresolved = []Unresolved{}
+	}
+	ws := weights(inf)
+	for _, w := range ws {
+		out.Params += w.Elements
+		out.ParamBytes += w.Bytes
+	}
+	out.ParamsByDType = ParamsByDType(ws)
+	for _, in := range inf.Inputs {
+		out.Inputs = append(out.Inputs, ioInfo(in))
+	}
+	for _, o := range inf.Outputs {
+		out.Outputs = append(out.Outputs, ioInfo(o))
+	}
+	return out, nil
+}
+
+func ioInfo(nv NamedValue) IOInfo {
+	io := IOInfo{Name: nv.Name, DType: nv.Value.Type.DType.String()}
+	if nv.Value.Type.Kind == model.KindSequence {
+		io.DType = "sequence<" + nv.Value.Type.DType.String() + ">"
+	}
+	if nv.Value.Type.RankKnown {
+		io.Shape = make([]any, len(nv.Value.Type.Shape))
+		for i, d := range nv.Value.Type.Shape {
+			if d.IsKnown() {
+				io.Shape[i] = d.Value
+			} else {
+				io.Shape[i] = d.Symbol
+			}
+		}
+	}
+	return io
+}
