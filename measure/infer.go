@@ -66,6 +66,9 @@ type engine struct {
 	steps      int
 	depth      int
 	quiet      int // >0 while evaluating speculatively (loop unrolling)
+	// poisoned maps a value produced by an unresolved node to the name of
+	// the first unresolved node upstream, so reasons point at the cause.
+	poisoned map[string]string
 }
 
 type scope struct {
@@ -88,7 +91,7 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 	if m == nil || m.Graph == nil {
 		return nil, errors.New("model has no graph")
 	}
-	e := &engine{m: m, opts: opts, subgraphs: map[*model.Graph]map[string]*Value{}}
+	e := &engine{m: m, opts: opts, subgraphs: map[*model.Graph]map[string]*Value{}, poisoned: map[string]string{}}
 	g := m.Graph
 	sc := &scope{vals: map[string]*Value{}}
 	res := &Inference{Model: m, Subgraphs: e.subgraphs}
@@ -223,7 +226,16 @@ func (e *engine) inferNodes(g *model.Graph, sc *scope, path string) error {
 			if errors.Is(err, errDepth) || errors.Is(err, errFatal) {
 				return err
 			}
-			e.markUnresolved(n, i, err.Error())
+			root := e.markUnresolved(n, i, err.Error())
+			for _, in := range n.Inputs {
+				if from := e.poisoned[in]; from != "" {
+					root = from
+					break
+				}
+			}
+			for _, o := range n.Outputs {
+				e.poisoned[o] = root
+			}
 			outs = nil
 		}
 		for j, name := range n.Outputs {
@@ -249,15 +261,15 @@ func (e *engine) inferNodes(g *model.Graph, sc *scope, path string) error {
 // errFatal wraps errors that must stop inference rather than mark a node.
 var errFatal = errors.New("fatal")
 
-func (e *engine) markUnresolved(n *model.Node, i int, reason string) {
-	if e.quiet > 0 {
-		return
-	}
+func (e *engine) markUnresolved(n *model.Node, i int, reason string) string {
 	name := n.Name
 	if name == "" {
 		name = fmt.Sprintf("%s#%d", n.Op, i)
 	}
-	e.unresolved = append(e.unresolved, Unresolved{Node: name, Op: n.Op, Reason: reason})
+	if e.quiet == 0 {
+		e.unresolved = append(e.unresolved, Unresolved{Node: name, Op: n.Op, Reason: reason})
+	}
+	return name
 }
 
 // inferNode dispatches to the operator's rule, a model-local function, or
@@ -283,6 +295,9 @@ func (e *engine) inferNode(n *model.Node, ins []*Value, sc *scope, path string) 
 	}
 	for j, v := range ins {
 		if v != nil && v.Type.Kind == model.KindTensor && !v.Type.RankKnown && !rule.rankFree {
+			if from := e.poisoned[n.Inputs[j]]; from != "" {
+				return nil, fmt.Errorf("downstream of unresolved node %s", from)
+			}
 			return nil, fmt.Errorf("input %d (%q) has unknown shape", j, n.Inputs[j])
 		}
 	}

@@ -1,0 +1,176 @@
+// Command loadline keeps neural-network models inside the resource budgets
+// of the devices they ship on. This file only parses flags and wires the
+// packages together.
+package main
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"strconv"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"github.com/loadline/loadline/check"
+	"github.com/loadline/loadline/measure"
+	"github.com/loadline/loadline/report"
+)
+
+// Exit codes, as DESIGN.md fixes them.
+const (
+	exitOK      = 0
+	exitBudget  = 1 // a budget is broken, or a model cannot be measured
+	exitUsage   = 2 // usage or budget-file error
+	exitEnviron = 3 // environment error
+)
+
+// exitError carries an exit code up to main.
+type exitError struct {
+	code int
+	err  error
+}
+
+func (e *exitError) Error() string { return e.err.Error() }
+
+const conventions = `Figures (static estimates from the model file; measure on the device before release):
+  file         bytes of the model file as stored.
+  params       elements of every constant tensor (initializer or Constant output)
+               used as a weight; constants read only as shapes, indices or axes,
+               constants consumed only by shape arithmetic, and scalars are not
+               parameters.
+  param bytes  storage of those parameters at their own dtype (int4 packs two
+               to a byte).
+  shapes       inferred for every tensor; symbolic dims stay symbols unless bound
+               with --dim NAME=VALUE. Nodes whose shapes cannot be inferred are
+               listed as unresolved, with the reason.
+Units: B, KiB, MiB (1024-based) for bytes; k, M, G (1000-based) for counts.`
+
+func main() {
+	os.Exit(run(os.Args[1:], os.Stdout, os.Stderr))
+}
+
+// run executes the command line and returns the exit code; tests call it.
+func run(args []string, stdout, stderr io.Writer) int {
+	root := newRoot(stdout, stderr)
+	root.SetArgs(args)
+	err := root.Execute()
+	if err == nil {
+		return exitOK
+	}
+	var ee *exitError
+	if errors.As(err, &ee) {
+		if ee.err != nil && ee.err.Error() != "" {
+			fmt.Fprintln(stderr, "loadline:", ee.err)
+		}
+		return ee.code
+	}
+	fmt.Fprintln(stderr, "loadline:", err)
+	return exitUsage
+}
+
+func newRoot(stdout, stderr io.Writer) *cobra.Command {
+	root := &cobra.Command{
+		Use:   "loadline",
+		Short: "Keep neural-network models inside the resource budgets of their devices",
+		Long: "loadline measures models (file size, parameters, shapes of every tensor) and keeps\n" +
+			"them inside the budgets of the devices they ship on.\n\n" + conventions,
+		SilenceUsage:  true,
+		SilenceErrors: true,
+	}
+	root.SetOut(stdout)
+	root.SetErr(stderr)
+	root.AddCommand(newMeasureCmd(stdout), newDemoCmd(stdout, stderr))
+	return root
+}
+
+func newMeasureCmd(stdout io.Writer) *cobra.Command {
+	var asJSON bool
+	var dims []string
+	cmd := &cobra.Command{
+		Use:   "measure [--json] [--dim NAME=VALUE]... FILE...",
+		Short: "Print the figures of model files (no git, no budget)",
+		Long:  "Decode each model file, infer every tensor's shape and print its figures.\n\n" + conventions,
+		Example: "  loadline measure models/kws.onnx\n" +
+			"  loadline measure --dim batch=1 --json models/*.onnx",
+		Args: cobra.MinimumNArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			bound, err := parseDims(dims)
+			if err != nil {
+				return &exitError{exitUsage, err}
+			}
+			entries := check.MeasureFiles(args, measure.Options{Dims: bound})
+			if asJSON {
+				err = report.MeasureJSON(stdout, entries)
+			} else {
+				err = report.MeasureText(stdout, entries)
+			}
+			if err != nil {
+				return &exitError{exitEnviron, err}
+			}
+			failed := 0
+			for _, e := range entries {
+				if e.Error != "" {
+					failed++
+				}
+			}
+			if failed > 0 {
+				return &exitError{exitBudget, fmt.Errorf("%d of %d file(s) could not be measured", failed, len(entries))}
+			}
+			return nil
+		},
+	}
+	cmd.Flags().BoolVar(&asJSON, "json", false, "print the "+report.MeasureSchema+" JSON document")
+	cmd.Flags().StringArrayVar(&dims, "dim", nil, "bind a symbolic dimension, NAME=VALUE (repeatable)")
+	return cmd
+}
+
+// parseDims reads --dim NAME=VALUE flags.
+func parseDims(flags []string) (map[string]int64, error) {
+	out := map[string]int64{}
+	for _, f := range flags {
+		name, val, ok := strings.Cut(f, "=")
+		name = strings.TrimSpace(name)
+		if !ok || name == "" {
+			return nil, fmt.Errorf("--dim %q: want NAME=VALUE, e.g. --dim batch=1", f)
+		}
+		v, err := strconv.ParseInt(strings.TrimSpace(val), 10, 64)
+		if err != nil || v < 0 {
+			return nil, fmt.Errorf("--dim %q: the value must be a non-negative integer", f)
+		}
+		out[name] = v
+	}
+	return out, nil
+}
+
+func newDemoCmd(stdout, stderr io.Writer) *cobra.Command {
+	var keep bool
+	cmd := &cobra.Command{
+		Use:   "demo",
+		Short: "Build invented demo models in a temporary folder and measure them",
+		Long: "Builds the models of an invented scenario (a bird detector for a porch camera,\n" +
+			"a wake-word spotter for a kitchen timer) with loadline's own graph builder,\n" +
+			"writes them as ONNX files into a temporary folder and measures them. Offline.",
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, args []string) error {
+			dir, err := os.MkdirTemp("", "loadline-demo-")
+			if err != nil {
+				return &exitError{exitEnviron, err}
+			}
+			if keep {
+				fmt.Fprintln(stderr, "demo folder:", dir)
+			} else {
+				defer os.RemoveAll(dir)
+			}
+			if _, err := check.RunDemo(dir, stdout); err != nil {
+				return &exitError{exitBudget, err}
+			}
+			fmt.Fprintln(stdout, "\nThe figures above were computed from the files alone: shapes inferred for every tensor,\n"+
+				"parameters counted from the weights. `loadline measure FILE` does the same for your models.")
+			return nil
+		},
+	}
+	cmd.Flags().BoolVar(&keep, "keep", false, "keep the demo folder and print its path")
+	return cmd
+}

@@ -1,0 +1,99 @@
+// Package report renders what loadline measured and judged: text tables for
+// terminals, JSON for machines. It only renders what it is given.
+package report
+
+import (
+	"encoding/json"
+	"fmt"
+	"io"
+	"strings"
+	"text/tabwriter"
+
+	"github.com/loadline/loadline/measure"
+)
+
+// MeasureSchema names the JSON contract of `loadline measure --json`.
+const MeasureSchema = "loadline.measure/v1"
+
+// MeasureJSON writes the loadline.measure/v1 document for the entries.
+func MeasureJSON(w io.Writer, entries []*measure.Metrics) error {
+	doc := struct {
+		Schema string             `json:"schema"`
+		Models []*measure.Metrics `json:"models"`
+	}{MeasureSchema, entries}
+	if doc.Models == nil {
+		doc.Models = []*measure.Metrics{}
+	}
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(doc)
+}
+
+// MeasureText writes one block per model: its figures in units people read,
+// its inputs and outputs, and the nodes whose shapes stayed unknown.
+func MeasureText(w io.Writer, entries []*measure.Metrics) error {
+	for i, m := range entries {
+		if i > 0 {
+			fmt.Fprintln(w)
+		}
+		if m.Error != "" {
+			fmt.Fprintf(w, "%s\n  error: %s\n", m.Path, m.Error)
+			continue
+		}
+		fmt.Fprintf(w, "%s  (%s, %d nodes, opset %s)\n", m.Path, m.Format, m.Nodes, opsetText(m.Opsets))
+		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+		fmt.Fprintf(tw, "  file\t%s\n", Bytes(m.FileBytes))
+		fmt.Fprintf(tw, "  params\t%s\t(%s)\n", Count(m.Params), dtypeText(m))
+		fmt.Fprintf(tw, "  param bytes\t%s\n", Bytes(m.ParamBytes))
+		tw.Flush()
+		for _, io := range m.Inputs {
+			fmt.Fprintf(w, "  input   %s %s%s\n", io.Name, io.DType, shapeText(io.Shape))
+		}
+		for _, io := range m.Outputs {
+			fmt.Fprintf(w, "  output  %s %s%s\n", io.Name, io.DType, shapeText(io.Shape))
+		}
+		if n := len(m.Unresolved); n > 0 {
+			fmt.Fprintf(w, "  unresolved: %d node(s); figures downstream of them are incomplete\n", n)
+			for j, u := range m.Unresolved {
+				if j == 10 {
+					fmt.Fprintf(w, "    … and %d more (see --json)\n", n-10)
+					break
+				}
+				fmt.Fprintf(w, "    %s (%s): %s\n", u.Node, u.Op, u.Reason)
+			}
+		}
+	}
+	return nil
+}
+
+func opsetText(o map[string]int64) string {
+	if v, ok := o[""]; ok {
+		return fmt.Sprint(v)
+	}
+	if v, ok := o["ai.onnx"]; ok {
+		return fmt.Sprint(v)
+	}
+	return "?"
+}
+
+func dtypeText(m *measure.Metrics) string {
+	if len(m.ParamsByDType) == 0 {
+		return "none"
+	}
+	parts := make([]string, len(m.ParamsByDType))
+	for i, d := range m.ParamsByDType {
+		parts[i] = fmt.Sprintf("%s %s", d.DType, Bytes(d.Bytes))
+	}
+	return strings.Join(parts, ", ")
+}
+
+func shapeText(s []any) string {
+	if s == nil {
+		return "[?]"
+	}
+	parts := make([]string, len(s))
+	for i, d := range s {
+		parts[i] = fmt.Sprint(d)
+	}
+	return "[" + strings.Join(parts, ",") + "]"
+}
