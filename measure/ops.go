@@ -9,7 +9,17 @@ var opFamilies = []map[string]opRule{
 	elementwiseOps,
 	shapeOps,
 	controlOps,
-	nnOps,
+	convOps,
+	poolOps,
+	matmulOps,
+	normOps,
+	rnnOps,
+	quantOps,
+	resizeOps,
+	reduceOps,
+	signalOps,
+	lossOps,
+	detectOps,
 }
 
 var (

@@ -17,14 +17,8 @@ var matmulOps = map[string]opRule{
 	"MatMulInteger": {infer: inferMatMulInteger, rankFree: true},
 	"QLinearMatMul": {infer: inferQLinearMatMul, rankFree: true},
 	"Einsum":        {infer: inferEinsum},
-	// Det: see detOp. Registered here once ops_elementwise.go no longer
-	// lists it as shape-preserving.
+	"Det":           {infer: inferDet},
 }
-
-// detOp is the rule for Det, kept apart from matmulOps while the
-// elementwise family still registers Det (two rows for one operator make
-// the table panic).
-var detOp = opRule{infer: inferDet}
 
 // inferGemm: A is [M, K] ([K, M] with transA), B is [K, N] ([N, K] with
 // transB); Y is [M, N]. C only broadcasts into Y (before opset 7 only when

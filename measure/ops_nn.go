@@ -1,3 +1,0 @@
-package measure
-
-var nnOps = map[string]opRule{}
