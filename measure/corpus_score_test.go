@@ -141,6 +141,8 @@ func TestCorpusShapeScore(t *testing.T) {
 			if len(res.Unresolved) > 0 {
 				u := res.Unresolved[0]
 				reason = fmt.Sprintf(" (%s %s: %s)", u.Op, u.Node, u.Reason)
+			} else if v != nil && v.Type.RankKnown && !v.Type.Shape.AllKnown() {
+				reason = " (left symbolic: the size depends on input values that are not known statically)"
 			}
 			misses = append(misses, fmt.Sprintf("%s/%s %s: inferred %s, expected %v%s", sc.folder, sc.name, name, got, model.KnownShape(want...), reason))
 		}

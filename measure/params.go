@@ -14,10 +14,14 @@ import (
 // folded statically. Constants read only at shape or index positions
 // (Reshape's shape, Slice's starts, Resize's scales, …), constants consumed
 // only by shape arithmetic, and scalars (one element or fewer) are not
-// parameters.
+// parameters. Nor are BatchNormalization's running mean and variance
+// (statistics, not learned weights; torchvision's published counts leave
+// them out too) or quantization scales and zero points (the metadata of a
+// quantized weight, not its elements).
 
 // shapeOperands lists, per operator, the input positions that carry shapes,
-// indices, axes or counts rather than data.
+// indices, axes or counts rather than data, or statistics and quantization
+// metadata rather than weights.
 var shapeOperands = map[string][]int{
 	"Reshape": {1}, "Expand": {1}, "Tile": {1}, "Slice": {1, 2, 3, 4}, "Pad": {1, 3},
 	"Squeeze": {1}, "Unsqueeze": {1}, "Split": {1}, "SplitToSequence": {1},
@@ -30,6 +34,10 @@ var shapeOperands = map[string][]int{
 	"GatherElements": {1}, "GatherND": {1}, "SequenceAt": {1}, "SequenceInsert": {2}, "SequenceErase": {1},
 	"CenterCropPad": {1, 2}, "Col2Im": {1, 2}, "HannWindow": {0}, "HammingWindow": {0}, "BlackmanWindow": {0},
 	"MelWeightMatrix": {0, 1, 2, 3, 4}, "ReverseSequence": {1}, "Multinomial": {}, "Shape": {0}, "Size": {0},
+	// Statistics and quantization metadata.
+	"BatchNormalization": {3, 4}, "QuantizeLinear": {1, 2}, "DequantizeLinear": {1, 2},
+	"QLinearConv": {1, 2, 4, 5, 6, 7}, "QLinearMatMul": {1, 2, 4, 5, 6, 7}, "ConvInteger": {2, 3}, "MatMulInteger": {2, 3},
+	"DynamicQuantizeLinear": {},
 }
 
 // isShapeOperand reports whether input i of n carries a shape or index.

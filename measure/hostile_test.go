@@ -1,0 +1,178 @@
+package measure
+
+import (
+	"os"
+	"runtime"
+	"strings"
+	"testing"
+
+	"github.com/loadline/loadline/internal/corpus"
+	"github.com/loadline/loadline/model"
+	"github.com/loadline/loadline/model/onnx"
+)
+
+func graphModel(g *model.Graph) *model.Model {
+	return &model.Model{Format: "onnx", IRVersion: 8, Opsets: map[string]int64{"": 13}, Graph: g}
+}
+
+func node(op string, ins, outs []string, attrs ...*model.Attr) *model.Node {
+	return &model.Node{Op: op, Name: op + "_" + outs[0], Inputs: ins, Outputs: outs, Attrs: attrs}
+}
+
+func input(name string, dt model.DType, dims ...model.Dim) *model.ValueInfo {
+	return &model.ValueInfo{Name: name, Type: model.TensorType(dt, model.Shape(dims))}
+}
+
+// allocDuring reports the bytes allocated while f runs.
+func allocDuring(f func()) uint64 {
+	var a, b runtime.MemStats
+	runtime.GC()
+	runtime.ReadMemStats(&a)
+	f()
+	runtime.ReadMemStats(&b)
+	return b.TotalAlloc - a.TotalAlloc
+}
+
+func TestHostileCycle(t *testing.T) {
+	// Two nodes that read each other's outputs: not a DAG.
+	g := &model.Graph{
+		Inputs: []*model.ValueInfo{input("x", model.Float32, model.Known(4))},
+		Nodes: []*model.Node{
+			node("Add", []string{"x", "b"}, []string{"a"}),
+			node("Relu", []string{"a"}, []string{"b"}),
+		},
+		Outputs: []*model.ValueInfo{{Name: "b"}},
+	}
+	_, err := Infer(graphModel(g), InferOptions{})
+	if err == nil || !strings.Contains(err.Error(), "cycle") || !strings.Contains(err.Error(), `"b"`) {
+		t.Fatalf("want an error naming the cycle and the value, got %v", err)
+	}
+}
+
+func TestHostileHugeDims(t *testing.T) {
+	// A dim of 2^62 and products that overflow int64 flow through shape
+	// rules without folding anything and without allocating.
+	big := model.Known(1 << 62)
+	g := &model.Graph{
+		Inputs: []*model.ValueInfo{input("x", model.Float32, big, big, model.Known(4))},
+		Initializers: []*model.Tensor{
+			{Name: "shape", DType: model.Int64, Dims: []int64{1}, Data: rawInt64s(-1)},
+			{Name: "reps", DType: model.Int64, Dims: []int64{3}, Data: rawInt64s(1<<62, 4, 1)},
+		},
+		Nodes: []*model.Node{
+			node("Reshape", []string{"x", "shape"}, []string{"flat"}),
+			node("Tile", []string{"x", "reps"}, []string{"tiled"}),
+			node("Shape", []string{"tiled"}, []string{"s"}),
+			node("ConstantOfShape", []string{"s"}, []string{"zeros"}),
+			node("Relu", []string{"zeros"}, []string{"y"}),
+		},
+		Outputs: []*model.ValueInfo{{Name: "y"}, {Name: "flat"}},
+	}
+	var res *Inference
+	var err error
+	n := allocDuring(func() { res, err = Infer(graphModel(g), InferOptions{}) })
+	if n > 16<<20 {
+		t.Errorf("inference of a graph with 2^62 dims allocated %d bytes", n)
+	}
+	if err != nil {
+		t.Fatalf("Infer: %v", err)
+	}
+	// Reshape to [-1] of 2^62·2^62·4 elements overflows: the node is
+	// unresolved with a reason, not a wrong number.
+	if v := res.Values["flat"]; v.Type.RankKnown && v.Type.Shape.AllKnown() {
+		t.Errorf("flat: got known shape %v for an overflowing element count", v.Type.Shape)
+	}
+	if v := res.Values["y"]; !v.Type.RankKnown || len(v.Type.Shape) != 3 {
+		t.Errorf("y: want rank 3, got %v", v.Type)
+	}
+}
+
+func rawInt64s(v ...int64) model.TensorData {
+	b := make([]byte, 8*len(v))
+	for i, x := range v {
+		for k := 0; k < 8; k++ {
+			b[8*i+k] = byte(uint64(x) >> (8 * k))
+		}
+	}
+	return model.TensorData{Encoding: model.EncodingRaw, Segments: [][]byte{b}}
+}
+
+func TestHostileDeepNesting(t *testing.T) {
+	// If nodes nested 10,000 deep, built in memory (the decoder refuses such
+	// files earlier; this checks the engine's own bound).
+	cond := &model.Tensor{Name: "c", DType: model.Bool, Dims: []int64{}, Data: model.TensorData{Encoding: model.EncodingRaw, Segments: [][]byte{{1}}}}
+	inner := &model.Graph{Name: "leaf", Nodes: []*model.Node{node("Identity", []string{"x"}, []string{"y0"})}, Outputs: []*model.ValueInfo{{Name: "y0"}}}
+	for i := 0; i < 10000; i++ {
+		n := node("If", []string{"c"}, []string{"y0"},
+			&model.Attr{Name: "then_branch", Kind: model.AttrGraph, Graph: inner},
+			&model.Attr{Name: "else_branch", Kind: model.AttrGraph, Graph: inner})
+		inner = &model.Graph{Name: "g", Nodes: []*model.Node{n}, Outputs: []*model.ValueInfo{{Name: "y0"}}}
+	}
+	g := &model.Graph{
+		Inputs:       []*model.ValueInfo{input("x", model.Float32, model.Known(2))},
+		Initializers: []*model.Tensor{cond},
+		Nodes:        inner.Nodes,
+		Outputs:      []*model.ValueInfo{{Name: "y0"}},
+	}
+	var err error
+	n := allocDuring(func() { _, err = Infer(graphModel(g), InferOptions{}) })
+	if err == nil || !strings.Contains(err.Error(), "nest too deep") {
+		t.Fatalf("want a nesting error, got %v", err)
+	}
+	if n > 64<<20 {
+		t.Errorf("deep nesting allocated %d bytes", n)
+	}
+}
+
+func TestHostileRunawayLoop(t *testing.T) {
+	// A loop whose trip count is 2^62 and whose state is constant must not be
+	// unrolled: its scan output gets the trip count as a dim.
+	body := &model.Graph{
+		Name:    "body",
+		Inputs:  []*model.ValueInfo{input("i", model.Int64), input("cin", model.Bool)},
+		Nodes:   []*model.Node{node("Identity", []string{"cin"}, []string{"cout"}), node("Identity", []string{"i"}, []string{"scan"})},
+		Outputs: []*model.ValueInfo{{Name: "cout"}, {Name: "scan"}},
+	}
+	g := &model.Graph{
+		Initializers: []*model.Tensor{
+			{Name: "M", DType: model.Int64, Dims: []int64{}, Data: rawInt64s(1 << 62)},
+			{Name: "c", DType: model.Bool, Dims: []int64{}, Data: model.TensorData{Encoding: model.EncodingRaw, Segments: [][]byte{{1}}}},
+		},
+		Nodes:   []*model.Node{node("Loop", []string{"M", "c"}, []string{"out"}, &model.Attr{Name: "body", Kind: model.AttrGraph, Graph: body})},
+		Outputs: []*model.ValueInfo{{Name: "out"}},
+	}
+	res, err := Infer(graphModel(g), InferOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := res.Values["out"].Type.Shape; !got.Equal(model.KnownShape(1 << 62)) {
+		t.Errorf("out: got %v, want [%d]", got, int64(1)<<62)
+	}
+}
+
+// FuzzInfer decodes arbitrary bytes as an ONNX model and, when that
+// succeeds, infers shapes: neither may panic. Seeded from the backend test
+// suite when it is installed.
+func FuzzInfer(f *testing.F) {
+	if dir := corpus.Dir(); dir != "" {
+		for _, name := range []string{"node/test_reshape_reordered_all_dims", "node/test_loop11", "node/test_if", "node/test_conv_with_strides_padding",
+			"node/test_range_float_type_positive_delta_expanded", "node/test_sequence_map_identity_1_sequence", "node/test_gather_0", "node/test_slice_neg_steps",
+			"pytorch-converted/test_ConvTranspose2d", "node/test_scan9_sum", "node/test_split_variable_parts_1d", "node/test_einsum_batch_matmul"} {
+			if b, err := os.ReadFile(dir + "/" + name + "/model.onnx"); err == nil {
+				f.Add(b)
+			}
+		}
+	}
+	f.Add([]byte{})
+	f.Fuzz(func(t *testing.T, data []byte) {
+		m, err := onnx.Decode(data, onnx.Options{Path: "fuzz.onnx", ReadFile: func(string) ([]byte, error) { return nil, os.ErrNotExist }})
+		if err != nil {
+			return
+		}
+		res, err := Infer(m, InferOptions{})
+		if err == nil {
+			Measure(m, int64(len(data)), Options{})
+			_ = res
+		}
+	})
+}
