@@ -38,8 +38,9 @@ const conventions = `Figures (static estimates from the model file; measure on t
   file         bytes of the model file as stored.
   params       elements of every constant tensor (initializer or Constant output)
                used as a weight; constants read only as shapes, indices or axes,
-               constants consumed only by shape arithmetic, and scalars are not
-               parameters.
+               constants consumed only by shape arithmetic, scalars,
+               BatchNormalization running statistics and quantization scales
+               and zero points are not parameters.
   param bytes  storage of those parameters at their own dtype (int4 packs two
                to a byte).
   shapes       inferred for every tensor; symbolic dims stay symbols unless bound
