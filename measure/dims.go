@@ -139,7 +139,7 @@ func dimCeilDiv(a, b model.Dim) model.Dim {
 	if b.IsKnown() && b.Value == 1 {
 		return a
 	}
-	return symbolic("ceil(" + a.String() + "/" + b.String() + ")")
+	return symbolic("ceil(" + operand(a) + "/" + operand(b) + ")")
 }
 
 // dimFloorDiv is ⌊a/b⌋ for sizes.
