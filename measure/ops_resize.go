@@ -40,8 +40,9 @@ func presentInput(c *ctx, i int) bool {
 }
 
 // scaledDim is floor(in * scale), computed in float32 as ONNX's shape
-// inference and onnxruntime compute it (so 0.6*5 floors to 3, not 2).
-// A symbolic size stays an expression.
+// inference and onnxruntime compute it: 10 × 0.7f rounds to 7.0 in float32
+// and floors to 7, where float64 arithmetic on the stored 0.699999988
+// would floor to 6. A symbolic size stays an expression.
 func scaledDim(in model.Dim, scale float64) (model.Dim, error) {
 	if scale <= 0 || math.IsNaN(scale) || math.IsInf(scale, 0) {
 		return model.Dim{}, fmt.Errorf("scale %v is not a positive finite number", scale)
