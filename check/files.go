@@ -5,7 +5,6 @@ package check
 
 import (
 	"fmt"
-	"os"
 	"path/filepath"
 	"runtime"
 	"strings"
@@ -44,10 +43,11 @@ func MeasureFile(path string, opts measure.Options) *measure.Metrics {
 	if formatOf(path) != "onnx" {
 		return fail(fmt.Errorf("%s: unsupported model format (loadline reads .onnx files)", path))
 	}
-	data, err := os.ReadFile(path)
+	data, release, err := mapFile(path)
 	if err != nil {
 		return fail(err)
 	}
+	defer release()
 	m, err := onnx.Decode(data, onnx.Options{Path: path})
 	if err != nil {
 		return fail(err)

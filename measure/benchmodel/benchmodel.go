@@ -1,0 +1,31 @@
+// Package benchmodel builds the large generated model the benchmarks and
+// the side-by-side timing script measure.
+package benchmodel
+
+import (
+	"fmt"
+
+	"github.com/loadline/loadline/model"
+	"github.com/loadline/loadline/model/build"
+)
+
+// Build returns a model of about mb megabytes of float32 weights: 1024×1024
+// fully connected layers (4 MiB each) with ReLU between them, fed by a small
+// convolutional stem and followed by an exporter-style shape subgraph
+// (Shape → Gather → Concat → Reshape), so that decoding, folding and
+// inference all have work.
+func Build(mb int) (*model.Model, error) {
+	layers := max(1, mb*1000*1000/(1024*1024*4))
+	b := build.New(fmt.Sprintf("bench-%dmb", mb), 13)
+	x := b.InputShape("x", model.Float32, model.Shape{model.Sym("batch"), model.Known(4), model.Known(16), model.Known(16)})
+	x = b.Conv("stem", x, build.Conv2D(4, 3, 1, 1).WithBias())
+	x = b.Relu("stem_relu", x)
+	x = b.Flatten("flatten", x, 1)
+	for i := range layers {
+		x = b.Gemm(fmt.Sprintf("fc%d", i), x, 1024, true)
+		x = b.Relu(fmt.Sprintf("relu%d", i), x)
+	}
+	x = b.Reshape("unflatten", x, 0, 4, 16, 16)
+	b.Output(x)
+	return b.Model()
+}
