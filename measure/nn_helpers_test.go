@@ -91,7 +91,9 @@ func (x nnIn) tensor() *model.Tensor {
 }
 
 // Attribute builders.
-func atI(name string, v int64) *model.Attr { return &model.Attr{Name: name, Kind: model.AttrInt, Int: v} }
+func atI(name string, v int64) *model.Attr {
+	return &model.Attr{Name: name, Kind: model.AttrInt, Int: v}
+}
 func atIs(name string, v ...int64) *model.Attr {
 	return &model.Attr{Name: name, Kind: model.AttrInts, Ints: v}
 }
@@ -101,7 +103,9 @@ func atF(name string, v float32) *model.Attr {
 func atFs(name string, v ...float32) *model.Attr {
 	return &model.Attr{Name: name, Kind: model.AttrFloats, Floats: v}
 }
-func atS(name, v string) *model.Attr { return &model.Attr{Name: name, Kind: model.AttrString, String: v} }
+func atS(name, v string) *model.Attr {
+	return &model.Attr{Name: name, Kind: model.AttrString, String: v}
+}
 func atSs(name string, v ...string) *model.Attr {
 	return &model.Attr{Name: name, Kind: model.AttrStrings, Strings: v}
 }
