@@ -74,13 +74,20 @@ func (t *Tensor) Elements() int64 {
 }
 
 // StorageBytes is the size the tensor's values take at their dtype, packed
-// as the standard stores them; -1 when not static (strings).
+// as the standard stores them; -1 when not static (strings) or when the size
+// overflows int64.
 func (t *Tensor) StorageBytes() int64 {
 	n := t.Elements()
-	if n < 0 {
+	bits := int64(t.DType.Bits())
+	switch {
+	case n < 0 || bits == 0:
+		return -1
+	case bits < 8:
+		return n/8*bits + (n%8*bits+7)/8
+	case n > math.MaxInt64/(bits/8):
 		return -1
 	}
-	return t.DType.StorageBytes(n)
+	return n * (bits / 8)
 }
 
 // HasData reports whether values are stored (as opposed to declared only).
@@ -128,34 +135,43 @@ func (t *Tensor) RawBytes() ([]byte, error) {
 		return nil, fmt.Errorf("tensor %q: string tensors have no fixed-size bytes", t.Name)
 	}
 	if want < 0 {
-		return nil, fmt.Errorf("tensor %q: element count overflows", t.Name)
+		return nil, fmt.Errorf("tensor %q: %s values of dims %v have no fixed size", t.Name, t.DType, t.Dims)
 	}
 	vals, err := t.typedValues(-1)
 	if err != nil {
 		return nil, err
 	}
+	width := t.entryBytes()
+	if width == 0 || int64(len(vals))*int64(width) != want {
+		return nil, fmt.Errorf("tensor %q: %d typed entries (encoding %d) do not fill the %d bytes of %s%v", t.Name, len(vals), t.Data.Encoding, want, t.DType, t.Dims)
+	}
 	out := make([]byte, want)
-	bits := t.DType.Bits()
+	var buf [8]byte
 	for i, v := range vals {
-		switch {
-		case bits == 4:
-			// int32_data holds sub-byte types one element per entry.
-			if i/2 < len(out) {
-				out[i/2] |= byte(v.bits&0xF) << (4 * (i % 2))
-			}
-		case bits == 8:
-			out[i] = byte(v.bits)
-		case bits == 16:
-			binary.LittleEndian.PutUint16(out[2*i:], uint16(v.bits))
-		case bits == 32:
-			binary.LittleEndian.PutUint32(out[4*i:], uint32(v.bits))
-		case bits == 64:
-			binary.LittleEndian.PutUint64(out[8*i:], v.bits)
-		case bits == 128:
-			binary.LittleEndian.PutUint64(out[16*i:], v.bits)
-		}
+		binary.LittleEndian.PutUint64(buf[:], v.bits)
+		copy(out[i*width:], buf[:width])
 	}
 	return out, nil
+}
+
+// entryBytes is how many bytes of the tensor's little-endian storage one
+// entry of its typed encoding fills: a complex value takes two entries, and
+// an int32_data entry of a 4-bit type holds one byte of two packed values.
+func (t *Tensor) entryBytes() int {
+	switch t.Data.Encoding {
+	case EncodingFloat32s:
+		return 4
+	case EncodingFloat64s, EncodingInt64s:
+		return 8
+	case EncodingUint64s:
+		return t.DType.Bits() / 8
+	case EncodingInt32s:
+		if t.DType.Bits() == 4 {
+			return 1
+		}
+		return t.DType.Bits() / 8
+	}
+	return 0
 }
 
 // typedValue is one entry of a typed repeated field: its raw bits.
@@ -170,10 +186,14 @@ func (t *Tensor) typedValues(max int64) ([]typedValue, error) {
 	if max >= 0 && n > max {
 		n = max
 	}
-	// Complex values take two entries each.
+	// Complex values take two entries each; 4-bit values pack two to an
+	// int32_data entry.
 	entries := n
-	if t.DType == Complex64 || t.DType == Complex128 {
+	switch {
+	case t.DType == Complex64 || t.DType == Complex128:
 		entries *= 2
+	case t.DType.Bits() == 4:
+		entries = (n + 1) / 2
 	}
 	out := make([]typedValue, 0, min(entries, 1<<20))
 	for _, seg := range t.Data.Segments {
@@ -281,8 +301,14 @@ func readValues[T any](t *Tensor, max int64, fromTyped func(uint64) T, fromLE fu
 		return nil, err
 	}
 	out := make([]T, n)
+	nibbles := t.DType.Bits() == 4
 	for i := range out {
-		bits := vals[i].bits
+		var bits uint64
+		if nibbles {
+			bits = vals[i/2].bits >> (4 * (i % 2)) & 0xF
+		} else {
+			bits = vals[i].bits
+		}
 		if t.Data.Encoding == EncodingInt32s {
 			bits = signExtendTyped(t.DType, bits)
 		}
