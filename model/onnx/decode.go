@@ -113,6 +113,7 @@ func (d *decoder) model() (*model.Model, error) {
 	var nOpset, nMeta, nFunc int
 	hasGraph := false
 	r := d.reader(0, len(d.data))
+	r.names = modelFields
 	var f field
 	for {
 		ok, err := r.next(&f)
@@ -243,6 +244,7 @@ func (d *decoder) graph(lo, hi, depth, off int) (*model.Graph, error) {
 	g := &model.Graph{}
 	var nNode, nInit, nSparse, nIn, nOut, nVI int
 	r := d.reader(lo, hi)
+	r.names = graphFields
 	var f field
 	for {
 		ok, err := r.next(&f)
@@ -351,6 +353,7 @@ func (d *decoder) node(lo, hi, depth int) (*model.Node, error) {
 	n := &model.Node{}
 	nAttr := 0
 	r := d.reader(lo, hi)
+	r.names = nodeFields
 	var f field
 	for {
 		ok, err := r.next(&f)
@@ -412,6 +415,7 @@ func (d *decoder) attr(lo, hi, depth int) (*model.Attr, error) {
 	var seen uint32 // bit per field number that carries a value
 	typ := int32(-1)
 	r := d.reader(lo, hi)
+	r.names = attrFields
 	var f field
 	for {
 		ok, err := r.next(&f)

@@ -5,6 +5,8 @@ import (
 	"fmt"
 	"math"
 	"reflect"
+	"strings"
+	"testing"
 	"unsafe"
 
 	"github.com/loadline/loadline/model"
@@ -18,12 +20,15 @@ import (
 // segment), so packed and unpacked forms of the same values are equal;
 // functions (ExternalData.Load) are ignored.
 func diff(a, b any) string {
-	return diffValue("", reflect.ValueOf(a), reflect.ValueOf(b))
+	return strings.TrimPrefix(diffValue(reflect.ValueOf(a), reflect.ValueOf(b)), ".")
 }
 
 var tensorDataType = reflect.TypeOf(model.TensorData{})
 
-func diffValue(path string, a, b reflect.Value) string {
+// diffValue returns "" or the difference, prefixed by its path below a and
+// b; paths are built only for a difference.
+func diffValue(a, b reflect.Value) string {
+	const path = ""
 	if a.Kind() != b.Kind() {
 		return fmt.Sprintf("%s: kind %s vs %s", path, a.Kind(), b.Kind())
 	}
@@ -35,14 +40,14 @@ func diffValue(path string, a, b reflect.Value) string {
 			}
 			return ""
 		}
-		return diffValue(path, a.Elem(), b.Elem())
+		return diffValue(a.Elem(), b.Elem())
 	case reflect.Struct:
 		if a.Type() == tensorDataType {
-			return diffData(path, a.Interface().(model.TensorData), b.Interface().(model.TensorData))
+			return diffData(a.Interface().(model.TensorData), b.Interface().(model.TensorData))
 		}
 		for i := 0; i < a.NumField(); i++ {
-			if d := diffValue(path+"."+a.Type().Field(i).Name, a.Field(i), b.Field(i)); d != "" {
-				return d
+			if d := diffValue(a.Field(i), b.Field(i)); d != "" {
+				return "." + a.Type().Field(i).Name + d
 			}
 		}
 		return ""
@@ -51,8 +56,8 @@ func diffValue(path string, a, b reflect.Value) string {
 			return fmt.Sprintf("%s: length %d vs %d", path, a.Len(), b.Len())
 		}
 		for i := 0; i < a.Len(); i++ {
-			if d := diffValue(fmt.Sprintf("%s[%d]", path, i), a.Index(i), b.Index(i)); d != "" {
-				return d
+			if d := diffValue(a.Index(i), b.Index(i)); d != "" {
+				return fmt.Sprintf("[%d]", i) + d
 			}
 		}
 		return ""
@@ -65,8 +70,8 @@ func diffValue(path string, a, b reflect.Value) string {
 			if !bv.IsValid() {
 				return fmt.Sprintf("%s[%v]: missing", path, k)
 			}
-			if d := diffValue(fmt.Sprintf("%s[%v]", path, k), a.MapIndex(k), bv); d != "" {
-				return d
+			if d := diffValue(a.MapIndex(k), bv); d != "" {
+				return fmt.Sprintf("[%v]", k) + d
 			}
 		}
 		return ""
@@ -84,7 +89,8 @@ func diffValue(path string, a, b reflect.Value) string {
 	return ""
 }
 
-func diffData(path string, a, b model.TensorData) string {
+func diffData(a, b model.TensorData) string {
+	const path = ""
 	if a.Encoding != b.Encoding {
 		return fmt.Sprintf("%s.Encoding: %d vs %d", path, a.Encoding, b.Encoding)
 	}
@@ -100,7 +106,10 @@ func diffData(path string, a, b model.TensorData) string {
 	} else if !bytes.Equal(bytes.Join(a.Segments, nil), bytes.Join(b.Segments, nil)) {
 		return fmt.Sprintf("%s: values differ", path)
 	}
-	return diffValue(path+".External", reflect.ValueOf(a.External), reflect.ValueOf(b.External))
+	if d := diffValue(reflect.ValueOf(a.External), reflect.ValueOf(b.External)); d != "" {
+		return ".External" + d
+	}
+	return ""
 }
 
 // inside reports whether seg is a sub-slice of data.
@@ -184,3 +193,25 @@ func pbFixed32(num protowire.Number, v uint32) []byte {
 }
 
 func cat(parts ...[]byte) []byte { return bytes.Join(parts, nil) }
+
+// TestDiff checks the comparer the round-trip tests rely on.
+func TestDiff(t *testing.T) {
+	a, b := scratchModel(), scratchModel()
+	if d := diff(a, b); d != "" {
+		t.Fatalf("equal models differ at %s", d)
+	}
+	b.Graph.Nodes[4].Attrs[1].Graph.Outputs[0].Type.Shape[1] = model.Known(33)
+	if d := diff(a, b); !strings.HasPrefix(d, "Graph.Nodes[4].Attrs[1].Graph.Outputs[0].Type.Shape[1].Value") {
+		t.Errorf("diff %q", d)
+	}
+	b = scratchModel()
+	b.Graph.Initializers[1].Data.Segments[0] = []byte{0, 0, 0, 0, 0, 0, 0, 0}
+	if d := diff(a, b); d != "Graph.Initializers[1].Data: values differ" {
+		t.Errorf("diff %q", d)
+	}
+	b = scratchModel()
+	b.Metadata["x"] = "y"
+	if d := diff(a, b); d == "" {
+		t.Error("metadata change not seen")
+	}
+}

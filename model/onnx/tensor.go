@@ -76,14 +76,17 @@ type tensorParts struct {
 	locOff   int
 	ext      map[string]string
 	extOff   int
+	negDim   int // index of the first negative dim, or -1
+	negOff   int
 }
 
 // TensorProto; off is the offset of the field that holds it.
 func (d *decoder) tensor(lo, hi, off int) (*model.Tensor, error) {
 	t := &model.Tensor{}
-	var p tensorParts
+	p := tensorParts{negDim: -1}
 	p.dtypeOff, p.encOff, p.rawOff, p.locOff, p.extOff = off, off, off, off, off
 	r := d.reader(lo, hi)
+	r.names = tensorFields
 	var f field
 	for {
 		ok, err := r.next(&f)
@@ -97,10 +100,9 @@ func (d *decoder) tensor(lo, hi, off int) (*model.Tensor, error) {
 		case 1:
 			start := len(t.Dims)
 			t.Dims, err = d.appendInt64s(t.Dims, &f, indexed("dims", start))
-			for i := start; err == nil && i < len(t.Dims); i++ {
+			for i := start; err == nil && i < len(t.Dims) && p.negDim < 0; i++ {
 				if t.Dims[i] < 0 {
-					err = &DecodeError{Path: d.path, Field: indexed("dims", i), Offset: f.off,
-						Err: fmt.Errorf("tensor dimension %d is negative", t.Dims[i])}
+					p.negDim, p.negOff = i, f.off // reported once the name is known
 				}
 			}
 		case 2:
@@ -138,13 +140,34 @@ func (d *decoder) tensor(lo, hi, off int) (*model.Tensor, error) {
 			p.locOff = f.off
 		}
 		if err != nil {
-			return nil, err
+			return nil, d.nameTensor(err, lo, hi)
 		}
 	}
 	if err := d.checkTensor(t, &p, off); err != nil {
 		return nil, err
 	}
 	return t, nil
+}
+
+// nameTensor adds the tensor's name to an error found before its name field
+// was read: a second, forgiving pass looks for TensorProto.name.
+func (d *decoder) nameTensor(err error, lo, hi int) error {
+	de, ok := err.(*DecodeError)
+	if !ok {
+		return err
+	}
+	r := d.reader(lo, hi)
+	var f field
+	for {
+		ok, e := r.next(&f)
+		if e != nil || !ok {
+			return err // no name to add
+		}
+		if f.num == 8 && f.typ == protowire.BytesType {
+			de.Err = fmt.Errorf("tensor %q: %w", d.data[f.lo:f.hi], de.Err)
+			return err
+		}
+	}
 }
 
 // typedValues adds one occurrence of a typed repeated field: a packed run
@@ -222,6 +245,9 @@ func (d *decoder) checkTensor(t *model.Tensor, p *tensorParts, off int) error {
 	fail := func(field string, off int, format string, args ...any) error {
 		return &DecodeError{Path: d.path, Field: field, Offset: off,
 			Err: fmt.Errorf("tensor %q: %s", t.Name, fmt.Sprintf(format, args...))}
+	}
+	if p.negDim >= 0 {
+		return fail(indexed("dims", p.negDim), p.negOff, "dimension %d is negative", t.Dims[p.negDim])
 	}
 	dt := model.DType(p.dtype)
 	switch {

@@ -21,9 +21,32 @@ type field struct {
 type reader struct {
 	d        *decoder
 	pos, end int
+	names    fieldNames // for error messages; may be nil
+	top      bool       // the outermost message: the whole input
 }
 
-func (d *decoder) reader(lo, hi int) reader { return reader{d: d, pos: lo, end: hi} }
+// fieldNames names a message's fields, as onnx.proto does.
+type fieldNames map[protowire.Number]string
+
+var (
+	modelFields  = fieldNames{1: "ir_version", 2: "producer_name", 3: "producer_version", 4: "domain", 5: "model_version", 6: "doc_string", 7: "graph", 8: "opset_import", 14: "metadata_props", 20: "training_info", 25: "functions"}
+	graphFields  = fieldNames{1: "node", 2: "name", 5: "initializer", 10: "doc_string", 11: "input", 12: "output", 13: "value_info", 14: "quantization_annotation", 15: "sparse_initializer", 16: "metadata_props"}
+	nodeFields   = fieldNames{1: "input", 2: "output", 3: "name", 4: "op_type", 5: "attribute", 6: "doc_string", 7: "domain"}
+	attrFields   = fieldNames{1: "name", 2: "f", 3: "i", 4: "s", 5: "t", 6: "g", 7: "floats", 8: "ints", 9: "strings", 10: "tensors", 11: "graphs", 13: "doc_string", 14: "tp", 15: "type_protos", 20: "type", 21: "ref_attr_name", 22: "sparse_tensor", 23: "sparse_tensors"}
+	tensorFields = fieldNames{1: "dims", 2: "data_type", 3: "segment", 4: "float_data", 5: "int32_data", 6: "string_data", 7: "int64_data", 8: "name", 9: "raw_data", 10: "double_data", 11: "uint64_data", 12: "doc_string", 13: "external_data", 14: "data_location"}
+)
+
+func (d *decoder) reader(lo, hi int) reader {
+	return reader{d: d, pos: lo, end: hi, top: lo == 0 && hi == len(d.data)}
+}
+
+// fieldName is "7 (graph)" when the field is known, else "7".
+func (r *reader) fieldName(num protowire.Number) string {
+	if name, ok := r.names[num]; ok {
+		return fmt.Sprintf("%d (%s)", num, name)
+	}
+	return fmt.Sprint(num)
+}
 
 // next reads the next field into f. It returns false at the end of the
 // message. Lengths are checked against what is left of the message, so a
@@ -45,30 +68,36 @@ func (r *reader) next(f *field) (bool, error) {
 	case protowire.VarintType:
 		f.v, m = protowire.ConsumeVarint(b)
 		if m < 0 {
-			return false, r.d.errAt(off, "bad varint in field %d: %v", num, protowire.ParseError(m))
+			return false, r.d.errAt(off, "bad varint in field %s: %v", r.fieldName(num), protowire.ParseError(m))
 		}
 		f.lo, f.hi = r.pos+n, r.pos+n+m
 	case protowire.Fixed32Type:
 		var v uint32
 		v, m = protowire.ConsumeFixed32(b)
 		if m < 0 {
-			return false, r.d.errAt(off, "truncated fixed32 field %d", num)
+			return false, r.d.errAt(off, "truncated fixed32 field %s", r.fieldName(num))
 		}
 		f.v = uint64(v)
 		f.lo, f.hi = r.pos+n, r.pos+n+m
 	case protowire.Fixed64Type:
 		f.v, m = protowire.ConsumeFixed64(b)
 		if m < 0 {
-			return false, r.d.errAt(off, "truncated fixed64 field %d", num)
+			return false, r.d.errAt(off, "truncated fixed64 field %s", r.fieldName(num))
 		}
 		f.lo, f.hi = r.pos+n, r.pos+n+m
 	case protowire.BytesType:
 		l, k := protowire.ConsumeVarint(b)
 		if k < 0 {
-			return false, r.d.errAt(off, "bad length of length-delimited field %d: %v", num, protowire.ParseError(k))
+			return false, r.d.errAt(off, "bad length of length-delimited field %s: %v", r.fieldName(num), protowire.ParseError(k))
 		}
 		if l > uint64(len(b)-k) {
-			return false, r.d.errAt(off, "truncated length-delimited field %d (length %d, %d bytes left)", num, l, len(b)-k)
+			hint := ""
+			if r.top {
+				// Only the outermost message can run past a cut file; a
+				// nested length that overruns its message is corruption.
+				hint = "; the file may be truncated"
+			}
+			return false, r.d.errAt(off, "truncated length-delimited field %s: length %d, %d bytes left%s", r.fieldName(num), l, len(b)-k, hint)
 		}
 		f.lo = r.pos + n + k
 		f.hi = f.lo + int(l)
