@@ -154,16 +154,35 @@ func foldReduce(in *Value, reduced []bool, fold reduceFold) *Data {
 	filled := make([]bool, outN)
 	switch in.Const.kind() {
 	case 'i':
-		acc := make([]model.Dim, outN)
+		// Known entries and symbols accumulate apart and meet at the end,
+		// so a shape's element count reads "N*12", not "(N*3)*4" (every
+		// folded operator is commutative).
+		known := make([]model.Dim, outN)
+		syms := make([]model.Dim, outN)
+		hasSym := make([]bool, outN)
 		for k, t := range target {
-			if filled[t] {
-				acc[t] = fold.ints(acc[t], in.Const.Ints[k])
-			} else {
-				acc[t], filled[t] = in.Const.Ints[k], true
+			d := in.Const.Ints[k]
+			switch {
+			case !d.IsKnown() && hasSym[t]:
+				syms[t] = fold.ints(syms[t], d)
+			case !d.IsKnown():
+				syms[t], hasSym[t] = d, true
+			case filled[t]:
+				known[t] = fold.ints(known[t], d)
+			default:
+				known[t], filled[t] = d, true
 			}
 		}
+		acc := make([]model.Dim, outN)
 		for t := range acc {
-			if !filled[t] {
+			switch {
+			case hasSym[t] && filled[t]:
+				acc[t] = fold.ints(syms[t], known[t])
+			case hasSym[t]:
+				acc[t] = syms[t]
+			case filled[t]:
+				acc[t] = known[t]
+			default:
 				acc[t] = model.Known(int64(*fold.empty))
 			}
 		}
