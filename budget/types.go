@@ -1,0 +1,199 @@
+// Package budget reads loadline.yaml, the team's budget file, and judges
+// measured figures against it: per device, what a model may use and how
+// fast it may grow. It knows nothing of ONNX or git; it is given figures.
+package budget
+
+import "time"
+
+// Metric names, as the budget file and every report spell them.
+const (
+	MetricFile    = "file"    // model file bytes
+	MetricParams  = "params"  // parameter count
+	MetricWeights = "weights" // parameter bytes
+	MetricMACs    = "macs"    // multiply-accumulates
+	MetricFLOPs   = "flops"   // floating-point operations
+	MetricArena   = "arena"   // deployed activation arena bytes
+	MetricRAM     = "ram"     // arena + weights when the device keeps weights in RAM
+	MetricFlash   = "flash"   // bytes stored in flash
+)
+
+// Metrics lists every metric key in report order.
+var Metrics = []string{MetricRAM, MetricFlash, MetricArena, MetricWeights, MetricParams, MetricMACs, MetricFLOPs, MetricFile}
+
+// Figures are one model's measured figures, as the budget needs them. The
+// JSON keys are those of a loadline.measure/v1 entry, plus ram and flash as
+// the budget computed them for the model's device.
+type Figures struct {
+	FileBytes  int64         `json:"file_bytes"`
+	Params     int64         `json:"params"`
+	ParamBytes int64         `json:"param_bytes"`
+	MACs       int64         `json:"macs"`
+	FLOPs      int64         `json:"flops"`
+	Memory     MemoryFigures `json:"memory"`
+	RAM        int64         `json:"ram"`
+	Flash      int64         `json:"flash"`
+	// Unknown lists metric keys whose value could not be computed
+	// (unresolved shapes), with the reason; such a metric is not judged as
+	// a number but reported.
+	Unknown map[string]string `json:"unknown,omitempty"`
+}
+
+// MemoryFigures are activation memory in the graph view and the deployed
+// view, as loadline.measure/v1 names them.
+type MemoryFigures struct {
+	Graph    MemoryView `json:"graph"`
+	Deployed MemoryView `json:"deployed"`
+}
+
+// MemoryView is one view's peak live bytes (lower bound) and planned arena.
+type MemoryView struct {
+	PeakLiveBytes int64 `json:"peak_live_bytes"`
+	ArenaBytes    int64 `json:"arena_bytes"`
+}
+
+// Value returns the figure a metric key names; ok is false for unknown keys
+// or figures listed in Unknown.
+func (f *Figures) Value(metric string) (v int64, ok bool) {
+	if f == nil {
+		return 0, false
+	}
+	if _, unknown := f.Unknown[metric]; unknown {
+		return 0, false
+	}
+	switch metric {
+	case MetricFile:
+		return f.FileBytes, true
+	case MetricParams:
+		return f.Params, true
+	case MetricWeights:
+		return f.ParamBytes, true
+	case MetricMACs:
+		return f.MACs, true
+	case MetricFLOPs:
+		return f.FLOPs, true
+	case MetricArena:
+		return f.Memory.Deployed.ArenaBytes, true
+	case MetricRAM:
+		return f.RAM, true
+	case MetricFlash:
+		return f.Flash, true
+	}
+	return 0, false
+}
+
+// Status is the verdict of one check.
+type Status string
+
+// The statuses a check can have; the overall verdict is the worst of pass,
+// warn, fail (waived counts as pass with a note).
+const (
+	Pass   Status = "pass"
+	Warn   Status = "warn"
+	Fail   Status = "fail"
+	Waived Status = "waived"
+)
+
+// Check is one metric of one model judged against one limit.
+type Check struct {
+	Metric string `json:"metric"`
+	Value  int64  `json:"value"`
+	// Base is the figure on the base revision; nil for an added model.
+	Base *int64 `json:"base"`
+	// Limit is the absolute limit in force (for growth checks, the largest
+	// allowed head value); nil when the check is a growth check without base.
+	Limit *int64 `json:"limit"`
+	// Kind says which rule produced the check: "limit" or "growth".
+	Kind     string `json:"kind"`
+	Status   Status `json:"status"`
+	Reason   string `json:"reason"`
+	Headroom *int64 `json:"headroom,omitempty"` // limit − value
+	Delta    *int64 `json:"delta,omitempty"`    // value − base
+	// Waiver is set when a waiver turned a failure into Waived.
+	Waiver *Waiver `json:"waiver,omitempty"`
+}
+
+// Change says how a model changed between base and head.
+type Change string
+
+// The kinds of change.
+const (
+	Added     Change = "added"
+	Modified  Change = "modified"
+	Removed   Change = "removed"
+	Renamed   Change = "renamed"
+	Unchanged Change = "unchanged"
+)
+
+// ModelResult is one model's verdict.
+type ModelResult struct {
+	Path    string   `json:"path"`
+	OldPath string   `json:"old_path,omitempty"` // for renames
+	Change  Change   `json:"change"`
+	Device  string   `json:"device,omitempty"`
+	Rule    string   `json:"rule,omitempty"` // the matching rule's path glob
+	Base    *Figures `json:"base"`
+	Head    *Figures `json:"head"`
+	Checks  []Check  `json:"checks"`
+	Status  Status   `json:"status"`
+	// Unbudgeted is set when no rule matches the model.
+	Unbudgeted bool `json:"unbudgeted,omitempty"`
+	// Error is set when the model could not be measured.
+	Error string `json:"error,omitempty"`
+	// Detail carries optional per-layer data for renderers (top layers,
+	// live memory over steps); renderers must cope with it being nil.
+	Detail *Detail `json:"-"`
+}
+
+// Detail is per-layer information for a model's collapsible report section.
+type Detail struct {
+	TopMACs   []Layer `json:"top_macs,omitempty"`
+	TopMemory []Layer `json:"top_memory,omitempty"`
+	// LiveBytes is the live activation bytes at each step (graph view),
+	// for a one-line picture of memory over the schedule.
+	LiveBytes []int64 `json:"live_bytes,omitempty"`
+	PeakStep  int     `json:"peak_step"`
+}
+
+// Layer is one node's contribution.
+type Layer struct {
+	Node  string `json:"node"`
+	Op    string `json:"op"`
+	Value int64  `json:"value"`
+}
+
+// Waiver excuses one metric of one model until a date.
+type Waiver struct {
+	Path   string    `json:"path"`
+	Metric string    `json:"metric"`
+	Until  time.Time `json:"until"`
+	Reason string    `json:"reason"`
+	Line   int       `json:"line"`
+}
+
+// BudgetChange is one difference between the base's and the head's budget
+// file, listed in reports so a reviewer sees a loosened gate.
+type BudgetChange struct {
+	Key      string `json:"key"` // e.g. devices.porch-cam.ram, models[0].limits.macs
+	Old      string `json:"old"`
+	New      string `json:"new"`
+	Loosened bool   `json:"loosened"`
+}
+
+// Revision names one side of a change.
+type Revision struct {
+	Ref    string `json:"ref"`    // as the user or CI named it ("origin/main", "HEAD", "index")
+	Commit string `json:"commit"` // full hash, empty for the index or plain files
+}
+
+// Result is the whole judgement of one change.
+type Result struct {
+	Base          Revision       `json:"base"`
+	Head          Revision       `json:"head"`
+	Verdict       Status         `json:"verdict"`
+	Models        []ModelResult  `json:"models"`
+	BudgetChanges []BudgetChange `json:"budget_changes"`
+	Waivers       []Waiver       `json:"waivers"` // waivers in force
+	// Problems are budget-file findings that do not stop evaluation
+	// (an expired waiver, a model matched by no rule).
+	Problems []string `json:"problems"`
+}
