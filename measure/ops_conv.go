@@ -117,7 +117,9 @@ func (w *window) outDim(in model.Dim, i int) (model.Dim, error) {
 	ek := w.effKernel(i)
 	if w.autoPad == "SAME_UPPER" || w.autoPad == "SAME_LOWER" {
 		// The padding is whatever makes ceil(in/s) windows fit, so the
-		// kernel size does not enter the output size.
+		// kernel size does not enter the output size. (With ceil_mode,
+		// ONNX 1.12's infer_shapes can count one window more, one that
+		// starts past the input; see the ceil_mode rule below.)
 		return dimCeilDiv(in, model.Known(s)), nil
 	}
 	pb, pe := w.pads[i], w.pads[i+len(w.kernel)]
@@ -144,8 +146,9 @@ func (w *window) outDim(in model.Dim, i int) (model.Dim, error) {
 	}
 	out := -floorDiv(-(padded-ek), s) + 1
 	// With ceil_mode a last window that would start inside the end padding
-	// is dropped (it would see padding only); onnxruntime and PyTorch do so
-	// and the ONNX pooling specs say so since ONNX 1.16.
+	// is dropped: "sliding windows that would start in the right padded
+	// region are ignored" (pooling specs since ONNX 1.16, onnx/onnx#5741,
+	// matching PyTorch). ONNX 1.12's infer_shapes still counts it.
 	if (out-1)*s >= in.Value+pb {
 		out--
 	}
@@ -257,7 +260,11 @@ func inferQLinearConv(c *ctx) ([]*Value, error) {
 //	out[i] = stride*(in-1) + output_padding + ((k-1)*d+1) - pad_begin - pad_end
 //
 // or in*stride with SAME_* auto_pad, or the output_shape attribute when set.
-// Output channels are W's dim 1 times group.
+// Output channels are W's dim 1 times group. For SAME_*, ONNX 1.12's
+// infer_shapes pads by max(0, kernel-stride) instead, which departs from
+// in*stride when the kernel is smaller than the stride or output_padding
+// is set; the spec, its reference implementation and onnxruntime give
+// in*stride, and so does this rule.
 func inferConvTranspose(c *ctx) ([]*Value, error) {
 	xs, err := c.shape(0)
 	if err != nil {
