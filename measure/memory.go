@@ -1,0 +1,471 @@
+package measure
+
+import (
+	"fmt"
+	"sort"
+
+	"github.com/loadline/loadline/model"
+)
+
+// Activation memory, graph view. Definition (DESIGN.md "Metric conventions",
+// README "Conventions", `loadline measure --help`):
+//
+//   - The schedule is the file's node order: step i is node i.
+//   - Every non-constant tensor is counted: graph inputs and node outputs,
+//     not initializers and not tensors whose values are known statically
+//     (Value.Const != nil or Value.Weight, and the outputs of a node whose
+//     every input is itself known statically, such as the DequantizeLinear
+//     of an int8 weight: a runtime folds it once, at load time).
+//   - A tensor is live from its producer's step (graph inputs: step 0)
+//     through its last consumer's step (graph outputs: the last step),
+//     inclusive. A tensor nobody consumes and that is no graph output is
+//     live at its producer's step only. A value a subgraph reads from the
+//     enclosing graph counts as consumed by the control-flow node.
+//   - A tensor's size is its elements × its dtype's storage bytes. A tensor
+//     whose size is not static (symbolic or unknown shape, strings,
+//     sequences) is left out and listed as unresolved, so that an
+//     incomplete figure says so rather than counting it as zero.
+//   - Subgraph bodies (If, Loop, Scan): the body's own graph-view peak is
+//     added at the control-flow node's step (for If, the larger branch's),
+//     and in the arena the body is one block of its own arena size live at
+//     that step. Loop iterations reuse one body's memory.
+//
+// peak_live_bytes is the largest sum of live bytes at one step: the lower
+// bound for any allocator running this schedule. arena_bytes is the size of
+// the arena that greedy-by-size offset planning (Pisarchyk & Lee 2020,
+// "Efficient Memory Management for Deep Neural Net Inference") lays out; it
+// is at least the peak, since the tensors live at the peak step occupy
+// disjoint bytes of it.
+
+// Lifetime is a tensor's size in bytes and the steps through which it is
+// live, First through Last inclusive.
+type Lifetime struct {
+	Name        string
+	Size        int64
+	First, Last int
+}
+
+// Placement is a tensor's place in the planned arena: bytes Offset through
+// Offset+Size-1, for steps First through Last.
+type Placement struct {
+	Name         string
+	Size, Offset int64
+	First, Last  int
+}
+
+// MemoryPlan is the graph view of a graph's activation memory.
+type MemoryPlan struct {
+	// PeakLiveBytes is the largest sum of live bytes at one step.
+	PeakLiveBytes int64
+	// ArenaBytes is the size of the greedy-by-size arena.
+	ArenaBytes int64
+	// PeakStep is the first step at which PeakLiveBytes is reached.
+	PeakStep int
+	// LiveAtPeak names the tensors live at PeakStep, in the order they
+	// become live (a subgraph body appears as "node (subgraph)").
+	LiveAtPeak []string
+	// Placements gives every counted tensor's offset in the arena, graph
+	// inputs first, then node outputs in step order.
+	Placements []Placement
+	// LiveBytesByStep is the sum of live bytes at each step.
+	LiveBytesByStep []int64
+	// Unresolved lists the tensors left out because their size is not
+	// static; when it is not empty the figures are lower bounds.
+	Unresolved []Unresolved
+}
+
+// Ratio is ArenaBytes / PeakLiveBytes, the planner's overhead over the
+// lower bound; 1 when the peak is zero.
+func (p *MemoryPlan) Ratio() float64 {
+	if p.PeakLiveBytes == 0 {
+		return 1
+	}
+	return float64(p.ArenaBytes) / float64(p.PeakLiveBytes)
+}
+
+// maxTensorBytes bounds a single tensor's size; anything larger is listed
+// as unresolved, which keeps sums of sizes far from overflowing int64.
+const maxTensorBytes = 1 << 50
+
+// randomOps produce fresh values on every run even from static inputs.
+var randomOps = map[string]bool{
+	"RandomNormal": true, "RandomNormalLike": true, "RandomUniform": true,
+	"RandomUniformLike": true, "Multinomial": true, "Bernoulli": true,
+}
+
+// PlanMemory computes the graph view of the activation memory of the
+// inferred model's main graph.
+func PlanMemory(inf *Inference) *MemoryPlan {
+	return planGraph(inf.Model.Graph, inf.Values, inf.Subgraphs, 0)
+}
+
+// tensorRec is what planGraph learns of one tensor while walking the nodes.
+type tensorRec struct {
+	name        string
+	first, last int
+	producer    int // node index, -1 for a graph input
+}
+
+func planGraph(g *model.Graph, vals map[string]*Value, subs map[*model.Graph]map[string]*Value, depth int) *MemoryPlan {
+	plan := &MemoryPlan{}
+	steps := max(1, len(g.Nodes))
+	lastStep := steps - 1
+
+	static := map[string]bool{}
+	for _, t := range g.Initializers {
+		static[t.Name] = true
+	}
+	for _, sp := range g.Sparse {
+		if sp.Values != nil {
+			static[sp.Values.Name] = true
+		}
+	}
+	isStatic := func(name string) bool {
+		if static[name] {
+			return true
+		}
+		v := vals[name]
+		return v != nil && (v.Const != nil || v.Weight)
+	}
+
+	recs := map[string]*tensorRec{}
+	var order []*tensorRec
+	add := func(name string, step, producer int) {
+		r := &tensorRec{name: name, first: step, last: step, producer: producer}
+		if old := recs[name]; old != nil {
+			// A name defined twice (not valid ONNX): the later definition
+			// wins; the earlier one ends where it was redefined.
+			old.last = max(old.last, step)
+		}
+		recs[name] = r
+		order = append(order, r)
+	}
+	for _, in := range g.Inputs {
+		if in.Name == "" || isStatic(in.Name) {
+			continue
+		}
+		add(in.Name, 0, -1)
+	}
+
+	bodyPeak := map[int]int64{}
+	bodyArena := map[int]int64{}
+	for i, n := range g.Nodes {
+		for _, name := range n.Inputs {
+			if r := recs[name]; r != nil && name != "" {
+				r.last = i
+			}
+		}
+		hasBody := false
+		for _, a := range n.Attrs {
+			bodies := a.Graphs
+			if a.Graph != nil {
+				bodies = append([]*model.Graph{a.Graph}, bodies...)
+			}
+			for _, body := range bodies {
+				if body == nil {
+					continue
+				}
+				hasBody = true
+				forEachNestedInput(body, func(name string) {
+					if r := recs[name]; r != nil {
+						r.last = i
+					}
+				})
+				if depth >= maxGraphDepth {
+					plan.Unresolved = append(plan.Unresolved, Unresolved{Node: nodeLabel(n, i), Op: n.Op, Reason: "memory unknown: subgraphs nest too deep"})
+					continue
+				}
+				bv := subs[body]
+				if bv == nil {
+					plan.Unresolved = append(plan.Unresolved, Unresolved{Node: nodeLabel(n, i), Op: n.Op, Reason: fmt.Sprintf("memory unknown: subgraph %q was not inferred", body.Name)})
+					continue
+				}
+				bp := planGraph(body, bv, subs, depth+1)
+				bodyPeak[i] = max(bodyPeak[i], bp.PeakLiveBytes)
+				bodyArena[i] = max(bodyArena[i], bp.ArenaBytes)
+				plan.Unresolved = append(plan.Unresolved, bp.Unresolved...)
+			}
+		}
+		fold := !hasBody && !randomOps[n.Op]
+		inputs := 0
+		for _, name := range n.Inputs {
+			if name == "" {
+				continue
+			}
+			inputs++
+			if !isStatic(name) {
+				fold = false
+			}
+		}
+		fold = fold && inputs > 0
+		for _, name := range n.Outputs {
+			if name == "" {
+				continue
+			}
+			if fold || isStatic(name) {
+				static[name] = true
+				continue
+			}
+			add(name, i, i)
+		}
+	}
+	for _, o := range g.Outputs {
+		if r := recs[o.Name]; r != nil {
+			r.last = lastStep
+		}
+	}
+
+	var lts []Lifetime
+	for _, r := range order {
+		size, reason := tensorBytes(vals[r.name])
+		if reason != "" {
+			u := Unresolved{Node: r.name, Reason: fmt.Sprintf("memory unknown: %s (tensor %q)", reason, r.name)}
+			if r.producer >= 0 {
+				n := g.Nodes[r.producer]
+				u.Node, u.Op = nodeLabel(n, r.producer), n.Op
+			}
+			plan.Unresolved = append(plan.Unresolved, u)
+			continue
+		}
+		lts = append(lts, Lifetime{Name: r.name, Size: size, First: r.first, Last: r.last})
+	}
+
+	// Live bytes per step: a difference array over the steps.
+	diff := make([]int64, steps+1)
+	for _, lt := range lts {
+		diff[lt.First] += lt.Size
+		diff[lt.Last+1] -= lt.Size
+	}
+	plan.LiveBytesByStep = make([]int64, steps)
+	var run int64
+	for s := range steps {
+		run += diff[s]
+		plan.LiveBytesByStep[s] = run + bodyPeak[s]
+	}
+	for s, b := range plan.LiveBytesByStep {
+		if b > plan.PeakLiveBytes {
+			plan.PeakLiveBytes, plan.PeakStep = b, s
+		}
+	}
+
+	// Subgraph bodies enter the arena as one block each.
+	for i, n := range g.Nodes {
+		if b, ok := bodyArena[i]; ok {
+			lts = append(lts, Lifetime{Name: nodeLabel(n, i) + " (subgraph)", Size: b, First: i, Last: i})
+		}
+	}
+	plan.Placements, plan.ArenaBytes = PlanArena(lts)
+	live := []Placement{}
+	for _, p := range plan.Placements {
+		if p.First <= plan.PeakStep && plan.PeakStep <= p.Last {
+			live = append(live, p)
+		}
+	}
+	sort.SliceStable(live, func(a, b int) bool { return live[a].First < live[b].First })
+	for _, p := range live {
+		plan.LiveAtPeak = append(plan.LiveAtPeak, p.Name)
+	}
+	return plan
+}
+
+// forEachNestedInput calls fn with every input name read by a node of g or
+// of a subgraph nested in it. Names the body defines itself are included
+// too; the caller looks only for names of the enclosing graph, so at worst
+// a body that shadows an outer name keeps the outer tensor live a little
+// longer.
+func forEachNestedInput(g *model.Graph, fn func(string)) {
+	for _, n := range g.Nodes {
+		for _, name := range n.Inputs {
+			if name != "" {
+				fn(name)
+			}
+		}
+		for _, a := range n.Attrs {
+			if a.Graph != nil {
+				forEachNestedInput(a.Graph, fn)
+			}
+			for _, sg := range a.Graphs {
+				if sg != nil {
+					forEachNestedInput(sg, fn)
+				}
+			}
+		}
+	}
+	for _, o := range g.Outputs {
+		fn(o.Name) // a body may pass an outer value straight through
+	}
+}
+
+// nodeLabel names a node in messages: its name, else op#index.
+func nodeLabel(n *model.Node, i int) string {
+	if n.Name != "" {
+		return n.Name
+	}
+	return fmt.Sprintf("%s#%d", n.Op, i)
+}
+
+// tensorBytes is the storage size of a value, or why it cannot be known.
+func tensorBytes(v *Value) (int64, string) {
+	switch {
+	case v == nil:
+		return 0, "type unknown"
+	case v.Absent:
+		return 0, ""
+	case v.Type.Kind == model.KindSequence || v.Type.Kind == model.KindMap || v.Type.Kind == model.KindOptional:
+		return 0, fmt.Sprintf("a %s has no static size", v.Type.Kind)
+	case !v.Type.RankKnown:
+		return 0, "shape unknown"
+	}
+	n, ok := v.Type.Shape.Elements()
+	if !ok {
+		if !v.Type.Shape.AllKnown() {
+			return 0, fmt.Sprintf("shape %s symbolic", v.Type.Shape)
+		}
+		return 0, fmt.Sprintf("shape %s overflows", v.Type.Shape)
+	}
+	if n > maxTensorBytes {
+		return 0, fmt.Sprintf("shape %s implausibly large", v.Type.Shape)
+	}
+	b := v.Type.DType.StorageBytes(n)
+	if b < 0 {
+		return 0, fmt.Sprintf("dtype %s has no static size", v.Type.DType)
+	}
+	if b > maxTensorBytes {
+		return 0, fmt.Sprintf("shape %s implausibly large", v.Type.Shape)
+	}
+	return b, ""
+}
+
+// PlanArena lays tensors out in one arena by greedy-by-size offset planning
+// (Pisarchyk & Lee 2020): tensors sorted by size, largest first (ties by
+// First, then Name, then Last, then position), each placed in the smallest
+// gap between the already placed tensors whose lifetimes overlap its own
+// that fits it (the lowest such gap on a tie), or else just above the
+// highest of them. placements[i] is tensors[i]'s place; arena is the end of
+// the highest placed byte. A negative Size counts as zero; a Lifetime whose
+// Last is before its First is live at First only.
+//
+// The overlapping tensors are found with a segment tree over the steps, so
+// planning n tensors costs O(n log n + Σ k log k), k the number of placed
+// tensors a tensor's lifetime overlaps, rather than O(n²).
+func PlanArena(tensors []Lifetime) (placements []Placement, arena int64) {
+	n := len(tensors)
+	placements = make([]Placement, n)
+	if n == 0 {
+		return placements, 0
+	}
+	lo, hi := tensors[0].First, tensors[0].First
+	for i, t := range tensors {
+		last := max(t.Last, t.First)
+		placements[i] = Placement{Name: t.Name, Size: max(t.Size, 0), First: t.First, Last: last}
+		lo, hi = min(lo, t.First), max(hi, last)
+	}
+	idx := make([]int, n)
+	for i := range idx {
+		idx[i] = i
+	}
+	sort.Slice(idx, func(a, b int) bool {
+		x, y := &placements[idx[a]], &placements[idx[b]]
+		switch {
+		case x.Size != y.Size:
+			return x.Size > y.Size
+		case x.First != y.First:
+			return x.First < y.First
+		case x.Name != y.Name:
+			return x.Name < y.Name
+		case x.Last != y.Last:
+			return x.Last < y.Last
+		}
+		return idx[a] < idx[b]
+	})
+
+	tree := newStepTree(hi - lo + 1)
+	stamp := make([]int, n) // stamp[j] == q+1: tensor j already met in query q
+	var cand []int32
+	for q, i := range idx {
+		p := &placements[i]
+		a, b := p.First-lo, p.Last-lo
+		cand = cand[:0]
+		tree.query(a, b, func(j int32) {
+			if stamp[j] != q+1 {
+				stamp[j] = q + 1
+				cand = append(cand, j)
+			}
+		})
+		sort.Slice(cand, func(x, y int) bool {
+			px, py := &placements[cand[x]], &placements[cand[y]]
+			if px.Offset != py.Offset {
+				return px.Offset < py.Offset
+			}
+			return cand[x] < cand[y]
+		})
+		var prevEnd int64
+		best, bestGap := int64(-1), int64(-1)
+		for _, j := range cand {
+			o := &placements[j]
+			if gap := o.Offset - prevEnd; gap >= p.Size && (bestGap < 0 || gap < bestGap) {
+				best, bestGap = prevEnd, gap
+			}
+			prevEnd = max(prevEnd, o.Offset+o.Size)
+		}
+		if best < 0 {
+			best = prevEnd
+		}
+		p.Offset = best
+		arena = max(arena, p.Offset+p.Size)
+		tree.insert(a, b, int32(i))
+	}
+	return placements, arena
+}
+
+// stepTree is a segment tree over steps 0..size-1 holding intervals of
+// steps. An interval is stored in cover at each node of its canonical
+// decomposition and in part at each proper ancestor of those nodes, so that
+// the intervals meeting a query are those in cover or part of the query's
+// canonical nodes plus those in cover of their ancestors.
+type stepTree struct {
+	size        int
+	cover, part [][]int32
+}
+
+func newStepTree(size int) *stepTree {
+	return &stepTree{size: size, cover: make([][]int32, 4*size), part: make([][]int32, 4*size)}
+}
+
+func (t *stepTree) insert(a, b int, id int32) { t.ins(1, 0, t.size-1, a, b, id) }
+
+func (t *stepTree) ins(node, l, r, a, b int, id int32) {
+	if b < l || r < a {
+		return
+	}
+	if a <= l && r <= b {
+		t.cover[node] = append(t.cover[node], id)
+		return
+	}
+	t.part[node] = append(t.part[node], id)
+	mid := (l + r) / 2
+	t.ins(2*node, l, mid, a, b, id)
+	t.ins(2*node+1, mid+1, r, a, b, id)
+}
+
+// query calls fn for every stored interval that meets [a, b], some more
+// than once.
+func (t *stepTree) query(a, b int, fn func(int32)) { t.q(1, 0, t.size-1, a, b, fn) }
+
+func (t *stepTree) q(node, l, r, a, b int, fn func(int32)) {
+	if b < l || r < a {
+		return
+	}
+	for _, id := range t.cover[node] {
+		fn(id)
+	}
+	if a <= l && r <= b {
+		for _, id := range t.part[node] {
+			fn(id)
+		}
+		return
+	}
+	mid := (l + r) / 2
+	t.q(2*node, l, mid, a, b, fn)
+	t.q(2*node+1, mid+1, r, a, b, fn)
+}

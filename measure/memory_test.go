@@ -1,0 +1,499 @@
+package measure
+
+import (
+	"fmt"
+	"math/rand"
+	"reflect"
+	"sort"
+	"testing"
+
+	"github.com/loadline/loadline/model"
+	"github.com/loadline/loadline/model/build"
+)
+
+// planBuilt infers a built model and plans its memory.
+func planBuilt(t testing.TB, m *model.Model, err error) *MemoryPlan {
+	t.Helper()
+	if err != nil {
+		t.Fatal(err)
+	}
+	inf, err := Infer(m, InferOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return PlanMemory(inf)
+}
+
+// checkPlacements is the independent checker: brute force over all pairs,
+// no two tensors whose lifetimes overlap share a byte, and every tensor
+// lies inside the arena.
+func checkPlacements(t *testing.T, ps []Placement, arena int64) {
+	t.Helper()
+	for i, p := range ps {
+		if p.Offset < 0 || p.Offset+p.Size > arena {
+			t.Fatalf("%s at [%d,%d) outside arena %d", p.Name, p.Offset, p.Offset+p.Size, arena)
+		}
+		for _, o := range ps[i+1:] {
+			timeOverlap := p.First <= o.Last && o.First <= p.Last
+			byteOverlap := p.Size > 0 && o.Size > 0 && p.Offset < o.Offset+o.Size && o.Offset < p.Offset+p.Size
+			if timeOverlap && byteOverlap {
+				t.Fatalf("%s [%d,%d) steps %d..%d and %s [%d,%d) steps %d..%d share bytes",
+					p.Name, p.Offset, p.Offset+p.Size, p.First, p.Last, o.Name, o.Offset, o.Offset+o.Size, o.First, o.Last)
+			}
+		}
+	}
+}
+
+// TestMemoryChain: x → Relu → Relu → Relu, float32 [1,8]: every tensor is
+// 8 × 4 = 32 bytes. Hand-worked:
+//
+//	step 0 (a = Relu(x)): x (0..0) + a (0..1) = 32 + 32 = 64
+//	step 1 (b = Relu(a)): a + b (1..2)         = 64
+//	step 2 (c = Relu(b)): b + c (2..2, output) = 64
+//
+// so the peak is max(in + out) = 64 at step 0. Greedy by size (all 32, ties
+// by first step then name: a, x, b, c): a at 0; x overlaps a → 32; b
+// overlaps a → 32; c overlaps b → 0. Arena 64 = peak.
+func TestMemoryChain(t *testing.T) {
+	b := build.New("chain", 13, build.Declared())
+	x := b.Input("x", model.Float32, 1, 8)
+	y := b.Relu("a", x)
+	y = b.Relu("b", y)
+	y = b.Relu("c", y)
+	b.Output(y)
+	m, err := b.Model()
+	p := planBuilt(t, m, err)
+	if p.PeakLiveBytes != 64 || p.PeakStep != 0 { // hand-worked: 32 + 32 at step 0
+		t.Errorf("peak %d at step %d, want 64 at step 0", p.PeakLiveBytes, p.PeakStep)
+	}
+	if want := []int64{64, 64, 64}; !reflect.DeepEqual(p.LiveBytesByStep, want) { // hand-worked
+		t.Errorf("live bytes by step %v, want %v", p.LiveBytesByStep, want)
+	}
+	if p.ArenaBytes != 64 { // hand-worked: greedy equals the peak on a chain
+		t.Errorf("arena %d, want 64", p.ArenaBytes)
+	}
+	if want := []string{"x", "a"}; !reflect.DeepEqual(p.LiveAtPeak, want) {
+		t.Errorf("live at peak %v, want %v", p.LiveAtPeak, want)
+	}
+	checkPlacements(t, p.Placements, p.ArenaBytes)
+	if len(p.Unresolved) != 0 {
+		t.Errorf("unresolved %v", p.Unresolved)
+	}
+}
+
+// TestMemorySkipConcat: a residual Add and a branch joined by Concat,
+// float32. x, a, b, c, d, e are [1,2,4,4] = 32 elements = 128 B; f =
+// Concat(d, e, axis 1) is [1,4,4,4] = 256 B.
+//
+//	step 0 a = Relu(x)      step 3 d = Relu(c)
+//	step 1 b = Sigmoid(a)   step 4 e = Tanh(c)
+//	step 2 c = Add(a, b)    step 5 f = Concat(d, e) (graph output)
+//
+// Lifetimes: x 0..0, a 0..2, b 1..2, c 2..4, d 3..5, e 4..5, f 5..5.
+// Live bytes, hand-worked:
+//
+//	step 0: x + a         = 128 + 128       = 256
+//	step 1: a + b         = 128 + 128       = 256
+//	step 2: a + b + c     = 3 × 128         = 384
+//	step 3: c + d         = 2 × 128         = 256
+//	step 4: c + d + e     = 3 × 128         = 384
+//	step 5: d + e + f     = 128 + 128 + 256 = 512  ← peak
+//
+// Greedy by size, hand-worked: f (256) first at 0. Then the 128s by first
+// step, then name: a (0..2) meets nothing placed that overlaps (f is step 5)
+// → 0; x (0..0) meets a [0,128) → 128; b (1..2) meets a → 128; c (2..4)
+// meets a [0,128) and b [128,256) → 256; d (3..5) meets f [0,256) and c
+// [256,384) → 384; e (4..5) meets f, c, d → 512. Arena = 512 + 128 = 640,
+// ratio 640 / 512 = 1.25: greedy by size is a heuristic, and here placing f
+// first costs 128 B over the lower bound (d, e at [0,256) with c, f sharing
+// [256,512) would reach it).
+func TestMemorySkipConcat(t *testing.T) {
+	bd := build.New("skip", 13, build.Declared())
+	x := bd.Input("x", model.Float32, 1, 2, 4, 4)
+	a := bd.Relu("a", x)
+	b := bd.Sigmoid("b", a)
+	c := bd.Add("c", a, b)
+	d := bd.Relu("d", c)
+	e := bd.Tanh("e", c)
+	f := bd.Concat("f", 1, d, e)
+	bd.Output(f)
+	m, err := bd.Model()
+	p := planBuilt(t, m, err)
+	if want := []int64{256, 256, 384, 256, 384, 512}; !reflect.DeepEqual(p.LiveBytesByStep, want) { // hand-worked, above
+		t.Errorf("live bytes by step %v, want %v", p.LiveBytesByStep, want)
+	}
+	if p.PeakLiveBytes != 512 || p.PeakStep != 5 { // hand-worked: d + e + f
+		t.Errorf("peak %d at step %d, want 512 at step 5", p.PeakLiveBytes, p.PeakStep)
+	}
+	if want := []string{"d", "e", "f"}; !reflect.DeepEqual(p.LiveAtPeak, want) {
+		t.Errorf("live at peak %v, want %v", p.LiveAtPeak, want)
+	}
+	if p.ArenaBytes != 640 { // hand-worked greedy layout, above
+		t.Errorf("arena %d, want 640", p.ArenaBytes)
+	}
+	wantOff := map[string]int64{"f": 0, "a": 0, "x": 128, "b": 128, "c": 256, "d": 384, "e": 512} // hand-worked
+	for _, pl := range p.Placements {
+		if pl.Offset != wantOff[pl.Name] {
+			t.Errorf("%s at %d, want %d", pl.Name, pl.Offset, wantOff[pl.Name])
+		}
+	}
+	if r := p.Ratio(); r != 1.25 {
+		t.Errorf("ratio %g, want 1.25", r)
+	}
+	checkPlacements(t, p.Placements, p.ArenaBytes)
+}
+
+// TestMemorySymbolic: a tensor whose shape keeps a symbol is left out and
+// listed, never counted as zero. x is float32 [batch,4]; with batch unbound
+// neither x nor y can be sized.
+func TestMemorySymbolic(t *testing.T) {
+	b := build.New("sym", 13, build.Declared())
+	x := b.InputShape("x", model.Float32, model.Shape{model.Sym("batch"), model.Known(4)})
+	b.Output(b.Relu("y", x))
+	m, err := b.Model()
+	p := planBuilt(t, m, err)
+	if len(p.Unresolved) != 2 {
+		t.Fatalf("unresolved %v, want x and y", p.Unresolved)
+	}
+	if got, want := p.Unresolved[0].Reason, `memory unknown: shape [batch,4] symbolic (tensor "x")`; got != want {
+		t.Errorf("reason %q, want %q", got, want)
+	}
+	if p.PeakLiveBytes != 0 {
+		t.Errorf("peak %d, want 0 (nothing sizable)", p.PeakLiveBytes)
+	}
+	// Bound, the same graph is sized: 1 × 4 × 4 B = 16 B each, both live at
+	// step 0: 32 B (hand-worked).
+	inf, err := Infer(m, InferOptions{Dims: map[string]int64{"batch": 1}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if q := PlanMemory(inf); q.PeakLiveBytes != 32 || len(q.Unresolved) != 0 {
+		t.Errorf("bound: peak %d, unresolved %v; want 32, none", q.PeakLiveBytes, q.Unresolved)
+	}
+}
+
+// TestMemoryStaticExcluded: initializers, Constant outputs and values folded
+// from them (a DequantizeLinear of an int8 weight) are not activations.
+// x is float32 [1,4] = 16 B; y = Add(x, w) with w = Dequantize(wq): only x
+// and y count, 16 + 16 = 32 B at step 1 (hand-worked).
+func TestMemoryStaticExcluded(t *testing.T) {
+	b := build.New("static", 13, build.Declared())
+	x := b.Input("x", model.Float32, 1, 4)
+	w := b.QuantizedWeight("w", model.Int8, 1, 4)
+	b.Output(b.Add("y", x, w))
+	m, err := b.Model()
+	p := planBuilt(t, m, err)
+	var names []string
+	for _, pl := range p.Placements {
+		names = append(names, pl.Name)
+	}
+	if !reflect.DeepEqual(names, []string{"x", "y"}) {
+		t.Errorf("counted %v, want [x y]", names)
+	}
+	if p.PeakLiveBytes != 32 { // hand-worked: x 16 B + y 16 B
+		t.Errorf("peak %d, want 32", p.PeakLiveBytes)
+	}
+}
+
+// randomGraph builds a random DAG directly as an Inference: 1–3 graph inputs,
+// up to 40 nodes of 1–3 inputs and 1–2 outputs each, uint8 vectors of 0–999
+// elements (so bytes = elements), a few outputs marked as weights (static),
+// a few graph outputs.
+func randomGraph(r *rand.Rand) *Inference {
+	g := &model.Graph{}
+	vals := map[string]*Value{}
+	var avail []string
+	newVal := func(name string, weight bool) {
+		vals[name] = &Value{Type: model.TensorType(model.Uint8, model.KnownShape(int64(r.Intn(1000)))), Weight: weight}
+	}
+	for i := range 1 + r.Intn(3) {
+		name := fmt.Sprintf("in%d", i)
+		g.Inputs = append(g.Inputs, &model.ValueInfo{Name: name})
+		newVal(name, false)
+		avail = append(avail, name)
+	}
+	for i := range r.Intn(41) {
+		n := &model.Node{Name: fmt.Sprintf("n%d", i), Op: "Custom"}
+		for range 1 + r.Intn(3) {
+			// Mostly recent tensors, sometimes far back: skip connections.
+			j := len(avail) - 1 - r.Intn(min(len(avail), 4))
+			if r.Intn(5) == 0 {
+				j = r.Intn(len(avail))
+			}
+			n.Inputs = append(n.Inputs, avail[j])
+		}
+		for k := range 1 + r.Intn(2) {
+			name := fmt.Sprintf("t%d_%d", i, k)
+			n.Outputs = append(n.Outputs, name)
+			newVal(name, r.Intn(10) == 0)
+			avail = append(avail, name)
+		}
+		g.Nodes = append(g.Nodes, n)
+	}
+	for range 1 + r.Intn(2) {
+		name := avail[len(avail)-1-r.Intn(min(len(avail), 3))]
+		g.Outputs = append(g.Outputs, &model.ValueInfo{Name: name})
+	}
+	return &Inference{Model: &model.Model{Graph: g}, Values: vals}
+}
+
+// bruteLiveBytes is the independent peak checker: at each step, sums the
+// tensors for which liveness holds as DESIGN.md states it, by scanning the
+// whole graph for each (tensor, step).
+func bruteLiveBytes(inf *Inference) []int64 {
+	g := inf.Model.Graph
+	steps := max(1, len(g.Nodes))
+	type tensor struct {
+		name string
+		prod int
+	}
+	var ts []tensor
+	for _, in := range g.Inputs {
+		ts = append(ts, tensor{in.Name, 0})
+	}
+	// Static: a weight, or the output of a node that reads only static
+	// values (folded at load time).
+	static := map[string]bool{}
+	for i, n := range g.Nodes {
+		folded := true
+		for _, in := range n.Inputs {
+			folded = folded && static[in]
+		}
+		for _, o := range n.Outputs {
+			static[o] = inf.Values[o].Weight || folded
+			if !static[o] {
+				ts = append(ts, tensor{o, i})
+			}
+		}
+	}
+	out := make([]int64, steps)
+	for s := range steps {
+		for _, t := range ts {
+			if t.prod > s {
+				continue
+			}
+			live := t.prod == s
+			for _, o := range g.Outputs {
+				live = live || o.Name == t.name
+			}
+			for c := s; c < len(g.Nodes) && !live; c++ {
+				for _, in := range g.Nodes[c].Inputs {
+					live = live || in == t.name
+				}
+			}
+			if live {
+				n, _ := inf.Values[t.name].Type.Shape.Elements()
+				out[s] += n
+			}
+		}
+	}
+	return out
+}
+
+// TestMemoryPlanRandomDAGs: property tests on 200 random DAGs (fixed seeds):
+// the live bytes match the brute-force checker, arena ≥ peak, no two
+// tensors with overlapping lifetimes share a byte, and planning is
+// deterministic.
+func TestMemoryPlanRandomDAGs(t *testing.T) {
+	for seed := range int64(200) {
+		inf := randomGraph(rand.New(rand.NewSource(seed)))
+		p := PlanMemory(inf)
+		if want := bruteLiveBytes(inf); !reflect.DeepEqual(p.LiveBytesByStep, want) {
+			t.Fatalf("seed %d: live bytes %v, brute force %v", seed, p.LiveBytesByStep, want)
+		}
+		if p.ArenaBytes < p.PeakLiveBytes {
+			t.Fatalf("seed %d: arena %d < peak %d", seed, p.ArenaBytes, p.PeakLiveBytes)
+		}
+		checkPlacements(t, p.Placements, p.ArenaBytes)
+		if q := PlanMemory(inf); !reflect.DeepEqual(p, q) {
+			t.Fatalf("seed %d: two plans of the same graph differ", seed)
+		}
+	}
+}
+
+// naiveArena is greedy by size written the obvious O(n²) way, to check the
+// segment-tree planner's layout exactly.
+func naiveArena(ts []Lifetime) ([]Placement, int64) {
+	ps := make([]Placement, len(ts))
+	idx := make([]int, len(ts))
+	for i, t := range ts {
+		ps[i] = Placement{Name: t.Name, Size: max(t.Size, 0), First: t.First, Last: max(t.Last, t.First)}
+		idx[i] = i
+	}
+	sort.SliceStable(idx, func(a, b int) bool {
+		x, y := ps[idx[a]], ps[idx[b]]
+		if x.Size != y.Size {
+			return x.Size > y.Size
+		}
+		if x.First != y.First {
+			return x.First < y.First
+		}
+		if x.Name != y.Name {
+			return x.Name < y.Name
+		}
+		return x.Last < y.Last
+	})
+	var arena int64
+	var placed []int
+	for _, i := range idx {
+		p := &ps[i]
+		var over []int
+		for _, j := range placed {
+			if ps[j].First <= p.Last && p.First <= ps[j].Last {
+				over = append(over, j)
+			}
+		}
+		sort.SliceStable(over, func(a, b int) bool { return ps[over[a]].Offset < ps[over[b]].Offset })
+		var end int64
+		best, bestGap := int64(-1), int64(-1)
+		for _, j := range over {
+			if gap := ps[j].Offset - end; gap >= p.Size && (bestGap < 0 || gap < bestGap) {
+				best, bestGap = end, gap
+			}
+			end = max(end, ps[j].Offset+ps[j].Size)
+		}
+		if best < 0 {
+			best = end
+		}
+		p.Offset = best
+		arena = max(arena, best+p.Size)
+		placed = append(placed, i)
+	}
+	return ps, arena
+}
+
+// randomLifetimes: up to 300 tensors over up to 100 steps, sizes 0–4095,
+// lifetimes of any length, some sizes repeated so that ties are common.
+func randomLifetimes(r *rand.Rand) []Lifetime {
+	steps := 1 + r.Intn(100)
+	ts := make([]Lifetime, r.Intn(301))
+	for i := range ts {
+		first := r.Intn(steps)
+		size := int64(r.Intn(4096))
+		if r.Intn(3) == 0 {
+			size = int64(64 * r.Intn(4))
+		}
+		ts[i] = Lifetime{Name: fmt.Sprintf("t%d", r.Intn(len(ts))), Size: size, First: first, Last: first + r.Intn(steps-first)}
+	}
+	return ts
+}
+
+// TestPlanArenaRandom: on 200 random lifetime sets, the planner agrees with
+// the naive greedy, arena ≥ the brute-force peak, no byte is shared by
+// tensors live at once, and the layout is deterministic.
+func TestPlanArenaRandom(t *testing.T) {
+	for seed := range int64(200) {
+		ts := randomLifetimes(rand.New(rand.NewSource(seed)))
+		ps, arena := PlanArena(ts)
+		checkPlacements(t, ps, arena)
+		var peak int64
+		for s := range 100 {
+			var live int64
+			for _, lt := range ts {
+				if lt.First <= s && s <= lt.Last {
+					live += lt.Size
+				}
+			}
+			peak = max(peak, live)
+		}
+		if arena < peak {
+			t.Fatalf("seed %d: arena %d < peak %d", seed, arena, peak)
+		}
+		nps, narena := naiveArena(ts)
+		if narena != arena || !reflect.DeepEqual(nps, ps) {
+			t.Fatalf("seed %d: planner arena %d, naive greedy %d (or layouts differ)", seed, arena, narena)
+		}
+		ps2, arena2 := PlanArena(ts)
+		if arena2 != arena || !reflect.DeepEqual(ps2, ps) {
+			t.Fatalf("seed %d: not deterministic", seed)
+		}
+	}
+}
+
+// TestPlanArenaEdges: empty input, zero sizes, and an inverted lifetime.
+func TestPlanArenaEdges(t *testing.T) {
+	if ps, a := PlanArena(nil); len(ps) != 0 || a != 0 {
+		t.Errorf("empty: %v %d", ps, a)
+	}
+	ps, a := PlanArena([]Lifetime{{"z", 0, 0, 3}, {"a", 10, 0, 0}, {"b", 10, 5, 2}})
+	// a at 0 (largest, first); b is live at step 5 only, overlapping nothing
+	// placed → 0; z (0 B) → 0. Arena 10 (hand-worked).
+	if a != 10 || ps[1].Offset != 0 || ps[2].Offset != 0 || ps[2].Last != 5 {
+		t.Errorf("edges: arena %d, placements %+v", a, ps)
+	}
+}
+
+// TestMemoryMobileNetV2: MobileNetV2 1.0, float32, 224×224, batch 1, graph
+// view (torchvision export form: Conv, BatchNormalization and Clip each their
+// own tensor). Hand-derived: features.2 (t = 6, 16 → 24 channels, stride 2)
+// expands its 16×112×112 input to 96×112×112 float32 = 1,204,224 elements
+// = 4,816,896 B. At the step of its BatchNormalization the Conv output and
+// the BN output are both live and nothing else is: the block input's last
+// consumer was the expansion Conv (stride 2: no residual), every weight,
+// BN statistic and Clip bound is an initializer. So that step holds
+// 112·112·96·4·2 = 9,633,792 B. No other step holds more: the only other
+// tensors of 112×112 resolution have 16 or 32 channels (at most 3 × 32 ×
+// 112² × 4 = 4,816,896 B across any three of them), features.2's depthwise
+// step holds its 4,816,896 B input and 96×56×56×4 = 1,204,224 B output, and
+// from 56×56 on the widest tensors are 144×56×56×4 = 1,806,336 B, at most
+// three live at once (5,419,008 B). The peak is exactly 9,633,792 B and is
+// first reached at features.2.conv.0.1 (the Clip step after it holds the
+// same, BN output + Clip output).
+func TestMemoryMobileNetV2(t *testing.T) {
+	m, err := build.MobileNetV2(build.Options{Declared: true})
+	p := planBuilt(t, m, err)
+	t.Logf("mobilenet_v2 float32 224 graph view: peak %d B at step %d %v, arena %d B, ratio %.4f",
+		p.PeakLiveBytes, p.PeakStep, p.LiveAtPeak, p.ArenaBytes, p.Ratio())
+	if p.PeakLiveBytes != 112*112*96*4*2 { // hand-derived, above: 9,633,792 B
+		t.Errorf("peak %d, want 112·112·96·4·2 = 9,633,792", p.PeakLiveBytes)
+	}
+	if want := []string{"features.2.conv.0.0", "features.2.conv.0.1"}; !reflect.DeepEqual(p.LiveAtPeak, want) {
+		t.Errorf("live at peak %v, want %v", p.LiveAtPeak, want)
+	}
+	if p.ArenaBytes < p.PeakLiveBytes {
+		t.Errorf("arena %d < peak %d", p.ArenaBytes, p.PeakLiveBytes)
+	}
+	checkPlacements(t, p.Placements, p.ArenaBytes)
+	if len(p.Unresolved) != 0 {
+		t.Errorf("unresolved %v", p.Unresolved)
+	}
+}
+
+// TestMemoryReferenceArchitectures logs the graph view of every reference
+// architecture and checks the invariants on each.
+func TestMemoryReferenceArchitectures(t *testing.T) {
+	for _, arch := range build.Architectures() {
+		f, _ := build.Architecture(arch)
+		m, err := f(build.Options{Declared: true})
+		p := planBuilt(t, m, err)
+		t.Logf("%-20s peak %11d B  arena %11d B  ratio %.4f  (%d tensors)", arch, p.PeakLiveBytes, p.ArenaBytes, p.Ratio(), len(p.Placements))
+		if p.ArenaBytes < p.PeakLiveBytes || len(p.Unresolved) != 0 {
+			t.Errorf("%s: arena %d, peak %d, unresolved %v", arch, p.ArenaBytes, p.PeakLiveBytes, p.Unresolved)
+		}
+	}
+}
+
+// chainWithSkips is the benchmark's synthetic graph: n tensors, tensor i
+// produced at step i and read at step i+1, every fourth also read four
+// steps later (a skip connection), sizes 1 KiB to 1 MiB from a fixed seed.
+func chainWithSkips(n int) []Lifetime {
+	r := rand.New(rand.NewSource(1))
+	ts := make([]Lifetime, n)
+	for i := range ts {
+		last := i + 1
+		if i%4 == 0 {
+			last = i + 5
+		}
+		ts[i] = Lifetime{Name: fmt.Sprintf("t%d", i), Size: int64(1024 + r.Intn(1<<20)), First: i, Last: min(last, n-1)}
+	}
+	return ts
+}
+
+// BenchmarkPlanArena10k plans a 10,000-tensor chain with skips.
+func BenchmarkPlanArena10k(b *testing.B) {
+	ts := chainWithSkips(10000)
+	b.ReportAllocs()
+	for b.Loop() {
+		PlanArena(ts)
+	}
+}
