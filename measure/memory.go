@@ -37,6 +37,20 @@ import (
 // is at least the peak, since the tensors live at the peak step occupy
 // disjoint bytes of it.
 
+// MemoryFigures are a model's activation memory figures as the JSON
+// contract names them: the graph view, and the deployed view (what an
+// embedded runtime allocates after its rewrites).
+type MemoryFigures struct {
+	Graph    MemoryView `json:"graph"`
+	Deployed MemoryView `json:"deployed"`
+}
+
+// MemoryView is one view's peak_live_bytes and arena_bytes.
+type MemoryView struct {
+	PeakLiveBytes int64 `json:"peak_live_bytes"`
+	ArenaBytes    int64 `json:"arena_bytes"`
+}
+
 // Lifetime is a tensor's size in bytes and the steps through which it is
 // live, First through Last inclusive.
 type Lifetime struct {

@@ -1,6 +1,7 @@
 package measure
 
 import (
+	"encoding/json"
 	"fmt"
 	"math/rand"
 	"reflect"
@@ -495,5 +496,35 @@ func BenchmarkPlanArena10k(b *testing.B) {
 	b.ReportAllocs()
 	for b.Loop() {
 		PlanArena(ts)
+	}
+}
+
+// TestMemoryMeasureJSON: Measure reports the graph view under the JSON
+// contract's keys (DESIGN.md, "Machine-readable contracts").
+func TestMemoryMeasureJSON(t *testing.T) {
+	m, err := build.MobileNetV2(build.Options{Declared: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	met, err := Measure(m, 0, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	js, err := json.Marshal(met)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var got struct {
+		Memory map[string]map[string]int64 `json:"memory"`
+	}
+	if err := json.Unmarshal(js, &got); err != nil {
+		t.Fatal(err)
+	}
+	g := got.Memory["graph"]
+	if g["peak_live_bytes"] != 9_633_792 || g["arena_bytes"] < g["peak_live_bytes"] { // hand-derived in TestMemoryMobileNetV2
+		t.Errorf("memory.graph = %v, want peak_live_bytes 9633792 and arena_bytes ≥ it", g)
+	}
+	if _, ok := got.Memory["deployed"]["arena_bytes"]; !ok {
+		t.Errorf("memory.deployed.arena_bytes missing from %s", js)
 	}
 }
