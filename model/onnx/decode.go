@@ -7,6 +7,7 @@ import (
 	"os"
 	"path/filepath"
 	"strconv"
+	"strings"
 
 	"github.com/loadline/loadline/model"
 	"google.golang.org/protobuf/encoding/protowire"
@@ -528,6 +529,24 @@ func (d *decoder) attr(lo, hi, depth int) (*model.Attr, error) {
 		}
 	}
 	keepOnly(a)
+	if a.RefName == "" {
+		// A reference to a caller's attribute carries no value; anything
+		// else of a message kind must have one, or callers meet a nil.
+		missing := ""
+		switch {
+		case a.Kind == model.AttrTensor && a.Tensor == nil:
+			missing = "t"
+		case a.Kind == model.AttrGraph && a.Graph == nil:
+			missing = "g"
+		case a.Kind == model.AttrSparseTensor && a.Sparse == nil:
+			missing = "sparse_tensor"
+		case a.Kind == model.AttrType && a.Type == nil:
+			missing = "tp"
+		}
+		if missing != "" {
+			return nil, d.errAt(lo, "attribute %q of type %s has no %s field", a.Name, strings.ToUpper(a.Kind.String()), missing)
+		}
+	}
 	return a, nil
 }
 

@@ -381,3 +381,22 @@ func TestDecodeErrorUnwraps(t *testing.T) {
 		t.Errorf("message %q", got)
 	}
 }
+
+// TestAttributeWithoutValue: an attribute of a message kind without its
+// value is refused (callers would meet a nil), unless it is a function
+// body's reference to the caller's attribute. Found by FuzzDecode
+// (testdata/fuzz/FuzzDecode/434bf828cc75706f).
+func TestAttributeWithoutValue(t *testing.T) {
+	for kind, field := range map[int]string{4: "t", 5: "g", 11: "sparse_tensor", 13: "tp"} {
+		attr := cat(pbString(1, "a"), pbVarint(20, uint64(kind)))
+		_, err := Decode(graphModel(pbBytes(1, cat(pbString(4, "X"), pbBytes(5, attr)))), Options{Path: "m.onnx"})
+		wantDecodeError(t, err, "m.onnx", "graph.node[0].attribute[0]", "has no "+field+" field")
+		ref := cat(attr, pbString(21, "caller"))
+		m, err := Decode(graphModel(pbBytes(1, cat(pbString(4, "X"), pbBytes(5, ref)))), Options{Path: "m.onnx"})
+		if err != nil {
+			t.Errorf("reference of kind %d: %v", kind, err)
+			continue
+		}
+		checkDecoded(t, m)
+	}
+}

@@ -361,11 +361,17 @@ func (e *encoder) attr(b []byte, a *model.Attr, depth int) ([]byte, error) {
 		b = appendString(b, 4, a.String)
 	case model.AttrTensor:
 		if a.Tensor == nil {
+			if a.RefName != "" {
+				break // a reference to the caller's attribute: no value
+			}
 			return nil, errors.New("tensor attribute has no tensor")
 		}
 		msg(5, "t", func(b []byte) ([]byte, error) { return e.tensor(b, a.Tensor) })
 	case model.AttrGraph:
 		if a.Graph == nil {
+			if a.RefName != "" {
+				break // a reference to the caller's attribute: no value
+			}
 			return nil, errors.New("graph attribute has no graph")
 		}
 		msg(6, "g", func(b []byte) ([]byte, error) { return e.graph(b, a.Graph, depth+1) })
@@ -393,6 +399,9 @@ func (e *encoder) attr(b []byte, a *model.Attr, depth int) ([]byte, error) {
 		}
 	case model.AttrType:
 		if a.Type == nil {
+			if a.RefName != "" {
+				break // a reference to the caller's attribute: no value
+			}
 			return nil, errors.New("type attribute has no type")
 		}
 		msg(14, "tp", func(b []byte) ([]byte, error) { return e.typeProto(b, a.Type, 0) })
@@ -402,6 +411,9 @@ func (e *encoder) attr(b []byte, a *model.Attr, depth int) ([]byte, error) {
 		}
 	case model.AttrSparseTensor:
 		if a.Sparse == nil {
+			if a.RefName != "" {
+				break // a reference to the caller's attribute: no value
+			}
 			return nil, errors.New("sparse tensor attribute has no sparse tensor")
 		}
 		msg(22, "sparse_tensor", func(b []byte) ([]byte, error) { return e.sparse(b, a.Sparse) })
