@@ -1,0 +1,464 @@
+package check
+
+import (
+	"bytes"
+	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"path"
+	"path/filepath"
+	"sort"
+	"strconv"
+	"strings"
+
+	git "github.com/go-git/go-git/v5"
+	"github.com/go-git/go-git/v5/plumbing"
+	"github.com/go-git/go-git/v5/plumbing/filemode"
+	"github.com/go-git/go-git/v5/plumbing/object"
+	"github.com/go-git/go-git/v5/plumbing/storer"
+)
+
+// EnvError is an error of the environment rather than of the change:
+// missing git objects, a shallow clone without the base, an LFS object not
+// fetched. The CLI exits 3 on it.
+type EnvError struct {
+	Err  error
+	Hint string // what to do about it
+}
+
+func (e *EnvError) Error() string {
+	if e.Hint != "" {
+		return e.Err.Error() + "\n  hint: " + e.Hint
+	}
+	return e.Err.Error()
+}
+
+func (e *EnvError) Unwrap() error { return e.Err }
+
+// Repo is an opened git repository.
+type Repo struct {
+	r *git.Repository
+	// Root is the top of the working tree.
+	Root string
+	// CommonDir is the git directory shared by all worktrees, where the LFS
+	// object store and loadline's cache live.
+	CommonDir string
+}
+
+// OpenRepo opens the repository containing dir (a worktree works too).
+func OpenRepo(dir string) (*Repo, error) {
+	abs, err := filepath.Abs(dir)
+	if err != nil {
+		return nil, err
+	}
+	r, err := git.PlainOpenWithOptions(abs, &git.PlainOpenOptions{DetectDotGit: true, EnableDotGitCommonDir: true})
+	if err != nil {
+		return nil, &EnvError{Err: fmt.Errorf("%s: not inside a git repository: %w", dir, err), Hint: "run loadline check from inside the repository, or use loadline compare for two files"}
+	}
+	wt, err := r.Worktree()
+	if err != nil {
+		return nil, &EnvError{Err: fmt.Errorf("%s: a bare repository has no working tree: %w", dir, err)}
+	}
+	root := wt.Filesystem.Root()
+	common, err := commonDir(root)
+	if err != nil {
+		return nil, err
+	}
+	return &Repo{r: r, Root: root, CommonDir: common}, nil
+}
+
+// commonDir finds the git directory shared by worktrees: .git itself, or
+// for a linked worktree the folder its commondir file names.
+func commonDir(root string) (string, error) {
+	dotgit := filepath.Join(root, ".git")
+	st, err := os.Stat(dotgit)
+	if err != nil {
+		return "", &EnvError{Err: fmt.Errorf("%s: %w", dotgit, err)}
+	}
+	if st.IsDir() {
+		return dotgit, nil
+	}
+	// A linked worktree: ".git" is a file "gitdir: <path>".
+	b, err := os.ReadFile(dotgit)
+	if err != nil {
+		return "", &EnvError{Err: err}
+	}
+	gitdir := strings.TrimSpace(strings.TrimPrefix(strings.TrimSpace(string(b)), "gitdir:"))
+	if !filepath.IsAbs(gitdir) {
+		gitdir = filepath.Join(root, gitdir)
+	}
+	if c, err := os.ReadFile(filepath.Join(gitdir, "commondir")); err == nil {
+		cd := strings.TrimSpace(string(c))
+		if !filepath.IsAbs(cd) {
+			cd = filepath.Join(gitdir, cd)
+		}
+		return filepath.Clean(cd), nil
+	}
+	return gitdir, nil
+}
+
+// Snapshot is the set of files of one revision (a commit, or the index).
+type Snapshot struct {
+	repo *Repo
+	// Label is the revision as the user named it; Commit its hash (zero
+	// for the index).
+	Label  string
+	Commit plumbing.Hash
+	tree   *object.Tree
+	files  map[string]plumbing.Hash // for the index
+}
+
+// Resolve returns the snapshot of a revision ("HEAD", "origin/main", a hash).
+func (r *Repo) Resolve(rev string) (*Snapshot, error) {
+	h, err := r.r.ResolveRevision(plumbing.Revision(rev))
+	if err != nil {
+		return nil, r.missing(rev, err)
+	}
+	c, err := r.r.CommitObject(*h)
+	if err != nil {
+		return nil, r.missing(rev, err)
+	}
+	t, err := c.Tree()
+	if err != nil {
+		return nil, r.missing(rev, err)
+	}
+	return &Snapshot{repo: r, Label: rev, Commit: c.Hash, tree: t}, nil
+}
+
+// missing turns a failed lookup into an environment error with a hint; a
+// shallow clone is the usual cause on CI.
+func (r *Repo) missing(rev string, err error) error {
+	hint := "check the revision name; fetch it with git fetch origin " + rev
+	if _, serr := os.Stat(filepath.Join(r.CommonDir, "shallow")); serr == nil {
+		hint = "this is a shallow clone and the base is not in it: fetch more history (git fetch --unshallow, or fetch-depth: 0 on CI checkout)"
+	}
+	return &EnvError{Err: fmt.Errorf("revision %q: %w", rev, err), Hint: hint}
+}
+
+// Index returns the snapshot of the staged files.
+func (r *Repo) Index() (*Snapshot, error) {
+	idx, err := r.r.Storer.Index()
+	if err != nil {
+		return nil, &EnvError{Err: fmt.Errorf("reading the git index: %w", err)}
+	}
+	files := make(map[string]plumbing.Hash, len(idx.Entries))
+	for _, e := range idx.Entries {
+		if e.Mode == filemode.Submodule || e.Stage != 0 {
+			continue
+		}
+		files[e.Name] = e.Hash
+	}
+	return &Snapshot{repo: r, Label: "index", files: files}, nil
+}
+
+// MergeBase returns the best common ancestor of two revisions.
+func (r *Repo) MergeBase(a, b *Snapshot) (*Snapshot, error) {
+	ca, err := r.r.CommitObject(a.Commit)
+	if err != nil {
+		return nil, r.missing(a.Label, err)
+	}
+	cb, err := r.r.CommitObject(b.Commit)
+	if err != nil {
+		return nil, r.missing(b.Label, err)
+	}
+	bases, err := ca.MergeBase(cb)
+	if err != nil {
+		return nil, r.missing(a.Label+"..."+b.Label, err)
+	}
+	if len(bases) == 0 {
+		return nil, &EnvError{Err: fmt.Errorf("%s and %s have no common ancestor", a.Label, b.Label), Hint: "fetch more history, or name the base with --base"}
+	}
+	s, err := r.Resolve(bases[0].Hash.String())
+	if err != nil {
+		return nil, err
+	}
+	s.Label = "merge-base(" + a.Label + ", " + b.Label + ")"
+	return s, nil
+}
+
+// DefaultBranch returns the branch the remote's HEAD names
+// (refs/remotes/origin/HEAD), else origin/main, origin/master, main or
+// master, whichever exists first.
+func (r *Repo) DefaultBranch() (string, error) {
+	if ref, err := r.r.Storer.Reference(plumbing.ReferenceName("refs/remotes/origin/HEAD")); err == nil {
+		if ref.Type() == plumbing.SymbolicReference {
+			return strings.TrimPrefix(ref.Target().String(), "refs/remotes/"), nil
+		}
+	}
+	for _, name := range []string{"refs/remotes/origin/main", "refs/remotes/origin/master", "refs/heads/main", "refs/heads/master"} {
+		if _, err := r.r.Storer.Reference(plumbing.ReferenceName(name)); err == nil {
+			return strings.TrimPrefix(strings.TrimPrefix(name, "refs/remotes/"), "refs/heads/"), nil
+		}
+	}
+	return "", &EnvError{Err: errors.New("cannot tell the default branch: no origin/HEAD, main or master"), Hint: "name the base with --base"}
+}
+
+// Hash returns the blob id of path in the snapshot; ok is false when the
+// file does not exist there.
+func (s *Snapshot) Hash(p string) (plumbing.Hash, bool) {
+	if s.files != nil {
+		h, ok := s.files[p]
+		return h, ok
+	}
+	e, err := s.tree.FindEntry(p)
+	if err != nil || !e.Mode.IsFile() {
+		return plumbing.ZeroHash, false
+	}
+	return e.Hash, true
+}
+
+// Paths returns every file path in the snapshot, sorted.
+func (s *Snapshot) Paths() ([]string, error) {
+	if s.files != nil {
+		out := make([]string, 0, len(s.files))
+		for p := range s.files {
+			out = append(out, p)
+		}
+		sort.Strings(out)
+		return out, nil
+	}
+	var out []string
+	err := s.tree.Files().ForEach(func(f *object.File) error {
+		out = append(out, f.Name)
+		return nil
+	})
+	if err != nil && !errors.Is(err, storer.ErrStop) {
+		return nil, &EnvError{Err: fmt.Errorf("listing %s: %w", s.Label, err)}
+	}
+	sort.Strings(out)
+	return out, nil
+}
+
+// maxBlob bounds the size of a blob read into memory.
+const maxBlob = 8 << 30
+
+// Read returns the contents of path at the snapshot, with an LFS pointer
+// resolved from the repository's local LFS object store.
+func (s *Snapshot) Read(p string) ([]byte, error) {
+	h, ok := s.Hash(p)
+	if !ok {
+		return nil, fmt.Errorf("%s: not in %s", p, s.Label)
+	}
+	return s.repo.readBlob(h, p, s.Label)
+}
+
+func (r *Repo) readBlob(h plumbing.Hash, p, label string) ([]byte, error) {
+	blob, err := r.r.BlobObject(h)
+	if err != nil {
+		return nil, &EnvError{Err: fmt.Errorf("%s at %s: blob %s is missing from the object store: %w", p, label, h, err), Hint: "fetch the revision's objects (git fetch)"}
+	}
+	if blob.Size > maxBlob {
+		return nil, fmt.Errorf("%s at %s: %d bytes is larger than loadline reads (%d)", p, label, blob.Size, int64(maxBlob))
+	}
+	rd, err := blob.Reader()
+	if err != nil {
+		return nil, &EnvError{Err: fmt.Errorf("%s at %s: %w", p, label, err)}
+	}
+	defer rd.Close()
+	data := make([]byte, 0, blob.Size)
+	buf := bytes.NewBuffer(data)
+	if _, err := io.Copy(buf, rd); err != nil {
+		return nil, &EnvError{Err: fmt.Errorf("%s at %s: reading blob %s: %w", p, label, h, err)}
+	}
+	data = buf.Bytes()
+	if ptr, ok := parseLFSPointer(data); ok {
+		return r.readLFS(ptr, p, label)
+	}
+	return data, nil
+}
+
+// lfsPointer is a Git LFS pointer file's content.
+type lfsPointer struct {
+	OID  string // sha256, hex
+	Size int64
+}
+
+// parseLFSPointer recognises the pointer format of the Git LFS
+// specification: a version line, an "oid sha256:" line and a size line.
+func parseLFSPointer(b []byte) (lfsPointer, bool) {
+	if len(b) > 1024 || !bytes.HasPrefix(b, []byte("version https://git-lfs.github.com/spec/")) {
+		return lfsPointer{}, false
+	}
+	var p lfsPointer
+	for _, line := range strings.Split(string(b), "\n") {
+		k, v, _ := strings.Cut(line, " ")
+		switch k {
+		case "oid":
+			p.OID = strings.TrimPrefix(v, "sha256:")
+		case "size":
+			n, err := strconv.ParseInt(v, 10, 64)
+			if err != nil {
+				return lfsPointer{}, false
+			}
+			p.Size = n
+		}
+	}
+	if len(p.OID) != 64 {
+		return lfsPointer{}, false
+	}
+	if _, err := hex.DecodeString(p.OID); err != nil {
+		return lfsPointer{}, false
+	}
+	return p, true
+}
+
+func (r *Repo) readLFS(ptr lfsPointer, p, label string) ([]byte, error) {
+	obj := filepath.Join(r.CommonDir, "lfs", "objects", ptr.OID[0:2], ptr.OID[2:4], ptr.OID)
+	st, err := os.Stat(obj)
+	if err != nil {
+		return nil, &EnvError{
+			Err:  fmt.Errorf("%s at %s is a Git LFS pointer (oid %s…, %d bytes) and the object is not in the local LFS store", p, label, ptr.OID[:12], ptr.Size),
+			Hint: "fetch it: git lfs fetch origin " + label + " (on CI, check out with lfs: true)",
+		}
+	}
+	if st.Size() != ptr.Size || ptr.Size > maxBlob {
+		return nil, &EnvError{Err: fmt.Errorf("%s at %s: LFS object %s has %d bytes, its pointer says %d", p, label, ptr.OID[:12], st.Size(), ptr.Size), Hint: "refetch it: git lfs fetch --all"}
+	}
+	data, err := os.ReadFile(obj)
+	if err != nil {
+		return nil, &EnvError{Err: err}
+	}
+	sum := sha256.Sum256(data)
+	if hex.EncodeToString(sum[:]) != ptr.OID {
+		return nil, &EnvError{Err: fmt.Errorf("%s at %s: LFS object %s is corrupt (its sha256 does not match)", p, label, ptr.OID[:12]), Hint: "refetch it: git lfs fetch --all"}
+	}
+	return data, nil
+}
+
+// FileChange is one file that differs between two snapshots.
+type FileChange struct {
+	Path    string // head path (base path for removals)
+	OldPath string // base path, for renames
+	Kind    string // "added", "modified", "removed", "renamed"
+	OldHash plumbing.Hash
+	NewHash plumbing.Hash
+}
+
+// Diff lists the files whose path satisfies want and whose content differs
+// between base and head. Renames are detected by identical content, and
+// between two commits also by go-git's similarity detection.
+func Diff(base, head *Snapshot, want func(p string) bool) ([]FileChange, error) {
+	if base.tree != nil && head.tree != nil {
+		return diffTrees(base, head, want)
+	}
+	bp, err := base.Paths()
+	if err != nil {
+		return nil, err
+	}
+	hp, err := head.Paths()
+	if err != nil {
+		return nil, err
+	}
+	var out []FileChange
+	var added, removed []FileChange
+	inHead := map[string]bool{}
+	for _, p := range hp {
+		inHead[p] = true
+		if !want(p) {
+			continue
+		}
+		nh, _ := head.Hash(p)
+		oh, ok := base.Hash(p)
+		switch {
+		case !ok:
+			added = append(added, FileChange{Path: p, Kind: "added", NewHash: nh})
+		case oh != nh:
+			out = append(out, FileChange{Path: p, Kind: "modified", OldHash: oh, NewHash: nh})
+		}
+	}
+	for _, p := range bp {
+		if !inHead[p] && want(p) {
+			oh, _ := base.Hash(p)
+			removed = append(removed, FileChange{Path: p, Kind: "removed", OldHash: oh})
+		}
+	}
+	// Exact renames: a removed and an added file with the same blob.
+	used := map[int]bool{}
+	for _, a := range added {
+		matched := false
+		for j, r := range removed {
+			if !used[j] && r.OldHash == a.NewHash {
+				used[j] = true
+				out = append(out, FileChange{Path: a.Path, OldPath: r.Path, Kind: "renamed", OldHash: r.OldHash, NewHash: a.NewHash})
+				matched = true
+				break
+			}
+		}
+		if !matched {
+			out = append(out, a)
+		}
+	}
+	for j, r := range removed {
+		if !used[j] {
+			out = append(out, r)
+		}
+	}
+	sortChanges(out)
+	return out, nil
+}
+
+func diffTrees(base, head *Snapshot, want func(p string) bool) ([]FileChange, error) {
+	changes, err := object.DiffTreeWithOptions(context.Background(), base.tree, head.tree, &object.DiffTreeOptions{DetectRenames: true, RenameScore: 60, RenameLimit: 1000})
+	if err != nil {
+		return nil, &EnvError{Err: fmt.Errorf("diffing %s..%s: %w", base.Label, head.Label, err)}
+	}
+	var out []FileChange
+	for _, c := range changes {
+		from, to := c.From.Name, c.To.Name
+		switch {
+		case from == "":
+			if want(to) {
+				out = append(out, FileChange{Path: to, Kind: "added", NewHash: c.To.TreeEntry.Hash})
+			}
+		case to == "":
+			if want(from) {
+				out = append(out, FileChange{Path: from, Kind: "removed", OldHash: c.From.TreeEntry.Hash})
+			}
+		case from != to:
+			if want(to) || want(from) {
+				out = append(out, FileChange{Path: to, OldPath: from, Kind: "renamed", OldHash: c.From.TreeEntry.Hash, NewHash: c.To.TreeEntry.Hash})
+			}
+		default:
+			if want(to) && c.From.TreeEntry.Hash != c.To.TreeEntry.Hash {
+				out = append(out, FileChange{Path: to, Kind: "modified", OldHash: c.From.TreeEntry.Hash, NewHash: c.To.TreeEntry.Hash})
+			}
+		}
+	}
+	sortChanges(out)
+	return out, nil
+}
+
+func sortChanges(cs []FileChange) {
+	sort.Slice(cs, func(i, j int) bool { return cs[i].Path < cs[j].Path })
+}
+
+// siblingPath resolves a path relative to a model's folder inside the
+// repository, refusing paths that leave the repository.
+func siblingPath(model, rel string) (string, error) {
+	if path.IsAbs(rel) || filepath.IsAbs(rel) {
+		return "", fmt.Errorf("external data path %q is absolute", rel)
+	}
+	p := path.Clean(path.Join(path.Dir(model), filepath.ToSlash(rel)))
+	if p == ".." || strings.HasPrefix(p, "../") {
+		return "", fmt.Errorf("external data path %q leaves the repository", rel)
+	}
+	return p, nil
+}
+
+// readRawBlob returns a blob's bytes as stored, without LFS resolution.
+func (r *Repo) readRawBlob(h plumbing.Hash) ([]byte, error) {
+	blob, err := r.r.BlobObject(h)
+	if err != nil {
+		return nil, err
+	}
+	rd, err := blob.Reader()
+	if err != nil {
+		return nil, err
+	}
+	defer rd.Close()
+	return io.ReadAll(rd)
+}

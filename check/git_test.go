@@ -1,0 +1,373 @@
+package check
+
+import (
+	"errors"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/loadline/loadline/measure"
+	"github.com/loadline/loadline/model"
+	"github.com/loadline/loadline/model/build"
+	"github.com/loadline/loadline/model/onnx"
+)
+
+// gitRepo is a real repository made with the git command in a temporary
+// folder, for integration tests.
+type gitRepo struct {
+	t   *testing.T
+	dir string
+}
+
+func newGitRepo(t *testing.T) *gitRepo {
+	t.Helper()
+	if _, err := exec.LookPath("git"); err != nil {
+		t.Skip("git is not installed")
+	}
+	g := &gitRepo{t: t, dir: t.TempDir()}
+	g.git("init", "-q", "-b", "main")
+	g.git("config", "user.email", "dev@wrenfield.example")
+	g.git("config", "user.name", "Wrenfield Dev")
+	g.git("config", "commit.gpgsign", "false")
+	return g
+}
+
+func (g *gitRepo) git(args ...string) string {
+	g.t.Helper()
+	return runGit(g.t, g.dir, args...)
+}
+
+func runGit(t *testing.T, dir string, args ...string) string {
+	t.Helper()
+	cmd := exec.Command("git", args...)
+	cmd.Dir = dir
+	cmd.Env = append(os.Environ(), "GIT_CONFIG_NOSYSTEM=1", "HOME="+dir, "GIT_TERMINAL_PROMPT=0")
+	out, err := cmd.CombinedOutput()
+	if err != nil {
+		t.Fatalf("git %s: %v\n%s", strings.Join(args, " "), err, out)
+	}
+	return strings.TrimSpace(string(out))
+}
+
+func (g *gitRepo) write(p string, data []byte) {
+	g.t.Helper()
+	full := filepath.Join(g.dir, p)
+	if err := os.MkdirAll(filepath.Dir(full), 0o755); err != nil {
+		g.t.Fatal(err)
+	}
+	if err := os.WriteFile(full, data, 0o644); err != nil {
+		g.t.Fatal(err)
+	}
+}
+
+func (g *gitRepo) commit(msg string) string {
+	g.t.Helper()
+	g.git("add", "-A")
+	g.git("commit", "-q", "-m", msg)
+	return g.git("rev-parse", "HEAD")
+}
+
+// smallModel encodes a small convolutional model whose first layer has the
+// given width; different widths give different figures.
+func smallModel(t *testing.T, width int64) []byte {
+	t.Helper()
+	b := build.New("small", 13)
+	x := b.Input("x", model.Float32, 1, 3, 16, 16)
+	x = b.Conv("conv", x, build.Conv2D(width, 3, 1, 1).WithBias())
+	x = b.Relu("relu", x)
+	x = b.GlobalAveragePool("pool", x)
+	x = b.Flatten("flat", x, 1)
+	x = b.Gemm("fc", x, 4, true)
+	b.Output(x)
+	m, err := b.Model()
+	if err != nil {
+		t.Fatal(err)
+	}
+	data, err := onnx.Encode(m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return data
+}
+
+func isModel(p string) bool { return strings.HasSuffix(p, ".onnx") }
+
+func changesText(cs []FileChange) string {
+	var parts []string
+	for _, c := range cs {
+		s := c.Kind + " " + c.Path
+		if c.OldPath != "" {
+			s += " <- " + c.OldPath
+		}
+		parts = append(parts, s)
+	}
+	return strings.Join(parts, "; ")
+}
+
+func TestDiffKinds(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("models/a.onnx", smallModel(t, 8))
+	g.write("models/b.onnx", smallModel(t, 9))
+	g.write("models/c.onnx", smallModel(t, 10))
+	g.write("models/d.onnx", smallModel(t, 11))
+	g.write("README.txt", []byte("notes"))
+	base := g.commit("baseline")
+	g.write("models/a.onnx", smallModel(t, 16))      // modified
+	os.Remove(filepath.Join(g.dir, "models/b.onnx")) // removed
+	g.git("mv", "models/c.onnx", "models/c2.onnx")   // renamed
+	g.write("models/e.onnx", smallModel(t, 12))      // added
+	g.write("README.txt", []byte("more notes"))      // not a model
+	head := g.commit("change")                       // d.onnx unchanged
+
+	r, err := OpenRepo(filepath.Join(g.dir, "models"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	bs, err := r.Resolve(base)
+	if err != nil {
+		t.Fatal(err)
+	}
+	hs, err := r.Resolve(head)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cs, err := Diff(bs, hs, isModel)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := "modified models/a.onnx; removed models/b.onnx; renamed models/c2.onnx <- models/c.onnx; added models/e.onnx"
+	if got := changesText(cs); got != want {
+		t.Errorf("changes:\n got %s\nwant %s", got, want)
+	}
+}
+
+func TestMergeBaseAndDetachedHead(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("m.onnx", smallModel(t, 8))
+	fork := g.commit("base")
+	g.git("checkout", "-q", "-b", "feature")
+	g.write("m.onnx", smallModel(t, 12))
+	g.commit("wider")
+	g.git("checkout", "-q", "main")
+	g.write("other.onnx", smallModel(t, 4))
+	g.commit("main moves on")
+	g.git("checkout", "-q", "feature")
+	g.git("merge", "-q", "--no-edit", "main") // a merge commit on the feature
+	g.git("checkout", "-q", "--detach", "HEAD")
+
+	r, err := OpenRepo(g.dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	head, err := r.Resolve("HEAD")
+	if err != nil {
+		t.Fatalf("detached HEAD: %v", err)
+	}
+	branch, err := r.DefaultBranch()
+	if err != nil || branch != "main" {
+		t.Fatalf("default branch %q, %v", branch, err)
+	}
+	mainSnap, err := r.Resolve(branch)
+	if err != nil {
+		t.Fatal(err)
+	}
+	mb, err := r.MergeBase(head, mainSnap)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// After merging main into feature, the merge-base is main's tip.
+	if mb.Commit != mainSnap.Commit {
+		t.Errorf("merge-base %s, want main's tip %s (fork point was %s)", mb.Commit, mainSnap.Commit, fork)
+	}
+	cs, err := Diff(mb, head, isModel)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := changesText(cs); got != "modified m.onnx" {
+		t.Errorf("changes %q, want only the feature's model change", got)
+	}
+}
+
+func TestWorktree(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("m.onnx", smallModel(t, 8))
+	g.commit("base")
+	wt := filepath.Join(t.TempDir(), "wt")
+	g.git("worktree", "add", "-q", "-b", "side", wt)
+	r, err := OpenRepo(wt)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.CommonDir != filepath.Join(g.dir, ".git") {
+		t.Errorf("common dir %s, want %s", r.CommonDir, filepath.Join(g.dir, ".git"))
+	}
+	s, err := r.Resolve("HEAD")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := s.Read("m.onnx"); err != nil {
+		t.Fatal(err)
+	}
+}
+
+func TestShallowCloneMissingBase(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("m.onnx", smallModel(t, 8))
+	base := g.commit("base")
+	g.write("m.onnx", smallModel(t, 12))
+	g.commit("change")
+	clone := filepath.Join(t.TempDir(), "clone")
+	runGit(t, t.TempDir(), "clone", "-q", "--depth", "1", "file://"+g.dir, clone)
+	r, err := OpenRepo(clone)
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = r.Resolve(base)
+	var env *EnvError
+	if !errors.As(err, &env) {
+		t.Fatalf("want an environment error, got %v", err)
+	}
+	if !strings.Contains(env.Hint, "shallow") || !strings.Contains(env.Hint, "fetch") {
+		t.Errorf("hint %q should say the clone is shallow and how to fetch", env.Hint)
+	}
+}
+
+func TestStagedOnly(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("staged.onnx", smallModel(t, 8))
+	g.write("unstaged.onnx", smallModel(t, 8))
+	g.commit("base")
+	g.write("staged.onnx", smallModel(t, 16))
+	g.git("add", "staged.onnx")
+	g.write("unstaged.onnx", smallModel(t, 16)) // changed in the working tree only
+	r, err := OpenRepo(g.dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	head, err := r.Resolve("HEAD")
+	if err != nil {
+		t.Fatal(err)
+	}
+	idx, err := r.Index()
+	if err != nil {
+		t.Fatal(err)
+	}
+	cs, err := Diff(head, idx, isModel)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := changesText(cs); got != "modified staged.onnx" {
+		t.Errorf("staged changes %q, want only staged.onnx", got)
+	}
+	// What is measured is the staged blob, not the working tree's file.
+	data, err := idx.Read("unstaged.onnx")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if string(data) != string(smallModel(t, 8)) {
+		t.Error("the index snapshot read the working tree instead of the staged blob")
+	}
+}
+
+func TestLFS(t *testing.T) {
+	if _, err := exec.LookPath("git-lfs"); err != nil {
+		if os.Getenv("LOADLINE_REQUIRE_CORPUS") == "1" {
+			t.Fatal("git-lfs is not installed (apt-get install git-lfs) (LOADLINE_REQUIRE_CORPUS=1)")
+		}
+		t.Skip("git-lfs is not installed (apt-get install git-lfs)")
+	}
+	g := newGitRepo(t)
+	g.git("lfs", "install", "--local")
+	g.git("lfs", "track", "*.onnx")
+	want := smallModel(t, 8)
+	g.write("m.onnx", want)
+	g.commit("lfs model")
+	r, err := OpenRepo(g.dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := r.Resolve("HEAD")
+	if err != nil {
+		t.Fatal(err)
+	}
+	// The blob itself is a pointer.
+	h, _ := s.Hash("m.onnx")
+	raw, err := r.readRawBlob(h)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, ok := parseLFSPointer(raw); !ok {
+		t.Fatalf("the committed blob is not an LFS pointer: %q", raw[:min(len(raw), 60)])
+	}
+	got, err := s.Read("m.onnx")
+	if err != nil {
+		t.Fatalf("object present: %v", err)
+	}
+	if string(got) != string(want) {
+		t.Fatal("LFS object content differs from the committed model")
+	}
+	// Missing object: a clear environment error saying how to fetch it.
+	if err := os.RemoveAll(filepath.Join(g.dir, ".git", "lfs", "objects")); err != nil {
+		t.Fatal(err)
+	}
+	_, err = s.Read("m.onnx")
+	var env *EnvError
+	if !errors.As(err, &env) || !strings.Contains(err.Error(), "LFS") || !strings.Contains(env.Hint, "git lfs fetch") {
+		t.Fatalf("object missing: want an LFS environment error with a fetch hint, got %v", err)
+	}
+}
+
+func TestCacheWarmAndCorrupt(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("a.onnx", smallModel(t, 8))
+	g.write("b.onnx", smallModel(t, 12))
+	g.commit("base")
+	r, err := OpenRepo(g.dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := r.Resolve("HEAD")
+	if err != nil {
+		t.Fatal(err)
+	}
+	cache := NewCache(r)
+	jobs := []blobJob{{s, "a.onnx"}, {s, "b.onnx"}}
+	var cold Stats
+	first := measureBlobs(jobs, measure.Options{}, cache, &cold)
+	if cold.Measured.Load() != 2 || cold.CacheHits.Load() != 0 {
+		t.Fatalf("cold: measured %d, hits %d", cold.Measured.Load(), cold.CacheHits.Load())
+	}
+	var warm Stats
+	second := measureBlobs(jobs, measure.Options{}, cache, &warm)
+	if warm.Measured.Load() != 0 || warm.CacheHits.Load() != 2 {
+		t.Fatalf("warm: measured %d, hits %d; the second check must measure nothing", warm.Measured.Load(), warm.CacheHits.Load())
+	}
+	if first[1].Params != second[1].Params || first[1].Params == 0 {
+		t.Errorf("cached params %d differ from measured %d", second[1].Params, first[1].Params)
+	}
+	// Different dims are a different key.
+	var dims Stats
+	measureBlobs(jobs[:1], measure.Options{Dims: map[string]int64{"batch": 4}}, cache, &dims)
+	if dims.Measured.Load() != 1 {
+		t.Error("a different --dim reused a cached entry")
+	}
+	// Corrupt every entry: ignored, measured again, rewritten.
+	filepath.Walk(cache.Dir, func(p string, info os.FileInfo, err error) error {
+		if err == nil && !info.IsDir() {
+			os.WriteFile(p, []byte("{not json"), 0o644)
+		}
+		return nil
+	})
+	var again Stats
+	measureBlobs(jobs, measure.Options{}, cache, &again)
+	if again.Measured.Load() != 2 {
+		t.Fatalf("corrupt entries were used: measured %d", again.Measured.Load())
+	}
+	var healed Stats
+	measureBlobs(jobs, measure.Options{}, cache, &healed)
+	if healed.CacheHits.Load() != 2 {
+		t.Errorf("corrupt entries were not rewritten: hits %d", healed.CacheHits.Load())
+	}
+}

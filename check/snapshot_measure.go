@@ -1,0 +1,102 @@
+package check
+
+import (
+	"fmt"
+	"path"
+	"path/filepath"
+	"runtime"
+	"sync"
+	"sync/atomic"
+
+	"github.com/loadline/loadline/measure"
+	"github.com/loadline/loadline/model/onnx"
+)
+
+// Stats counts what a check did, for progress lines and tests.
+type Stats struct {
+	Measured  atomic.Int64 // models decoded and measured
+	CacheHits atomic.Int64 // models whose figures came from the cache
+}
+
+// blobJob is one model file at one revision to measure.
+type blobJob struct {
+	snap *Snapshot
+	path string
+}
+
+// measureBlobs measures each job in a pool bounded by the number of CPUs;
+// each worker holds one model in memory at a time.
+func measureBlobs(jobs []blobJob, opts measure.Options, cache *Cache, stats *Stats) []*measure.Metrics {
+	out := make([]*measure.Metrics, len(jobs))
+	var wg sync.WaitGroup
+	sem := make(chan struct{}, max(1, runtime.NumCPU()))
+	for i, j := range jobs {
+		wg.Add(1)
+		sem <- struct{}{}
+		go func() {
+			defer wg.Done()
+			defer func() { <-sem }()
+			out[i] = measureBlob(j.snap, j.path, opts, cache, stats)
+		}()
+	}
+	wg.Wait()
+	return out
+}
+
+// measureBlob reads one model from the git object store at a snapshot
+// (never from the working tree: what is checked is what is committed) and
+// measures it, using the cache when it can.
+func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stats *Stats) *measure.Metrics {
+	fail := func(err error) *measure.Metrics {
+		return &measure.Metrics{Path: p, Format: formatOf(p), Error: err.Error(),
+			Inputs: []measure.IOInfo{}, Outputs: []measure.IOInfo{}, Unresolved: []measure.Unresolved{}}
+	}
+	h, ok := s.Hash(p)
+	if !ok {
+		return fail(fmt.Errorf("%s: not in %s", p, s.Label))
+	}
+	key := cacheKey(h.String(), opts.Dims)
+	if m := cache.Get(key, func(dep, blob string) bool {
+		dh, ok := s.Hash(dep)
+		return ok && dh.String() == blob
+	}); m != nil {
+		stats.CacheHits.Add(1)
+		m.Path = p
+		return m
+	}
+	if formatOf(p) != "onnx" {
+		return fail(fmt.Errorf("%s: unsupported model format (loadline reads .onnx files)", p))
+	}
+	data, err := s.Read(p)
+	if err != nil {
+		return fail(err)
+	}
+	deps := map[string]string{}
+	var mu sync.Mutex
+	m, err := onnx.Decode(data, onnx.Options{
+		Path: p,
+		Dir:  path.Dir(p),
+		ReadFile: func(name string) ([]byte, error) {
+			rel := filepath.ToSlash(name)
+			dh, ok := s.Hash(rel)
+			if !ok {
+				return nil, fmt.Errorf("external data file %s is not in %s", rel, s.Label)
+			}
+			mu.Lock()
+			deps[rel] = dh.String()
+			mu.Unlock()
+			return s.Read(rel)
+		},
+	})
+	if err != nil {
+		return fail(err)
+	}
+	met, err := measure.Measure(m, int64(len(data)), opts)
+	if err != nil {
+		return fail(fmt.Errorf("%s: %w", p, err))
+	}
+	met.Path = p
+	stats.Measured.Add(1)
+	cache.Put(key, met, deps)
+	return met
+}
