@@ -1,0 +1,161 @@
+package check
+
+import (
+	"bytes"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+)
+
+// hookMarker is on the second line of every hook loadline writes; a hook
+// without it belongs to someone else and is never overwritten silently.
+const hookMarker = "# written by loadline hook install; remove with: loadline hook uninstall"
+
+// chainedSuffix names the file an existing hook is moved to when loadline
+// chains to it.
+const chainedSuffix = ".before-loadline"
+
+// HookOptions are the choices of `loadline hook install`.
+type HookOptions struct {
+	Stage  string // "pre-commit" (default) or "pre-push"
+	Binary string // the loadline executable the hook runs
+	Force  bool   // overwrite a hook loadline did not write
+	Chain  bool   // keep an existing hook and run it first
+	Args   []string
+}
+
+// HooksDir returns the folder git runs hooks from: core.hooksPath when set
+// (relative to the top of the working tree), else <git dir>/hooks.
+func (r *Repo) HooksDir() (string, error) {
+	cfg, err := r.r.Config()
+	if err != nil {
+		return "", &EnvError{Err: fmt.Errorf("reading git config: %w", err)}
+	}
+	if p := cfg.Raw.Section("core").Option("hooksPath"); p != "" {
+		if strings.HasPrefix(p, "~/") {
+			if home, err := os.UserHomeDir(); err == nil {
+				p = filepath.Join(home, p[2:])
+			}
+		}
+		if !filepath.IsAbs(p) {
+			p = filepath.Join(r.Root, p)
+		}
+		return p, nil
+	}
+	return filepath.Join(r.CommonDir, "hooks"), nil
+}
+
+func hookScript(o HookOptions, chained string) string {
+	var b strings.Builder
+	b.WriteString("#!/bin/sh\n" + hookMarker + "\n")
+	if chained != "" {
+		// Run the hook that was there before; stop if it fails. A pre-push
+		// hook reads the pushed refs on stdin, so save them for both.
+		if o.Stage == "pre-push" {
+			b.WriteString("input=$(cat)\n")
+			fmt.Fprintf(&b, "printf '%%s\\n' \"$input\" | %q \"$@\" || exit $?\n", chained)
+		} else {
+			fmt.Fprintf(&b, "%q \"$@\" || exit $?\n", chained)
+		}
+	}
+	mode := "--staged"
+	if o.Stage == "pre-push" {
+		mode = "--pre-push"
+	}
+	args := append([]string{"check", mode}, o.Args...)
+	quoted := make([]string, len(args))
+	for i, a := range args {
+		quoted[i] = fmt.Sprintf("%q", a)
+	}
+	if o.Stage == "pre-push" && chained != "" {
+		fmt.Fprintf(&b, "printf '%%s\\n' \"$input\" | exec %q %s\n", o.Binary, strings.Join(quoted, " "))
+	} else {
+		fmt.Fprintf(&b, "exec %q %s\n", o.Binary, strings.Join(quoted, " "))
+	}
+	return b.String()
+}
+
+func validStage(s string) (string, error) {
+	switch s {
+	case "", "pre-commit":
+		return "pre-commit", nil
+	case "pre-push":
+		return s, nil
+	}
+	return "", fmt.Errorf("--stage %q: loadline installs pre-commit or pre-push hooks", s)
+}
+
+// InstallHook writes the hook and returns its path.
+func (r *Repo) InstallHook(o HookOptions) (string, error) {
+	stage, err := validStage(o.Stage)
+	if err != nil {
+		return "", err
+	}
+	o.Stage = stage
+	dir, err := r.HooksDir()
+	if err != nil {
+		return "", err
+	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return "", &EnvError{Err: err}
+	}
+	p := filepath.Join(dir, stage)
+	chained := ""
+	if old, err := os.ReadFile(p); err == nil && !bytes.Contains(old, []byte(hookMarker)) {
+		switch {
+		case o.Chain:
+			chained = p + chainedSuffix
+			if _, err := os.Stat(chained); err == nil {
+				return "", fmt.Errorf("%s exists already; move it away before chaining again", chained)
+			}
+			if err := os.Rename(p, chained); err != nil {
+				return "", &EnvError{Err: err}
+			}
+		case !o.Force:
+			return "", fmt.Errorf("%s exists and was not written by loadline; use --chain to run it before loadline, or --force to replace it", p)
+		}
+	} else if err == nil {
+		// Reinstalling over our own hook keeps a chain we set up before.
+		if _, err := os.Stat(p + chainedSuffix); err == nil {
+			chained = p + chainedSuffix
+		}
+	}
+	if err := os.WriteFile(p, []byte(hookScript(o, chained)), 0o755); err != nil {
+		return "", &EnvError{Err: err}
+	}
+	return p, nil
+}
+
+// UninstallHook removes loadline's hook (restoring a chained one) and
+// returns the path it removed.
+func (r *Repo) UninstallHook(stage string) (string, error) {
+	stage, err := validStage(stage)
+	if err != nil {
+		return "", err
+	}
+	dir, err := r.HooksDir()
+	if err != nil {
+		return "", err
+	}
+	p := filepath.Join(dir, stage)
+	old, err := os.ReadFile(p)
+	if os.IsNotExist(err) {
+		return "", fmt.Errorf("no %s hook is installed in %s", stage, dir)
+	}
+	if err != nil {
+		return "", &EnvError{Err: err}
+	}
+	if !bytes.Contains(old, []byte(hookMarker)) {
+		return "", fmt.Errorf("%s was not written by loadline; leaving it alone", p)
+	}
+	if err := os.Remove(p); err != nil {
+		return "", &EnvError{Err: err}
+	}
+	if _, err := os.Stat(p + chainedSuffix); err == nil {
+		if err := os.Rename(p+chainedSuffix, p); err != nil {
+			return "", &EnvError{Err: err}
+		}
+	}
+	return p, nil
+}

@@ -1,0 +1,65 @@
+package check
+
+import (
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+func TestHookInstallRefusesForeignAndChains(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("m.onnx", smallModel(t, 8))
+	g.commit("base")
+	r, err := OpenRepo(g.dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	hooks := filepath.Join(g.dir, ".git", "hooks")
+	os.MkdirAll(hooks, 0o755)
+	foreign := filepath.Join(hooks, "pre-commit")
+	os.WriteFile(foreign, []byte("#!/bin/sh\necho theirs\n"), 0o755)
+
+	if _, err := r.InstallHook(HookOptions{Binary: "/usr/bin/loadline"}); err == nil || !strings.Contains(err.Error(), "--chain") {
+		t.Fatalf("installing over a foreign hook: want a refusal naming --chain/--force, got %v", err)
+	}
+	p, err := r.InstallHook(HookOptions{Binary: "/usr/bin/loadline", Chain: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	body, _ := os.ReadFile(p)
+	if !strings.Contains(string(body), foreign+chainedSuffix) || !strings.Contains(string(body), "check\" \"--staged") {
+		t.Errorf("hook does not chain and check staged changes:\n%s", body)
+	}
+	if _, err := r.UninstallHook("pre-commit"); err != nil {
+		t.Fatal(err)
+	}
+	restored, _ := os.ReadFile(foreign)
+	if string(restored) != "#!/bin/sh\necho theirs\n" {
+		t.Errorf("uninstall did not restore the chained hook: %q", restored)
+	}
+	if _, err := r.UninstallHook("pre-commit"); err == nil {
+		t.Error("uninstalling a hook loadline did not write must refuse")
+	}
+}
+
+func TestHookHonoursHooksPath(t *testing.T) {
+	g := newGitRepo(t)
+	g.git("config", "core.hooksPath", "tools/hooks")
+	g.write("m.onnx", smallModel(t, 8))
+	g.commit("base")
+	r, err := OpenRepo(g.dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := r.InstallHook(HookOptions{Stage: "pre-push", Binary: "/usr/bin/loadline"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if want := filepath.Join(g.dir, "tools", "hooks", "pre-push"); p != want {
+		t.Errorf("hook at %s, want %s", p, want)
+	}
+	if _, err := r.InstallHook(HookOptions{Stage: "post-merge"}); err == nil {
+		t.Error("an unknown stage must be refused")
+	}
+}
