@@ -77,6 +77,12 @@ func TestConvTransposeShapes(t *testing.T) {
 		{name: "output_shape full", op: "ConvTranspose", in: []nnIn{x3, w}, attrs: []*model.Attr{atIs("output_shape", 1, 2, 10, 8)}, want: []string{"float32[1,2,10,8]"}},
 		// corpus test_convtranspose_autopad_same: 3*2 = 6
 		{name: "SAME_UPPER", op: "ConvTranspose", in: []nnIn{x3, w}, attrs: []*model.Attr{atS("auto_pad", "SAME_UPPER"), atIs("strides", 2, 2)}, want: []string{"float32[1,2,6,6]"}},
+		// ONNX operator spec formula: SAME gives in*stride even with output_padding or a kernel
+		// smaller than the stride (ONNX 1.12's infer_shapes says 11 and 13 here)
+		{name: "SAME output_padding", op: "ConvTranspose", in: []nnIn{nnRT("x", f32, 1, 1, 5), nnRT("w", f32, 1, 1, 5)},
+			attrs: []*model.Attr{atS("auto_pad", "SAME_UPPER"), atIs("strides", 2), atIs("output_padding", 1), atIs("dilations", 3)}, want: []string{"float32[1,1,10]"}},
+		{name: "SAME small kernel", op: "ConvTranspose", in: []nnIn{nnRT("x", f32, 1, 1, 7), nnRT("w", f32, 1, 1, 1)},
+			attrs: []*model.Attr{atS("auto_pad", "SAME_LOWER"), atIs("strides", 2)}, want: []string{"float32[1,1,14]"}},
 		// corpus test_convtranspose_pads: 3*(3-1)+3-1-1 = 7, 2*(3-1)+3-2-2 = 3
 		{name: "pads", op: "ConvTranspose", in: []nnIn{x3, w}, attrs: []*model.Attr{atIs("strides", 3, 2), atIs("pads", 1, 2, 1, 2)}, want: []string{"float32[1,2,7,3]"}},
 		// corpus test_convtranspose_dilations: (3-1)+(2-1)*2+1 = 5

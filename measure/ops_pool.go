@@ -207,7 +207,10 @@ func inferCol2Im(c *ctx) ([]*Value, error) {
 	}
 	area := int64(1)
 	for _, b := range block {
-		area *= b
+		var ok bool
+		if area, ok = checkedMul(area, b); !ok {
+			return nil, fmt.Errorf("block_shape %v has an area that overflows int64", block)
+		}
 	}
 	ch := xs[1]
 	if ch.IsKnown() {

@@ -48,7 +48,11 @@ func scaledDim(in model.Dim, scale float64) (model.Dim, error) {
 		return model.Dim{}, fmt.Errorf("scale %v is not a positive finite number", scale)
 	}
 	if in.IsKnown() {
-		return model.Known(int64(math.Floor(float64(float32(in.Value) * float32(scale))))), nil
+		out := math.Floor(float64(float32(in.Value) * float32(scale)))
+		if out > 1<<53 || out < 0 {
+			return model.Dim{}, fmt.Errorf("size %d scaled by %v gives %g, not a usable size", in.Value, scale, out)
+		}
+		return model.Known(int64(out)), nil
 	}
 	if scale == math.Trunc(scale) {
 		return dimMul(in, model.Known(int64(scale))), nil
@@ -62,6 +66,9 @@ func scaledDim(in model.Dim, scale float64) (model.Dim, error) {
 // scaleFloats reads a scales input as floats, failing when it is computed
 // at run time.
 func scaleFloats(c *ctx, i int) ([]float64, error) {
+	if !c.has(i) {
+		return nil, fmt.Errorf("scales (input %d) is missing", i)
+	}
 	d := c.consts(i)
 	if d == nil {
 		return nil, fmt.Errorf("scales (input %d, %q) is computed at run time; the output shape depends on its value", i, c.node.Inputs[i])
