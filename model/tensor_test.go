@@ -264,7 +264,9 @@ func TestFloat8(t *testing.T) {
 		b    []byte
 		want []float64
 	}{
-		// 1.0, the largest finite value, the smallest subnormal, NaN.
+		// 1.0, the largest finite value, the smallest subnormal, NaN or
+		// Inf: the tables of onnx/docs/Float8.md (E4M3FN max 448, E4M3FNUZ
+		// max 240, E5M2 and E5M2FNUZ max 57344).
 		{Float8E4M3FN, []byte{0x38, 0x7E, 0x01, 0x7F}, []float64{1, 448, math.Ldexp(1, -9), math.NaN()}},
 		{Float8E4M3FNUZ, []byte{0x40, 0x7F, 0x01, 0x80}, []float64{1, 240, math.Ldexp(1, -10), math.NaN()}},
 		{Float8E5M2, []byte{0x3C, 0x7B, 0x01, 0x7C}, []float64{1, 57344, math.Ldexp(1, -16), math.Inf(1)}},

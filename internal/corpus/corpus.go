@@ -50,7 +50,11 @@ func Require(t testing.TB) string {
 	t.Helper()
 	dir := Dir()
 	if dir == "" {
-		Missing(t, "ONNX backend test corpus not found at "+DefaultDir+" (apt-get install libonnx-testdata, or set LOADLINE_CORPUS_DIR)")
+		where := DefaultDir
+		if env := os.Getenv("LOADLINE_CORPUS_DIR"); env != "" {
+			where = env + " ($LOADLINE_CORPUS_DIR)"
+		}
+		Missing(t, "ONNX backend test corpus not found at "+where+" (apt-get install libonnx-testdata, or set LOADLINE_CORPUS_DIR)")
 	}
 	return dir
 }

@@ -400,3 +400,8 @@ func TestAttributeWithoutValue(t *testing.T) {
 		checkDecoded(t, m)
 	}
 }
+
+func TestSegmentedTensorRefused(t *testing.T) {
+	_, err := Decode(initializerModel(cat(pbString(8, "w"), packedDims(2), pbVarint(2, 1), pbBytes(3, cat(pbVarint(1, 0), pbVarint(2, 1))))), Options{Path: "m.onnx"})
+	wantDecodeError(t, err, "m.onnx", `graph.initializer[0].segment: tensor "w": tensors split into segments`)
+}

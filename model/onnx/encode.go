@@ -11,8 +11,8 @@ import (
 	"google.golang.org/protobuf/encoding/protowire"
 )
 
-// Encode writes m as an ONNX ModelProto, for tests and the demo. Fields are
-// written in field-number order; Decode(Encode(m)) reproduces m. Tensors
+// Encode writes m as an ONNX ModelProto, for tests and the demo;
+// Decode(Encode(m)) reproduces m (see the package doc for the mapping). Tensors
 // declared without values (model.EncodingNone) cannot be written inline:
 // Encode refuses them with an error naming the tensor; use
 // EncodeWithExternal to write them as external-data references instead.

@@ -108,6 +108,11 @@ func (d *decoder) tensor(lo, hi, off int) (*model.Tensor, error) {
 		case 2:
 			p.dtype, err = d.int32(&f, "data_type")
 			p.dtypeOff = f.off
+		case 3:
+			if err = d.skipBytes(&f, "segment"); err == nil {
+				err = &DecodeError{Path: d.path, Field: "segment", Offset: f.off,
+					Err: fmt.Errorf("tensors split into segments (TensorProto.segment) are not supported")}
+			}
 		case 4, 5, 7, 10, 11:
 			err = d.typedValues(&f, &p)
 		case 6:
