@@ -90,14 +90,18 @@ func (d DType) Bits() int { return dtypes[d].bits }
 
 // StorageBytes is the number of bytes n elements of d occupy when packed as
 // the standard stores them (sub-byte types pack two to a byte, rounded up).
-// It returns -1 when the size is not static (strings, unknown types).
+// It returns -1 when the size is not static (strings, unknown types) or
+// overflows int64.
 func (d DType) StorageBytes(n int64) int64 {
 	b := int64(d.Bits())
 	if b == 0 || n < 0 {
 		return -1
 	}
 	if b < 8 {
-		return (n*b + 7) / 8
+		return n/8*b + (n%8*b+7)/8
+	}
+	if n > (1<<63-1)/(b/8) {
+		return -1 // the size overflows int64
 	}
 	return n * (b / 8)
 }
