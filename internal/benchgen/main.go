@@ -8,8 +8,8 @@ import (
 	"fmt"
 	"os"
 
-	"github.com/loadline/loadline/model/onnx"
 	"github.com/loadline/loadline/measure/benchmodel"
+	"github.com/loadline/loadline/model/onnx"
 )
 
 func main() {
