@@ -2,6 +2,7 @@ package measure
 
 import (
 	"math"
+	"strings"
 	"testing"
 
 	"github.com/loadline/loadline/model"
@@ -111,5 +112,317 @@ func TestCostTableCoversInference(t *testing.T) {
 		if !known[op] {
 			t.Errorf("uncostedOps has %s, which shape inference does not know", op)
 		}
+	}
+}
+
+// costGraph builds small graphs for the hand-worked cases: float32 runtime
+// inputs, weights declared without values, nodes in order.
+type costGraph struct{ g *model.Graph }
+
+func newCostGraph() *costGraph { return &costGraph{g: &model.Graph{Name: "cost"}} }
+
+// in adds a runtime input; dims are ints (known) or strings (symbols).
+func (b *costGraph) in(name string, dt model.DType, dims ...any) string {
+	s := model.Shape{}
+	for _, d := range dims {
+		switch v := d.(type) {
+		case int:
+			s = append(s, model.Known(int64(v)))
+		case string:
+			s = append(s, model.Sym(v))
+		}
+	}
+	b.g.Inputs = append(b.g.Inputs, &model.ValueInfo{Name: name, Type: model.TensorType(dt, s)})
+	return name
+}
+
+// w adds a float32 weight declared without values.
+func (b *costGraph) w(name string, dims ...int64) string {
+	b.g.Initializers = append(b.g.Initializers, &model.Tensor{Name: name, DType: model.Float32, Dims: dims})
+	return name
+}
+
+// i64 adds an int64 scalar constant.
+func (b *costGraph) i64(name string, v int64) string {
+	b.g.Initializers = append(b.g.Initializers, nnIn{name: name, dt: model.Int64, shape: model.Shape{}, ints: []int64{v}}.tensor())
+	return name
+}
+
+func (b *costGraph) node(op, name string, ins []string, out string, attrs ...*model.Attr) string {
+	b.g.Nodes = append(b.g.Nodes, &model.Node{Name: name, Op: op, Inputs: ins, Outputs: []string{out}, Attrs: attrs})
+	return out
+}
+
+func (b *costGraph) out(names ...string) {
+	for _, n := range names {
+		b.g.Outputs = append(b.g.Outputs, &model.ValueInfo{Name: n})
+	}
+}
+
+func (b *costGraph) model() *model.Model {
+	return &model.Model{Format: "onnx", IRVersion: 8, Opsets: map[string]int64{"": 17}, Graph: b.g}
+}
+
+func atG(name string, g *model.Graph) *model.Attr {
+	return &model.Attr{Name: name, Kind: model.AttrGraph, Graph: g}
+}
+
+const f32c = model.Float32
+
+// TestCostsHandWorked checks each MAC rule on one small node, the
+// arithmetic in the comment beside each figure.
+func TestCostsHandWorked(t *testing.T) {
+	cases := []struct {
+		name  string
+		build func(b *costGraph) string
+		macs  int64
+	}{
+		{"depthwise conv", func(b *costGraph) string {
+			x := b.in("x", f32c, 1, 8, 10, 10)
+			return b.node("Conv", "dw", []string{x, b.w("w", 8, 1, 3, 3)}, "y", atI("group", 8), atIs("pads", 1, 1, 1, 1))
+		}, 8 * 10 * 10 * 1 * 3 * 3}, // derived: output [1,8,10,10] = 800 elements × C_in/group 1 × kernel 3×3 = 7,200
+		{"grouped conv", func(b *costGraph) string {
+			x := b.in("x", f32c, 1, 8, 6, 6)
+			return b.node("Conv", "g", []string{x, b.w("w", 16, 4, 1, 1)}, "y", atI("group", 2))
+		}, 16 * 6 * 6 * 4}, // derived: output [1,16,6,6] = 576 elements × C_in/group 8/2=4 × kernel 1 = 2,304
+		{"dilated conv", func(b *costGraph) string {
+			x := b.in("x", f32c, 1, 2, 9, 9)
+			return b.node("Conv", "dil", []string{x, b.w("w", 4, 2, 3, 3)}, "y", atIs("dilations", 2, 2))
+		}, 4 * 5 * 5 * 2 * 9}, // derived: effective kernel (3-1)·2+1 = 5, output 9-5+1 = 5 → [1,4,5,5] = 100 × C_in 2 × 3×3 = 1,800 (dilation adds no taps)
+		{"ConvTranspose output_padding", func(b *costGraph) string {
+			x := b.in("x", f32c, 1, 2, 3, 3)
+			return b.node("ConvTranspose", "ct", []string{x, b.w("w", 2, 3, 3, 3)}, "y", atIs("strides", 2, 2), atIs("output_padding", 1, 1))
+		}, 18 * 3 * 9}, // derived: output 2·(3-1)+1+3 = 8, [1,3,8,8]; MACs = input 1·2·3·3 = 18 × C_out/group 3 × 3×3 = 486
+		{"batched broadcast MatMul", func(b *costGraph) string {
+			return b.node("MatMul", "mm", []string{b.in("a", f32c, 2, 1, 4, 5), b.in("b", f32c, 3, 5, 6)}, "y")
+		}, 2 * 3 * 4 * 6 * 5}, // derived: [2,1,4,5]×[3,5,6] → [2,3,4,6] = 144 elements × K 5 = 720
+		{"Gemm transA", func(b *costGraph) string {
+			return b.node("Gemm", "gemm", []string{b.in("a", f32c, 4, 3), b.w("b", 4, 5)}, "y", atI("transA", 1))
+		}, 3 * 5 * 4}, // derived: Aᵀ is [3,4], so M=3, K=4; B [4,5] → [3,5] = 15 × K 4 = 60
+		{"Einsum batched matmul", func(b *costGraph) string {
+			return b.node("Einsum", "es", []string{b.in("x", f32c, 2, 3, 4), b.in("y", f32c, 2, 4, 5)}, "z", atS("equation", "bij,bjk->bik"))
+		}, 2 * 3 * 4 * 5}, // derived: b=2 · i=3 · j=4 · k=5 = 120
+		{"LSTM bidirectional", func(b *costGraph) string {
+			x := b.in("x", f32c, 5, 2, 3)
+			return b.node("LSTM", "lstm", []string{x, b.w("W", 2, 16, 3), b.w("R", 2, 16, 4)}, "y",
+				atI("hidden_size", 4), atS("direction", "bidirectional"))
+		}, 4 * (3 + 4) * 4 * 5 * 2 * 2}, // derived: 4 gates × (input 3 + hidden 4) × hidden 4 × seq 5 × batch 2 × 2 directions = 2,240
+		{"GRU", func(b *costGraph) string {
+			x := b.in("x", f32c, 7, 1, 10)
+			return b.node("GRU", "gru", []string{x, b.w("W", 1, 24, 10), b.w("R", 1, 24, 8)}, "y")
+		}, 3 * (10 + 8) * 8 * 7}, // derived: 3 gates × (10 + 8) × hidden 8 (R's last dim) × seq 7 × batch 1 × 1 direction = 3,024
+		{"QLinearConv", func(b *costGraph) string {
+			x := b.in("x", model.Uint8, 1, 3, 5, 5)
+			s, z := b.in("s", f32c), b.in("z", model.Uint8)
+			w := b.in("wq", model.Uint8, 2, 3, 3, 3)
+			return b.node("QLinearConv", "qc", []string{x, s, z, w, s, z, s, z}, "y")
+		}, 2 * 3 * 3 * 3 * 9}, // derived: output [1,2,3,3] = 18 × C_in 3 × 3×3 = 486, as the float Conv
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			b := newCostGraph()
+			b.out(c.build(b))
+			got := costsOf(t, b.model(), nil)
+			if len(got.Unresolved) > 0 {
+				t.Fatalf("unresolved: %+v", got.Unresolved)
+			}
+			if got.MACs != c.macs || got.FLOPs != 2*c.macs {
+				t.Errorf("MACs %d, FLOPs %d; want %d and %d", got.MACs, got.FLOPs, c.macs, 2*c.macs)
+			}
+			if len(got.Nodes) != 1 || !got.Nodes[0].Known || got.Nodes[0].MACs != c.macs {
+				t.Errorf("nodes %+v", got.Nodes)
+			}
+		})
+	}
+}
+
+// TestCostsFLOPs checks FLOPs = 2 × MACs + one per output element of
+// elementwise ops, window elements of pools, on a small classifier.
+func TestCostsFLOPs(t *testing.T) {
+	b := newCostGraph()
+	x := b.in("x", f32c, 1, 3, 8, 8)
+	y := b.node("Conv", "conv", []string{x, b.w("w", 4, 3, 3, 3)}, "c", atIs("pads", 1, 1, 1, 1))
+	y = b.node("Relu", "relu", []string{y}, "r")
+	y = b.node("MaxPool", "pool", []string{y}, "p", atIs("kernel_shape", 2, 2), atIs("strides", 2, 2))
+	y = b.node("GlobalAveragePool", "gap", []string{y}, "g")
+	y = b.node("Flatten", "flat", []string{y}, "f")
+	y = b.node("Gemm", "fc", []string{y, b.w("fcw", 10, 4)}, "l", atI("transB", 1))
+	b.out(b.node("Softmax", "softmax", []string{y}, "s"))
+	got := costsOf(t, b.model(), nil)
+	want := map[string]OpCost{
+		"Conv":              {1, 6912, 13824}, // derived: output [1,4,8,8] = 256 × C_in 3 × 3×3 = 6,912 MACs
+		"Relu":              {1, 0, 256},      // derived: one per output element, 4·8·8 = 256
+		"MaxPool":           {1, 0, 256},      // derived: output [1,4,4,4] = 64 × window 2×2 = 256
+		"GlobalAveragePool": {1, 0, 64},       // derived: output [1,4,1,1] = 4 × window 4×4 = 64, one per input element
+		"Flatten":           {1, 0, 0},        // data movement: 0 by definition
+		"Gemm":              {1, 40, 80},      // derived: output [1,10] × K 4 = 40 MACs
+		"Softmax":           {1, 0, 10},       // derived: one per output element
+	}
+	for op, w := range want {
+		if got.ByOp[op] != w {
+			t.Errorf("%s: %+v, want %+v", op, got.ByOp[op], w)
+		}
+	}
+	if len(got.ByOp) != len(want) {
+		t.Errorf("by op: %+v", got.ByOp)
+	}
+	// derived: MACs 6,912 + 40 = 6,952; FLOPs 2·6,952 + 256 + 256 + 64 + 10 = 14,490
+	if got.MACs != 6952 || got.FLOPs != 14490 {
+		t.Errorf("MACs %d, FLOPs %d; want 6952 and 14490", got.MACs, got.FLOPs)
+	}
+	if len(got.Nodes) != 7 || got.Nodes[0].Node != "conv" || got.Nodes[0].FLOPs != 13824 {
+		t.Errorf("nodes %+v", got.Nodes)
+	}
+}
+
+// vi is a value_info of a known float32 (or other) shape.
+func vi(name string, dt model.DType, dims ...int64) *model.ValueInfo {
+	return &model.ValueInfo{Name: name, Type: model.TensorType(dt, model.KnownShape(dims...))}
+}
+
+func matmulNode(name, a, b, out string) *model.Node {
+	return &model.Node{Name: name, Op: "MatMul", Inputs: []string{a, b}, Outputs: []string{out}}
+}
+
+// TestCostsIf checks that If counts its more expensive branch, whichever
+// it is, and that branch nodes read values of the enclosing graph.
+func TestCostsIf(t *testing.T) {
+	b := newCostGraph()
+	cond := b.in("cond", model.Bool)
+	x := b.in("x", f32c, 1, 4)
+	wa, wb, wc := b.w("wa", 4, 8), b.w("wb", 4, 16), b.w("wc", 16, 8)
+	then := &model.Graph{Name: "then",
+		Nodes:   []*model.Node{matmulNode("then_mm", x, wa, "t")},
+		Outputs: []*model.ValueInfo{{Name: "t"}}}
+	els := &model.Graph{Name: "else",
+		Nodes:   []*model.Node{matmulNode("else_mm1", x, wb, "e1"), matmulNode("else_mm2", "e1", wc, "e")},
+		Outputs: []*model.ValueInfo{{Name: "e"}}}
+	b.g.Nodes = append(b.g.Nodes, &model.Node{Name: "if", Op: "If", Inputs: []string{cond}, Outputs: []string{"y"},
+		Attrs: []*model.Attr{atG("then_branch", then), atG("else_branch", els)}})
+	b.out("y")
+	got := costsOf(t, b.model(), nil)
+	// derived: then [1,4]×[4,8] = 8 × 4 = 32 MACs; else [1,4]×[4,16] = 16 × 4 = 64
+	// plus [1,16]×[16,8] = 8 × 16 = 128, 192 MACs: the else branch counts.
+	if got.MACs != 192 || got.FLOPs != 384 || len(got.Unresolved) != 0 {
+		t.Errorf("MACs %d, FLOPs %d, unresolved %+v; want 192, 384, none", got.MACs, got.FLOPs, got.Unresolved)
+	}
+	if got.ByOp["MatMul"] != (OpCost{Nodes: 2, MACs: 192, FLOPs: 384}) {
+		t.Errorf("by op %+v", got.ByOp)
+	}
+	if len(got.Nodes) != 1 || got.Nodes[0].Op != "If" || got.Nodes[0].MACs != 192 || !got.Nodes[0].Known {
+		t.Errorf("nodes %+v", got.Nodes)
+	}
+}
+
+// loopModel is a Loop of M iterations (M a constant, or a runtime input
+// when m < 0) whose body multiplies the carried [1,4] state by a [4,4]
+// weight.
+func loopModel(m int64) *model.Model {
+	b := newCostGraph()
+	var mIn string
+	if m >= 0 {
+		mIn = b.i64("M", m)
+	} else {
+		mIn = b.in("M", model.Int64)
+	}
+	s0 := b.in("s0", f32c, 1, 4)
+	w := b.w("wl", 4, 4)
+	body := &model.Graph{Name: "body",
+		Inputs: []*model.ValueInfo{vi("iter", model.Int64), vi("cond_in", model.Bool), vi("s_in", f32c, 1, 4)},
+		Nodes: []*model.Node{
+			{Name: "cond_pass", Op: "Identity", Inputs: []string{"cond_in"}, Outputs: []string{"cond_out"}},
+			matmulNode("body_mm", "s_in", w, "s_out"),
+		},
+		Outputs: []*model.ValueInfo{{Name: "cond_out"}, {Name: "s_out"}}}
+	b.g.Nodes = append(b.g.Nodes, &model.Node{Name: "loop", Op: "Loop", Inputs: []string{mIn, "", s0}, Outputs: []string{"s"},
+		Attrs: []*model.Attr{atG("body", body)}})
+	b.out("s")
+	return b.model()
+}
+
+func TestCostsLoop(t *testing.T) {
+	got := costsOf(t, loopModel(3), nil)
+	// derived: body [1,4]×[4,4] = 4 × 4 = 16 MACs, × M 3 = 48 MACs, 96 FLOPs
+	// (Identity is data movement)
+	if got.MACs != 48 || got.FLOPs != 96 || len(got.Unresolved) != 0 {
+		t.Errorf("M=3: MACs %d, FLOPs %d, unresolved %+v; want 48, 96, none", got.MACs, got.FLOPs, got.Unresolved)
+	}
+	if got.ByOp["MatMul"] != (OpCost{Nodes: 1, MACs: 48, FLOPs: 96}) {
+		t.Errorf("by op %+v", got.ByOp)
+	}
+
+	got = costsOf(t, loopModel(-1), nil)
+	// derived: M is a runtime input, so the body counts once: 16 MACs
+	if got.MACs != 16 || len(got.Unresolved) != 1 || got.Unresolved[0].Node != "loop" ||
+		!strings.Contains(got.Unresolved[0].Reason, "trip count unknown") || got.Nodes[0].Known {
+		t.Errorf("runtime M: MACs %d, unresolved %+v, nodes %+v; want 16 and loop unresolved with trip count unknown", got.MACs, got.Unresolved, got.Nodes)
+	}
+}
+
+func TestCostsScan(t *testing.T) {
+	b := newCostGraph()
+	xs := b.in("xs", f32c, 5, 1, 3)
+	w := b.w("ws", 3, 2)
+	body := &model.Graph{Name: "body",
+		Inputs:  []*model.ValueInfo{vi("x_t", f32c, 1, 3)},
+		Nodes:   []*model.Node{matmulNode("scan_mm", "x_t", w, "y_t")},
+		Outputs: []*model.ValueInfo{{Name: "y_t"}}}
+	b.g.Nodes = append(b.g.Nodes, &model.Node{Name: "scan", Op: "Scan", Inputs: []string{xs}, Outputs: []string{"ys"},
+		Attrs: []*model.Attr{atG("body", body), atI("num_scan_inputs", 1)}})
+	b.out("ys")
+	got := costsOf(t, b.model(), nil)
+	// derived: body [1,3]×[3,2] = 2 × 3 = 6 MACs, × scan length 5 (xs's axis 0) = 30
+	if got.MACs != 30 || len(got.Unresolved) != 0 {
+		t.Errorf("MACs %d, unresolved %+v; want 30, none", got.MACs, got.Unresolved)
+	}
+}
+
+// TestCostsSymbolicBatch checks that a node whose shapes hold an unbound
+// symbol is listed, not counted as zero, and that binding it gives the
+// exact count.
+func TestCostsSymbolicBatch(t *testing.T) {
+	m, err := build.ResNet18(build.Options{BatchSymbol: "batch", Declared: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	free := costsOf(t, m, nil)
+	if len(free.Unresolved) == 0 {
+		t.Fatalf("MACs %d with batch unbound and nothing unresolved", free.MACs)
+	}
+	first := free.Unresolved[0]
+	if first.Node != "conv1" || first.Reason != "MACs unknown: output shape [batch,64,112,112] has symbolic dims" {
+		t.Errorf("first unresolved %+v", first)
+	}
+	for _, n := range free.Nodes {
+		if n.Op == "Conv" && (n.Known || n.MACs != 0) {
+			t.Errorf("%s counted with batch unbound: %+v", n.Node, n)
+		}
+	}
+	bound := costsOf(t, m, map[string]int64{"batch": 1})
+	m1, err := build.ResNet18(build.Options{Declared: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := costsOf(t, m1, nil)
+	if len(bound.Unresolved) != 0 || bound.MACs != want.MACs || bound.FLOPs != want.FLOPs {
+		t.Errorf("batch=1: MACs %d FLOPs %d unresolved %d; want %d, %d, 0", bound.MACs, bound.FLOPs, len(bound.Unresolved), want.MACs, want.FLOPs)
+	}
+}
+
+// TestCostsUnknownOperator checks that an operator of no rule is listed.
+func TestCostsUnknownOperator(t *testing.T) {
+	b := newCostGraph()
+	x := b.in("x", f32c, 1, 4)
+	b.g.Nodes = append(b.g.Nodes, &model.Node{Name: "custom", Op: "FusedThing", Domain: "com.example", Inputs: []string{x}, Outputs: []string{"y"}})
+	b.out("y")
+	m := b.model()
+	m.Opsets["com.example"] = 1
+	inf, err := Infer(m, InferOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	got := CountCosts(inf)
+	if len(got.Unresolved) != 1 || !strings.Contains(got.Unresolved[0].Reason, "no cost rule for operator com.example:FusedThing") {
+		t.Errorf("unresolved %+v", got.Unresolved)
 	}
 }
