@@ -1,6 +1,7 @@
 package measure
 
 import (
+	"encoding/json"
 	"math"
 	"strings"
 	"testing"
@@ -424,5 +425,42 @@ func TestCostsUnknownOperator(t *testing.T) {
 	got := CountCosts(inf)
 	if len(got.Unresolved) != 1 || !strings.Contains(got.Unresolved[0].Reason, "no cost rule for operator com.example:FusedThing") {
 		t.Errorf("unresolved %+v", got.Unresolved)
+	}
+}
+
+// TestMeasureCosts checks the wiring into Metrics: macs and flops after
+// param_bytes in the JSON contract, cost entries in unresolved when the
+// batch is unbound, exact figures with --dim batch=1.
+func TestMeasureCosts(t *testing.T) {
+	m, err := build.MobileNetV2(build.Options{BatchSymbol: "batch", Declared: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	free, err := Measure(m, 0, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	found := false
+	for _, u := range free.Unresolved {
+		found = found || strings.HasPrefix(u.Reason, "MACs unknown: output shape [batch,")
+	}
+	if !found {
+		t.Errorf("batch unbound: no cost entry among unresolved %+v", free.Unresolved)
+	}
+	bound, err := Measure(m, 0, Options{Dims: map[string]int64{"batch": 1}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !within(bound.MACs, 0.301e9, 0.005) || bound.FLOPs < 2*bound.MACs || len(bound.Unresolved) != 0 { // torchvision model documentation, mobilenet_v2: 0.301 GMACs, confirmed
+		t.Errorf("batch=1: MACs %d, FLOPs %d, unresolved %+v", bound.MACs, bound.FLOPs, bound.Unresolved)
+	}
+	js, err := json.Marshal(bound)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := string(js)
+	pb, ma, fl, sp := strings.Index(s, `"param_bytes":`), strings.Index(s, `"macs":`), strings.Index(s, `"flops":`), strings.Index(s, `"sparsity":`)
+	if pb < 0 || !(pb < ma && ma < fl && fl < sp) {
+		t.Errorf("JSON keys param_bytes, macs, flops, sparsity at %d, %d, %d, %d: %s", pb, ma, fl, sp, s[:min(len(s), 300)])
 	}
 }

@@ -14,6 +14,9 @@ type Metrics struct {
 	FileBytes  int64        `json:"file_bytes"`
 	Params     int64        `json:"params"`
 	ParamBytes int64        `json:"param_bytes"`
+	MACs       int64        `json:"macs"`
+	FLOPs      int64        `json:"flops"`
+	Sparsity   float64      `json:"sparsity"` // share of weight elements exactly zero (params.go); -1 when no weight has stored values
 	Inputs     []IOInfo     `json:"inputs"`
 	Outputs    []IOInfo     `json:"outputs"`
 	Unresolved []Unresolved `json:"unresolved"`
@@ -69,6 +72,10 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 		out.ParamBytes += w.Bytes
 	}
 	out.ParamsByDType = ParamsByDType(ws)
+	out.Sparsity = sparsity(ws)
+	costs := CountCosts(inf)
+	out.MACs, out.FLOPs = costs.MACs, costs.FLOPs
+	out.Unresolved = appendUnresolved(out.Unresolved, costs.Unresolved)
 	plan := PlanMemory(inf)
 	out.Memory.Graph = MemoryView{PeakLiveBytes: plan.PeakLiveBytes, ArenaBytes: plan.ArenaBytes}
 	out.Unresolved = append(out.Unresolved, plan.Unresolved...)
@@ -97,4 +104,36 @@ func ioInfo(nv NamedValue) IOInfo {
 		}
 	}
 	return io
+}
+
+// sparsity is zeros / elements over the weights whose zeros were counted,
+// -1 when there are none.
+func sparsity(ws []ParamTensor) float64 {
+	var zeros, elems int64
+	for _, w := range ws {
+		if w.Zeros >= 0 {
+			zeros += w.Zeros
+			elems += w.Elements
+		}
+	}
+	if elems == 0 {
+		return -1
+	}
+	return float64(zeros) / float64(elems)
+}
+
+// appendUnresolved adds the cost entries of nodes that shape inference has
+// not already listed: its reason (an unknown shape) is the cause, and
+// the figures downstream of it are known to be incomplete.
+func appendUnresolved(list, more []Unresolved) []Unresolved {
+	seen := make(map[string]bool, len(list))
+	for _, u := range list {
+		seen[u.Node] = true
+	}
+	for _, u := range more {
+		if !seen[u.Node] {
+			list = append(list, u)
+		}
+	}
+	return list
 }

@@ -1,6 +1,7 @@
 package measure
 
 import (
+	"encoding/binary"
 	"sort"
 
 	"github.com/loadline/loadline/model"
@@ -59,8 +60,113 @@ type ParamTensor struct {
 	DType    model.DType `json:"-"`
 	Elements int64       `json:"elements"`
 	Bytes    int64       `json:"bytes"`
-	// Zeros is the count of elements exactly zero, -1 when not scanned.
+	// Zeros is the count of elements exactly zero, -1 when not scanned
+	// (the tensor is declared without values, or its bytes cannot be read).
 	Zeros int64 `json:"-"`
+}
+
+// Sparsity. Definition (README "Conventions"): the share of parameter
+// elements that are exactly zero, read from the weight bytes as stored
+// (+0 and -0 alike for floating types; for quantized weights, the stored
+// integer 0, which is the real zero when the zero point is 0). Tensors
+// without stored values are skipped, and the overall share is over the
+// tensors scanned.
+
+// countZeros counts the elements of t that are exactly zero, or returns -1
+// when t holds no readable values. It loops over the raw bytes at the
+// tensor's width, without converting elements.
+func countZeros(t *model.Tensor) int64 {
+	n := t.Elements()
+	if n < 0 || !t.HasData() || t.DType.Bits() == 0 {
+		return -1
+	}
+	b, err := t.RawBytes()
+	if err != nil || t.DType.StorageBytes(n) != int64(len(b)) {
+		return -1
+	}
+	var zeros int64
+	switch t.DType {
+	case model.Float32:
+		for i := 0; i+4 <= len(b); i += 4 {
+			if binary.LittleEndian.Uint32(b[i:])&0x7fffffff == 0 {
+				zeros++
+			}
+		}
+	case model.Float64:
+		for i := 0; i+8 <= len(b); i += 8 {
+			if binary.LittleEndian.Uint64(b[i:])&0x7fffffffffffffff == 0 {
+				zeros++
+			}
+		}
+	case model.Float16, model.BFloat16:
+		for i := 0; i+2 <= len(b); i += 2 {
+			if binary.LittleEndian.Uint16(b[i:])&0x7fff == 0 {
+				zeros++
+			}
+		}
+	case model.Float8E4M3FN, model.Float8E5M2:
+		for _, x := range b {
+			if x&0x7f == 0 {
+				zeros++
+			}
+		}
+	case model.Complex64:
+		for i := 0; i+8 <= len(b); i += 8 {
+			if binary.LittleEndian.Uint64(b[i:])&0x7fffffff7fffffff == 0 {
+				zeros++
+			}
+		}
+	case model.Complex128:
+		for i := 0; i+16 <= len(b); i += 16 {
+			if (binary.LittleEndian.Uint64(b[i:])|binary.LittleEndian.Uint64(b[i+8:]))&0x7fffffffffffffff == 0 {
+				zeros++
+			}
+		}
+	case model.Int4, model.Uint4, model.Float4E2M1:
+		// Two elements a byte, the first in the low nibble; float4e2m1's
+		// sign is bit 3 of its nibble.
+		mask := byte(0xf)
+		if t.DType == model.Float4E2M1 {
+			mask = 0x7
+		}
+		for i := int64(0); i < n; i++ {
+			if (b[i/2]>>(4*(i%2)))&mask == 0 {
+				zeros++
+			}
+		}
+	default:
+		// Integers, bool and the float8 types without negative zero
+		// (FNUZ: 0x80 is NaN): an element is zero when all its bytes are.
+		switch t.DType.Bits() {
+		case 8:
+			for _, x := range b {
+				if x == 0 {
+					zeros++
+				}
+			}
+		case 16:
+			for i := 0; i+2 <= len(b); i += 2 {
+				if binary.LittleEndian.Uint16(b[i:]) == 0 {
+					zeros++
+				}
+			}
+		case 32:
+			for i := 0; i+4 <= len(b); i += 4 {
+				if binary.LittleEndian.Uint32(b[i:]) == 0 {
+					zeros++
+				}
+			}
+		case 64:
+			for i := 0; i+8 <= len(b); i += 8 {
+				if binary.LittleEndian.Uint64(b[i:]) == 0 {
+					zeros++
+				}
+			}
+		default:
+			return -1
+		}
+	}
+	return zeros
 }
 
 // weights finds the constants of the main graph used as weights, in the
@@ -100,7 +206,7 @@ func weights(inf *Inference) []ParamTensor {
 					continue
 				}
 				seen[name] = true
-				out = append(out, ParamTensor{Name: name, DType: t.DType, Elements: t.Elements(), Bytes: t.StorageBytes(), Zeros: -1})
+				out = append(out, ParamTensor{Name: name, DType: t.DType, Elements: t.Elements(), Bytes: t.StorageBytes(), Zeros: countZeros(t)})
 			}
 			// Subgraph bodies read outer constants too.
 			for _, a := range n.Attrs {

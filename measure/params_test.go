@@ -1,8 +1,11 @@
 package measure
 
 import (
+	"encoding/binary"
+	"math"
 	"testing"
 
+	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/model/build"
 )
 
@@ -73,5 +76,88 @@ func TestParamBytesQuantized(t *testing.T) {
 	t.Logf("param_bytes float32 %d, int8 %d, ratio %.3f", mf.ParamBytes, mq.ParamBytes, ratio)
 	if ratio < 0.24 || ratio > 0.27 {
 		t.Errorf("int8/float32 param_bytes ratio %.3f, want about 0.25", ratio)
+	}
+}
+
+// rawTensor is a tensor whose raw bytes are given.
+func rawTensor(dt model.DType, dims []int64, b []byte) *model.Tensor {
+	return &model.Tensor{Name: "t", DType: dt, Dims: dims, Data: model.TensorData{Encoding: model.EncodingRaw, Segments: [][]byte{b}}}
+}
+
+// TestCountZeros checks the zero scan per dtype on hand-written bytes.
+func TestCountZeros(t *testing.T) {
+	le32 := func(v ...uint32) []byte {
+		var b []byte
+		for _, x := range v {
+			b = binary.LittleEndian.AppendUint32(b, x)
+		}
+		return b
+	}
+	le16 := func(v ...uint16) []byte {
+		var b []byte
+		for _, x := range v {
+			b = binary.LittleEndian.AppendUint16(b, x)
+		}
+		return b
+	}
+	cases := []struct {
+		name string
+		t    *model.Tensor
+		want int64
+	}{
+		// IEEE 754: +0 is 0x00000000, -0 is 0x80000000; 0x00000001 is the smallest subnormal, not zero.
+		{"float32", rawTensor(model.Float32, []int64{5}, le32(0, 0x80000000, 0x3f800000, 1, 0)), 3},
+		// IEEE 754 binary16: ±0 are 0x0000 and 0x8000; 0x3c00 is 1.0.
+		{"float16", rawTensor(model.Float16, []int64{4}, le16(0x8000, 0x3c00, 0, 0x0001)), 2},
+		// bfloat16: the top half of a float32, -0 is 0x8000.
+		{"bfloat16", rawTensor(model.BFloat16, []int64{3}, le16(0x8000, 0x3f80, 0)), 2},
+		{"float64", rawTensor(model.Float64, []int64{2}, binary.LittleEndian.AppendUint64(binary.LittleEndian.AppendUint64(nil, 1<<63), 0x3ff0000000000000)), 1},
+		{"int8", rawTensor(model.Int8, []int64{6}, []byte{0, 1, 0xff, 0, 0x80, 0}), 3},
+		{"int32", rawTensor(model.Int32, []int64{3}, le32(0, 0x80000000, 7)), 1},
+		// int4: two a byte, low nibble first; 5 elements use 3 bytes and the last high nibble (0xf) is padding.
+		{"int4", rawTensor(model.Int4, []int64{5}, []byte{0x10, 0x00, 0xf3}), 3},
+		// float8e4m3fn: 0x80 is -0; float8e4m3fnuz: 0x80 is NaN.
+		{"float8e4m3fn", rawTensor(model.Float8E4M3FN, []int64{3}, []byte{0x80, 0x00, 0x38}), 2},
+		{"float8e4m3fnuz", rawTensor(model.Float8E4M3FNUZ, []int64{3}, []byte{0x80, 0x00, 0x38}), 1},
+		{"declared only", &model.Tensor{Name: "d", DType: model.Float32, Dims: []int64{4}}, -1},
+		{"short bytes", rawTensor(model.Float32, []int64{4}, le32(0, 0)), -1},
+	}
+	for _, c := range cases {
+		if got := countZeros(c.t); got != c.want {
+			t.Errorf("%s: %d zeros, want %d", c.name, got, c.want)
+		}
+	}
+}
+
+// TestSparsity checks Metrics.Sparsity over the weights with stored
+// values: a [2,4] weight with 3 zeros and a declared-only one (skipped).
+func TestSparsity(t *testing.T) {
+	b := newCostGraph()
+	x := b.in("x", f32c, 1, 2)
+	w := nnF32("w", []float64{0, 1, 2, 0, 3, 4, 5, math.Copysign(0, -1)}, 2, 4).tensor()
+	b.g.Initializers = append(b.g.Initializers, w)
+	y := b.node("MatMul", "mm", []string{x, "w"}, "y")
+	b.out(b.node("MatMul", "mm2", []string{y, b.w("w2", 4, 3)}, "z"))
+	met, err := Measure(b.model(), 0, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	// derived: zeros 0, 0 and -0 of w's 8 elements; w2 has no bytes
+	if met.Sparsity != 3.0/8 {
+		t.Errorf("sparsity %g, want 0.375", met.Sparsity)
+	}
+	if met.Params != 8+12 {
+		t.Errorf("params %d, want 20", met.Params)
+	}
+	// derived: [1,2]×[2,4] = 4 × 2 = 8 MACs; [1,4]×[4,3] = 3 × 4 = 12; 20 MACs, 40 FLOPs
+	if met.MACs != 20 || met.FLOPs != 40 {
+		t.Errorf("MACs %d, FLOPs %d; want 20, 40", met.MACs, met.FLOPs)
+	}
+	m, err := build.ResNet18(build.Options{Declared: true, Size: 64})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if met, err = Measure(m, 0, Options{}); err != nil || met.Sparsity != -1 {
+		t.Errorf("declared weights: sparsity %g (err %v), want -1", met.Sparsity, err)
 	}
 }
