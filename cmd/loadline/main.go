@@ -43,6 +43,20 @@ const conventions = `Figures (static estimates from the model file; measure on t
                and zero points are not parameters.
   param bytes  storage of those parameters at their own dtype (int4 packs two
                to a byte).
+  MACs         multiply-accumulates of Conv (output elements × C_in/group × kernel
+               area), ConvTranspose (input elements × C_out/group × kernel area),
+               Gemm and MatMul (output elements × K), Einsum (product of the
+               distinct subscript sizes), their quantized forms, and LSTM/GRU/RNN
+               (gates 4/3/1 × (input + hidden) × hidden × steps × batch × directions).
+  FLOPs        2 × MACs, plus one per output element of elementwise, activation,
+               normalisation and quantization ops, one per window element per
+               output of pooling, one per input element of reductions; data
+               movement (Reshape, Transpose, Concat, …) is 0. A 1-GMAC model is a
+               2-GFLOP model. If counts its costlier branch, Loop and Scan their
+               body × trip count (once, and listed as unresolved, when unknown).
+               Nodes whose shapes have unbound symbolic dims are listed as
+               unresolved and left out; bind them with --dim batch=1.
+  sparsity     share of weight elements exactly zero, read from the weight bytes.
   shapes       inferred for every tensor; symbolic dims stay symbols unless bound
                with --dim NAME=VALUE. Nodes whose shapes cannot be inferred are
                listed as unresolved, with the reason.
