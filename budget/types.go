@@ -110,6 +110,9 @@ type Check struct {
 	Delta    *int64 `json:"delta,omitempty"`    // value − base
 	// Waiver is set when a waiver turned a failure into Waived.
 	Waiver *Waiver `json:"waiver,omitempty"`
+	// Source is the place in the budget file of the limit or growth entry
+	// ("loadline.yaml:9:12"), for annotations.
+	Source string `json:"source,omitempty"`
 }
 
 // Change says how a model changed between base and head.
@@ -139,6 +142,9 @@ type ModelResult struct {
 	Unbudgeted bool `json:"unbudgeted,omitempty"`
 	// Error is set when the model could not be measured.
 	Error string `json:"error,omitempty"`
+	// Notes are one-line remarks for the reader: why a removed model is
+	// not judged, which rules disagree about it.
+	Notes []string `json:"notes,omitempty"`
 	// Detail carries optional per-layer data for renderers (top layers,
 	// live memory over steps); renderers must cope with it being nil.
 	Detail *Detail `json:"-"`
@@ -168,6 +174,7 @@ type Waiver struct {
 	Until  time.Time `json:"until"`
 	Reason string    `json:"reason"`
 	Line   int       `json:"line"`
+	Column int       `json:"column"`
 }
 
 // BudgetChange is one difference between the base's and the head's budget
@@ -177,6 +184,8 @@ type BudgetChange struct {
 	Old      string `json:"old"`
 	New      string `json:"new"`
 	Loosened bool   `json:"loosened"`
+	// Path is the rule's or waiver's path glob, when the change is in one.
+	Path string `json:"path,omitempty"`
 }
 
 // Revision names one side of a change.
@@ -196,4 +205,17 @@ type Result struct {
 	// Problems are budget-file findings that do not stop evaluation
 	// (an expired waiver, a model matched by no rule).
 	Problems []string `json:"problems"`
+	// Findings are the same problems with their level and place: Fail
+	// for an expired waiver or disagreeing rules, Warn (Fail when strict)
+	// for a model matched by no rule. Problems[i] is Findings[i].Message.
+	Findings []Finding `json:"findings"`
+}
+
+// Finding is one budget-file problem found while evaluating.
+type Finding struct {
+	Level   Status `json:"level"` // Warn or Fail
+	Message string `json:"message"`
+	Path    string `json:"path,omitempty"` // the model concerned, if one
+	Line    int    `json:"line,omitempty"` // place in the budget file, if one
+	Column  int    `json:"column,omitempty"`
 }

@@ -1,0 +1,918 @@
+package budget
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"regexp"
+	"sort"
+	"strconv"
+	"strings"
+	"time"
+
+	"github.com/bmatcuk/doublestar/v4"
+	"go.yaml.in/yaml/v3"
+)
+
+// MaxFileSize is the largest budget file Parse and Load accept. A budget
+// for hundreds of models fits in a few KiB; anything near this is not a
+// budget file.
+const MaxFileSize = 1 << 20
+
+// maxNodes bounds the YAML nodes visited while decoding, counting each
+// visit through an alias again, so that a small file of nested aliases
+// cannot make the decoder do unbounded work.
+const maxNodes = 200_000
+
+// maxErrors bounds the errors collected from one file.
+const maxErrors = 50
+
+// Weights placements: where a device keeps model weights at run time.
+const (
+	WeightsFlash = "flash"
+	WeightsRAM   = "ram"
+)
+
+// File is a decoded, validated budget file.
+type File struct {
+	Name    string // as given to Parse: the name errors and messages print
+	Version int
+	Devices map[string]*Device
+	Rules   []*Rule
+	Waivers []Waiver
+}
+
+// Device is one entry of devices: its capacities and where it keeps
+// weights.
+type Device struct {
+	Name string
+	// RAM and Flash are the capacities in bytes; nil when not given.
+	RAM, Flash *Quantity
+	// Weights is where the runtime keeps weights: WeightsFlash (the
+	// default) or WeightsRAM.
+	Weights      string
+	Line, Column int
+}
+
+// Capacity returns the device's capacity for a metric (ram or flash).
+func (d *Device) Capacity(metric string) (int64, bool) {
+	if d == nil {
+		return 0, false
+	}
+	var q *Quantity
+	switch metric {
+	case MetricRAM:
+		q = d.RAM
+	case MetricFlash:
+		q = d.Flash
+	}
+	if q == nil {
+		return 0, false
+	}
+	return q.Value, true
+}
+
+// Rule is one entry of models: the models its path glob matches, their
+// device, the values of their symbolic dims, and what they may use and
+// how fast they may grow.
+type Rule struct {
+	Index  int    // position in models, from 0
+	Path   string // doublestar glob from the repository root ("models/**/*.onnx")
+	Device string
+	Dims   map[string]int64
+	Limits map[string]Setting
+	Growth map[string]Setting
+	// WarnAt is the share of a limit, in millionths, past which a figure
+	// warns; 900000 (90%) when the rule does not say. WarnAtSet tells
+	// whether it did.
+	WarnAt       int64
+	WarnAtSet    bool
+	Line, Column int
+}
+
+// Setting is one limit or growth entry with its place in the file.
+type Setting struct {
+	Quantity
+	Line, Column int
+}
+
+// Key returns the key path of the rule ("models[2]").
+func (r *Rule) Key() string { return fmt.Sprintf("models[%d]", r.Index) }
+
+// DefaultWarnAt is warn_at when a rule does not set it: 90%.
+const DefaultWarnAt = 900_000
+
+var (
+	topKeys    = []string{"version", "devices", "models", "waivers"}
+	deviceKeys = []string{"ram", "flash", "weights"}
+	ruleKeys   = []string{"path", "device", "dims", "limits", "growth", "warn_at"}
+	waiverKeys = []string{"path", "metric", "until", "reason"}
+	placements = []string{WeightsFlash, WeightsRAM}
+)
+
+// Load reads and parses a budget file. Files larger than MaxFileSize are
+// refused without being read whole.
+func Load(path string) (*File, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	data, err := io.ReadAll(io.LimitReader(f, MaxFileSize+1))
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	if len(data) > MaxFileSize {
+		size := int64(len(data))
+		if st, err := f.Stat(); err == nil {
+			size = st.Size()
+		}
+		return nil, Errors{tooLarge(path, size)}
+	}
+	return Parse(path, data)
+}
+
+func tooLarge(name string, size int64) *Error {
+	return &Error{File: name, Msg: fmt.Sprintf("file is %s; a budget file may be at most %s", formatBytes(size), formatBytes(MaxFileSize)),
+		Hint: "is this the right file?"}
+}
+
+// Parse decodes and validates a budget file's contents; name is the file
+// name errors print. On any problem it returns nil and Errors, every
+// finding with its line and column.
+func Parse(name string, data []byte) (*File, error) {
+	if len(data) > MaxFileSize {
+		return nil, Errors{tooLarge(name, int64(len(data)))}
+	}
+	d := &decoder{name: name, nodes: maxNodes}
+	root, err := d.document(data)
+	if err != nil {
+		return nil, Errors{err}
+	}
+	f := d.file(root)
+	if len(d.errs) > 0 {
+		return nil, d.errs
+	}
+	return f, nil
+}
+
+var yamlLine = regexp.MustCompile(`^yaml: line (\d+): (.*)$`)
+
+// parserProblems are yaml.v3's parser errors, which it places on the line
+// where the unfinished construct starts, with a hint at the usual cause.
+var parserProblems = map[string]string{
+	"did not find expected ',' or '}'":    "is a { } mapping starting on this line left open?",
+	"did not find expected ',' or ']'":    "is a [ ] list starting on this line left open?",
+	"did not find expected '-' indicator": "check the indentation of the list starting on this line",
+	"did not find expected key":           "check the indentation of the mapping starting on this line",
+	"did not find expected node content":  "a value is missing",
+	"found undefined tag handle":          "",
+}
+
+// document reads the single YAML document of a budget file.
+func (d *decoder) document(data []byte) (*yaml.Node, *Error) {
+	dec := yaml.NewDecoder(bytes.NewReader(data))
+	var doc yaml.Node
+	if err := dec.Decode(&doc); err != nil {
+		if errors.Is(err, io.EOF) {
+			return nil, &Error{File: d.name, Msg: "empty budget file", Hint: "start with version: 1"}
+		}
+		return nil, d.yamlError(err)
+	}
+	var extra yaml.Node
+	if err := dec.Decode(&extra); err == nil {
+		return nil, &Error{File: d.name, Line: extra.Line, Column: extra.Column,
+			Msg: "a second YAML document; a budget file holds one", Hint: "remove the ---"}
+	} else if !errors.Is(err, io.EOF) {
+		return nil, d.yamlError(err)
+	}
+	if doc.Kind != yaml.DocumentNode || len(doc.Content) == 0 {
+		return nil, &Error{File: d.name, Msg: "empty budget file", Hint: "start with version: 1"}
+	}
+	return doc.Content[0], nil
+}
+
+func (d *decoder) yamlError(err error) *Error {
+	msg := err.Error()
+	if m := yamlLine.FindStringSubmatch(msg); m != nil {
+		line, _ := strconv.Atoi(m[1])
+		hint, parser := parserProblems[m[2]]
+		if parser {
+			// yaml.v3 reports a parser (not scanner) error at the 0-based
+			// line of the construct being parsed: make it 1-based.
+			line++
+		}
+		return &Error{File: d.name, Line: line, Msg: "not valid YAML: " + m[2], Hint: hint}
+	}
+	return &Error{File: d.name, Msg: "not valid YAML: " + strings.TrimPrefix(msg, "yaml: ")}
+}
+
+// decoder walks the YAML node tree, collecting errors.
+type decoder struct {
+	name    string
+	errs    Errors
+	nodes   int // node visits left
+	stopped bool
+}
+
+func (d *decoder) add(n *yaml.Node, key, msg, hint string) {
+	if d.stopped {
+		return
+	}
+	if len(d.errs) >= maxErrors {
+		d.errs = append(d.errs, &Error{File: d.name, Msg: fmt.Sprintf("more than %d errors; stopping", maxErrors)})
+		d.stopped = true
+		return
+	}
+	e := &Error{File: d.name, Key: key, Msg: msg, Hint: hint}
+	if n != nil {
+		e.Line, e.Column = n.Line, n.Column
+	}
+	d.errs = append(d.errs, e)
+}
+
+// visit follows an alias and charges one node visit; it returns nil once
+// the budget of visits is spent or decoding has stopped.
+func (d *decoder) visit(n *yaml.Node) *yaml.Node {
+	if d.stopped || n == nil {
+		return nil
+	}
+	d.nodes--
+	if d.nodes < 0 {
+		d.add(n, "", fmt.Sprintf("more than %d YAML nodes after expanding aliases", maxNodes), "is the file built from nested aliases?")
+		d.stopped = true
+		return nil
+	}
+	for i := 0; n.Kind == yaml.AliasNode && i < 8; i++ {
+		if n.Alias == nil {
+			return nil
+		}
+		n = n.Alias
+	}
+	if n.Kind == yaml.AliasNode {
+		return nil
+	}
+	return n
+}
+
+// entry is one key and value of a mapping; k and v are the nodes as
+// written (v may be an alias), for their places.
+type entry struct {
+	name string
+	k, v *yaml.Node
+}
+
+// mapping returns a mapping's entries in order, with merge keys (<<)
+// applied: explicit keys win over merged ones, earlier merges over later.
+// Duplicate explicit keys and non-scalar keys are errors. ok is false
+// when n is not a mapping.
+func (d *decoder) mapping(n *yaml.Node, key string) ([]entry, bool) {
+	m := d.visit(n)
+	if m == nil {
+		return nil, false
+	}
+	if m.Kind != yaml.MappingNode {
+		if m.Kind == yaml.ScalarNode && m.Tag == "!!null" {
+			return nil, true // "limits:" with nothing after it: empty
+		}
+		d.add(n, key, "want a mapping of keys to values, found "+describe(m), "")
+		return nil, false
+	}
+	var out []entry
+	seen := map[string]*yaml.Node{}
+	d.collect(m, key, &out, seen, true, 0)
+	return out, true
+}
+
+func (d *decoder) collect(m *yaml.Node, key string, out *[]entry, seen map[string]*yaml.Node, explicit bool, depth int) {
+	var merges []*yaml.Node
+	for i := 0; i+1 < len(m.Content) && !d.stopped; i += 2 {
+		kn, vn := m.Content[i], m.Content[i+1]
+		k := d.visit(kn)
+		if k == nil {
+			return
+		}
+		if k.Kind == yaml.ScalarNode && k.Tag == "!!merge" {
+			merges = append(merges, vn)
+			continue
+		}
+		if k.Kind != yaml.ScalarNode {
+			d.add(kn, key, "a key must be a plain name, found "+describe(k), "")
+			continue
+		}
+		if first, dup := seen[k.Value]; dup {
+			if explicit {
+				d.add(kn, key, fmt.Sprintf("duplicate key %q (first at %d:%d)", k.Value, first.Line, first.Column), "")
+			}
+			continue
+		}
+		seen[k.Value] = kn
+		*out = append(*out, entry{name: k.Value, k: kn, v: vn})
+	}
+	for _, mn := range merges {
+		if depth >= 8 {
+			d.add(mn, key, "merges nested too deep", "")
+			return
+		}
+		src := d.visit(mn)
+		if src == nil {
+			return
+		}
+		var srcs []*yaml.Node
+		switch src.Kind {
+		case yaml.MappingNode:
+			srcs = []*yaml.Node{src}
+		case yaml.SequenceNode:
+			for _, s := range src.Content {
+				if s = d.visit(s); s == nil {
+					return
+				}
+				srcs = append(srcs, s)
+			}
+		}
+		for _, s := range srcs {
+			if s.Kind != yaml.MappingNode {
+				d.add(mn, key, "<< merges a mapping or a list of mappings, found "+describe(s), "")
+				continue
+			}
+			d.collect(s, key, out, seen, false, depth+1)
+		}
+	}
+}
+
+// sequence returns a sequence's items as written. ok is false when n is
+// not a sequence.
+func (d *decoder) sequence(n *yaml.Node, key string) ([]*yaml.Node, bool) {
+	s := d.visit(n)
+	if s == nil {
+		return nil, false
+	}
+	if s.Kind != yaml.SequenceNode {
+		if s.Kind == yaml.ScalarNode && s.Tag == "!!null" {
+			return nil, true
+		}
+		d.add(n, key, "want a list, found "+describe(s), "write each entry on a line starting with -")
+		return nil, false
+	}
+	return s.Content, true
+}
+
+// scalar returns a scalar's text. Nulls, booleans and collections are
+// errors.
+func (d *decoder) scalar(n *yaml.Node, key string) (string, bool) {
+	s := d.visit(n)
+	if s == nil {
+		return "", false
+	}
+	if s.Kind != yaml.ScalarNode {
+		d.add(n, key, "want a value, found "+describe(s), "")
+		return "", false
+	}
+	switch s.Tag {
+	case "!!null":
+		d.add(n, key, "missing value", "")
+		return "", false
+	case "!!bool":
+		d.add(n, key, fmt.Sprintf("%q reads as a yes/no; want a value", s.Value), "quote it if you mean the text")
+		return "", false
+	}
+	return s.Value, true
+}
+
+func describe(n *yaml.Node) string {
+	switch n.Kind {
+	case yaml.MappingNode:
+		return "a mapping"
+	case yaml.SequenceNode:
+		return "a list"
+	case yaml.ScalarNode:
+		if n.Tag == "!!null" {
+			return "nothing"
+		}
+		v := n.Value
+		if len(v) > 40 {
+			v = v[:40] + "…"
+		}
+		return fmt.Sprintf("%q", v)
+	}
+	return "something else"
+}
+
+func (d *decoder) unknownKey(e entry, key string, known []string) {
+	d.add(e.k, key, fmt.Sprintf("unknown key %q", e.name), didYouMean(e.name, known))
+}
+
+func sub(key, name string) string {
+	if key == "" {
+		return name
+	}
+	return key + "." + name
+}
+
+func (d *decoder) file(root *yaml.Node) *File {
+	f := &File{Name: d.name, Devices: map[string]*Device{}}
+	top, ok := d.mapping(root, "")
+	if !ok {
+		if len(d.errs) == 0 {
+			d.add(root, "", "empty budget file", "start with version: 1")
+		}
+		return f
+	}
+	byName := map[string]entry{}
+	for _, e := range top {
+		if !contains(topKeys, e.name) {
+			d.unknownKey(e, "", topKeys)
+			continue
+		}
+		byName[e.name] = e
+	}
+	if e, ok := byName["version"]; ok {
+		if v, ok := d.scalar(e.v, "version"); ok {
+			if v != "1" {
+				d.add(e.v, "version", fmt.Sprintf("version %q is not one this loadline reads", v), "write version: 1")
+			}
+			f.Version = 1
+		}
+	} else {
+		d.add(root, "", "missing version", "start the file with version: 1")
+	}
+	// Devices first, whatever the key order: rules refer to them.
+	if e, ok := byName["devices"]; ok {
+		d.devices(f, e.v)
+	}
+	if e, ok := byName["models"]; ok {
+		items, _ := d.sequence(e.v, "models")
+		for i, item := range items {
+			if d.stopped {
+				break
+			}
+			if r := d.rule(f, i, item); r != nil {
+				f.Rules = append(f.Rules, r)
+			}
+		}
+	}
+	if e, ok := byName["waivers"]; ok {
+		items, _ := d.sequence(e.v, "waivers")
+		for i, item := range items {
+			if d.stopped {
+				break
+			}
+			if w, ok := d.waiver(i, item); ok {
+				f.Waivers = append(f.Waivers, w)
+			}
+		}
+	}
+	return f
+}
+
+func contains(list []string, s string) bool {
+	for _, x := range list {
+		if x == s {
+			return true
+		}
+	}
+	return false
+}
+
+func (d *decoder) devices(f *File, n *yaml.Node) {
+	entries, _ := d.mapping(n, "devices")
+	for _, e := range entries {
+		key := sub("devices", e.name)
+		if strings.TrimSpace(e.name) == "" {
+			d.add(e.k, "devices", "a device needs a name", "")
+			continue
+		}
+		dev := &Device{Name: e.name, Weights: WeightsFlash, Line: e.k.Line, Column: e.k.Column}
+		fields, ok := d.mapping(e.v, key)
+		if !ok {
+			continue
+		}
+		for _, fe := range fields {
+			fkey := sub(key, fe.name)
+			switch fe.name {
+			case "ram", "flash":
+				q, ok := d.quantity(fe.v, fkey)
+				if !ok {
+					continue
+				}
+				switch {
+				case q.Kind == Percent:
+					d.add(fe.v, fkey, fmt.Sprintf("%q: a capacity is in bytes, not a share", q.Text), "write e.g. 512KiB")
+					continue
+				case q.Kind == Count:
+					d.add(fe.v, fkey, fmt.Sprintf("%q is a count; a capacity is in bytes", q.Text), countAsBytesHint(q.Text))
+					continue
+				case q.Value <= 0:
+					d.add(fe.v, fkey, fmt.Sprintf("%q: a capacity must be more than 0", q.Text), "leave it out if the device has none to budget")
+					continue
+				}
+				if fe.name == "ram" {
+					dev.RAM = &q
+				} else {
+					dev.Flash = &q
+				}
+			case "weights":
+				v, ok := d.scalar(fe.v, fkey)
+				if !ok {
+					continue
+				}
+				if !contains(placements, v) {
+					hint := didYouMean(v, placements)
+					if hint == "" {
+						hint = "write flash or ram"
+					}
+					d.add(fe.v, fkey, fmt.Sprintf("%q: weights live in flash or ram", v), hint)
+					continue
+				}
+				dev.Weights = v
+			default:
+				d.unknownKey(fe, key, deviceKeys)
+			}
+		}
+		f.Devices[e.name] = dev
+	}
+}
+
+func countAsBytesHint(text string) string {
+	num := strings.TrimRight(strings.TrimSpace(text), "kMGT ")
+	unit := strings.TrimSpace(strings.TrimPrefix(strings.TrimSpace(text), num))
+	switch unit {
+	case "k":
+		return fmt.Sprintf("write %sKB or %sKiB", num, num)
+	case "M", "G", "T":
+		return fmt.Sprintf("write %s%sB or %s%siB", num, unit, num, unit)
+	}
+	return "write e.g. 512KiB"
+}
+
+func bytesAsCountHint(text string) string {
+	s := strings.TrimSpace(text)
+	i := 0
+	for i < len(s) && (isDigit(s[i]) || s[i] == '.') {
+		i++
+	}
+	num, unit := s[:i], strings.TrimSpace(s[i:])
+	if unit == "" || unit == "B" {
+		return "write a plain number"
+	}
+	return fmt.Sprintf("write %s%s", num, map[byte]string{'K': "k", 'k': "k", 'M': "M", 'G': "G", 'T': "T"}[unit[0]])
+}
+
+// quantity reads a scalar as a Quantity, reporting a bad unit with its
+// place.
+func (d *decoder) quantity(n *yaml.Node, key string) (Quantity, bool) {
+	v, ok := d.scalar(n, key)
+	if !ok {
+		return Quantity{}, false
+	}
+	q, err := ParseQuantity(v)
+	if err != nil {
+		var qe *QuantityError
+		if errors.As(err, &qe) {
+			d.add(n, key, fmt.Sprintf("%q: %s", qe.Text, qe.Msg), qe.Hint)
+		} else {
+			d.add(n, key, err.Error(), "")
+		}
+		return Quantity{}, false
+	}
+	return q, true
+}
+
+func (d *decoder) rule(f *File, i int, n *yaml.Node) *Rule {
+	key := fmt.Sprintf("models[%d]", i)
+	entries, ok := d.mapping(n, key)
+	if !ok {
+		return nil
+	}
+	r := &Rule{Index: i, WarnAt: DefaultWarnAt, Line: n.Line, Column: n.Column,
+		Dims: map[string]int64{}, Limits: map[string]Setting{}, Growth: map[string]Setting{}}
+	if m := d.visit(n); m != nil && len(m.Content) > 0 {
+		r.Line, r.Column = m.Content[0].Line, m.Content[0].Column
+	}
+	var limits, growth []entry
+	var hasPath, hasDevice bool
+	for _, e := range entries {
+		ekey := sub(key, e.name)
+		switch e.name {
+		case "path":
+			v, ok := d.scalar(e.v, ekey)
+			hasPath = true
+			if !ok {
+				continue
+			}
+			if p, msg, hint := checkGlob(v); msg != "" {
+				d.add(e.v, ekey, msg, hint)
+			} else {
+				r.Path = p
+			}
+		case "device":
+			v, ok := d.scalar(e.v, ekey)
+			hasDevice = true
+			if !ok {
+				continue
+			}
+			if _, known := f.Devices[v]; !known {
+				names := deviceNames(f)
+				hint := didYouMean(v, names)
+				if hint == "" && len(names) > 0 {
+					hint = "devices: " + strings.Join(names, ", ")
+				} else if hint == "" {
+					hint = "define it under devices"
+				}
+				d.add(e.v, ekey, fmt.Sprintf("unknown device %q", v), hint)
+				continue
+			}
+			r.Device = v
+		case "dims":
+			dims, _ := d.mapping(e.v, ekey)
+			for _, de := range dims {
+				v, ok := d.scalar(de.v, sub(ekey, de.name))
+				if !ok {
+					continue
+				}
+				n, err := strconv.ParseInt(v, 10, 64)
+				if err != nil || n < 1 || n > 1<<40 {
+					d.add(de.v, sub(ekey, de.name), fmt.Sprintf("%q: a dim is a whole number from 1 up", v), "")
+					continue
+				}
+				r.Dims[de.name] = n
+			}
+		case "limits":
+			limits, _ = d.mapping(e.v, ekey)
+		case "growth":
+			growth, _ = d.mapping(e.v, ekey)
+		case "warn_at":
+			if q, ok := d.warnAt(e.v, ekey); ok {
+				r.WarnAt, r.WarnAtSet = q, true
+			}
+		default:
+			d.unknownKey(e, key, ruleKeys)
+		}
+	}
+	if !hasPath {
+		d.add(n, key, "missing path", "say which models the rule covers, e.g. path: \"models/**/*.onnx\"")
+	}
+	if !hasDevice {
+		names := deviceNames(f)
+		hint := "name one of devices"
+		if len(names) > 0 {
+			hint = "devices: " + strings.Join(names, ", ")
+		}
+		d.add(n, key, "missing device", hint)
+	}
+	dev := f.Devices[r.Device]
+	for _, e := range limits {
+		if s, ok := d.setting(e, sub(key, "limits"), true, dev); ok {
+			r.Limits[e.name] = s
+		}
+	}
+	for _, e := range growth {
+		if s, ok := d.setting(e, sub(key, "growth"), false, dev); ok {
+			r.Growth[e.name] = s
+		}
+	}
+	if r.Path == "" || r.Device == "" {
+		return nil
+	}
+	return r
+}
+
+func deviceNames(f *File) []string {
+	names := make([]string, 0, len(f.Devices))
+	for n := range f.Devices {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+	return names
+}
+
+// checkGlob validates a rule or waiver path and returns it as matched.
+func checkGlob(p string) (clean, msg, hint string) {
+	if strings.TrimSpace(p) == "" {
+		return "", "empty path", "write e.g. models/**/*.onnx"
+	}
+	if strings.HasPrefix(p, "/") {
+		return "", fmt.Sprintf("%q: paths are relative to the repository root", p), "drop the leading /"
+	}
+	if strings.Contains(p, `\`) {
+		return "", fmt.Sprintf("%q: write paths with /", p), ""
+	}
+	p = strings.TrimPrefix(p, "./")
+	if !doublestar.ValidatePattern(p) {
+		return "", fmt.Sprintf("%q is not a valid glob", p), "check the brackets and braces"
+	}
+	return p, "", ""
+}
+
+// setting reads one limits or growth entry.
+func (d *decoder) setting(e entry, key string, limit bool, dev *Device) (Setting, bool) {
+	if !contains(Metrics, e.name) {
+		d.add(e.k, key, fmt.Sprintf("unknown metric %q", e.name), metricHint(e.name))
+		return Setting{}, false
+	}
+	mkey := sub(key, e.name)
+	q, ok := d.quantity(e.v, mkey)
+	if !ok {
+		return Setting{}, false
+	}
+	s := Setting{Quantity: q, Line: e.v.Line, Column: e.v.Column}
+	if IsBytes(e.name) && q.Kind == Count {
+		d.add(e.v, mkey, fmt.Sprintf("%q is a count; %s is in bytes", q.Text, e.name), countAsBytesHint(q.Text))
+		return Setting{}, false
+	}
+	if !IsBytes(e.name) && q.Kind == Bytes {
+		d.add(e.v, mkey, fmt.Sprintf("%q is in bytes; %s is a count", q.Text, e.name), bytesAsCountHint(q.Text))
+		return Setting{}, false
+	}
+	if q.Kind != Percent {
+		return s, true
+	}
+	if !limit {
+		return s, true // growth: a share of the base figure, any size
+	}
+	if e.name != MetricRAM && e.name != MetricFlash {
+		d.add(e.v, mkey, fmt.Sprintf("%q: a %% limit is a share of the device's capacity, and only ram and flash have one", q.Text),
+			"write the limit as a number, e.g. "+map[bool]string{true: "256KiB", false: "60M"}[IsBytes(e.name)])
+		return Setting{}, false
+	}
+	if q.Value <= 0 || q.Value > PercentScale {
+		d.add(e.v, mkey, fmt.Sprintf("%q: a share of the device must be more than 0%% and at most 100%%", q.Text), "")
+		return Setting{}, false
+	}
+	if dev == nil {
+		return Setting{}, false // the unknown device is reported already
+	}
+	if _, ok := dev.Capacity(e.name); !ok {
+		d.add(e.v, mkey, fmt.Sprintf("%q: device %q has no %s capacity to take a share of", q.Text, dev.Name, e.name),
+			fmt.Sprintf("add devices.%s.%s, or write the limit in bytes", dev.Name, e.name))
+		return Setting{}, false
+	}
+	return s, true
+}
+
+func metricHint(name string) string {
+	if h := didYouMean(name, Metrics); h != "" {
+		return h
+	}
+	switch strings.ToLower(name) {
+	case "param_bytes", "parameter_bytes":
+		return `did you mean "weights"?`
+	case "file_bytes", "size":
+		return `did you mean "file"?`
+	case "memory", "activations", "peak":
+		return `did you mean "arena" or "ram"?`
+	}
+	return "metrics: " + strings.Join(Metrics, ", ")
+}
+
+// warnAt reads warn_at: a percent, more than 0 and at most 100.
+func (d *decoder) warnAt(n *yaml.Node, key string) (int64, bool) {
+	v, ok := d.scalar(n, key)
+	if !ok {
+		return 0, false
+	}
+	q, err := ParseQuantity(v)
+	if err == nil && q.Kind == Percent {
+		if q.Value <= 0 || q.Value > PercentScale {
+			d.add(n, key, fmt.Sprintf("%q: warn_at must be more than 0%% and at most 100%%", v), "")
+			return 0, false
+		}
+		return q.Value, true
+	}
+	hint := "write e.g. 90%"
+	if f, err := strconv.ParseFloat(strings.TrimSpace(v), 64); err == nil && f > 0 {
+		if f <= 1 {
+			hint = "write " + strconv.FormatFloat(f*100, 'f', -1, 64) + "%"
+		} else if f <= 100 {
+			hint = "write " + strings.TrimSpace(v) + "%"
+		}
+	}
+	d.add(n, key, fmt.Sprintf("%q: warn_at is a percent of the limit", v), hint)
+	return 0, false
+}
+
+func (d *decoder) waiver(i int, n *yaml.Node) (Waiver, bool) {
+	key := fmt.Sprintf("waivers[%d]", i)
+	entries, ok := d.mapping(n, key)
+	if !ok {
+		return Waiver{}, false
+	}
+	w := Waiver{Line: n.Line, Column: n.Column}
+	if m := d.visit(n); m != nil && len(m.Content) > 0 {
+		w.Line, w.Column = m.Content[0].Line, m.Content[0].Column
+	}
+	good := true
+	seen := map[string]bool{}
+	for _, e := range entries {
+		ekey := sub(key, e.name)
+		if !contains(waiverKeys, e.name) {
+			d.unknownKey(e, key, waiverKeys)
+			good = false
+			continue
+		}
+		seen[e.name] = true
+		v, ok := d.scalar(e.v, ekey)
+		if !ok {
+			good = false
+			continue
+		}
+		switch e.name {
+		case "path":
+			p, msg, hint := checkGlob(v)
+			if msg != "" {
+				d.add(e.v, ekey, msg, hint)
+				good = false
+			}
+			w.Path = p
+		case "metric":
+			if !contains(Metrics, v) {
+				d.add(e.v, ekey, fmt.Sprintf("unknown metric %q", v), metricHint(v))
+				good = false
+			}
+			w.Metric = v
+		case "until":
+			t, err := time.Parse("2006-01-02", strings.TrimSpace(v))
+			if err != nil {
+				d.add(e.v, ekey, fmt.Sprintf("%q is not a date", v), "write YYYY-MM-DD, e.g. 2027-01-31")
+				good = false
+			}
+			w.Until = t
+		case "reason":
+			if strings.TrimSpace(v) == "" {
+				d.add(e.v, ekey, "empty reason", "say why the figure may exceed its budget, for the reviewer who renews it")
+				good = false
+			}
+			w.Reason = strings.TrimSpace(v)
+		}
+	}
+	for _, k := range waiverKeys {
+		if !seen[k] {
+			hint := map[string]string{
+				"path":   "name the model, e.g. path: models/birdcam/v4.onnx",
+				"metric": "metrics: " + strings.Join(Metrics, ", "),
+				"until":  "a waiver ends: write until: YYYY-MM-DD",
+				"reason": "say why the figure may exceed its budget",
+			}[k]
+			d.add(n, key, "missing "+k, hint)
+			good = false
+		}
+	}
+	return w, good
+}
+
+// Match returns the rules whose path glob matches a model path, in file
+// order. Paths are relative to the repository root, with /.
+func (f *File) Match(p string) []*Rule {
+	p = cleanPath(p)
+	var out []*Rule
+	for _, r := range f.Rules {
+		if ok, _ := doublestar.Match(r.Path, p); ok {
+			out = append(out, r)
+		}
+	}
+	return out
+}
+
+func sortedKeys[V any](m map[string]V) []string {
+	keys := make([]string, 0, len(m))
+	for k := range m {
+		keys = append(keys, k)
+	}
+	sort.Strings(keys)
+	return keys
+}
+
+// Dims returns the values of symbolic dims for a model path, from every
+// rule that matches it; an error when two rules give one dim different
+// values.
+func (f *File) Dims(p string) (map[string]int64, error) {
+	out := map[string]int64{}
+	from := map[string]*Rule{}
+	for _, r := range f.Match(p) {
+		for _, name := range sortedKeys(r.Dims) {
+			v := r.Dims[name]
+			if first, ok := from[name]; ok && out[name] != v {
+				return nil, fmt.Errorf("%s: rules disagree on dim %s: %s says %d, %s says %d",
+					cleanPath(p), name, f.ruleAt(first), out[name], f.ruleAt(r), v)
+			} else if !ok {
+				out[name], from[name] = v, r
+			}
+		}
+	}
+	return out, nil
+}
+
+func (f *File) place(line, col int) string {
+	return fmt.Sprintf("%s:%d:%d", f.Name, line, col)
+}
+
+// ruleAt names a rule for a message: models[2] "models/**" (loadline.yaml:14:5).
+func (f *File) ruleAt(r *Rule) string {
+	return fmt.Sprintf("%s %q (%s)", r.Key(), r.Path, f.place(r.Line, r.Column))
+}
+
+func cleanPath(p string) string {
+	return strings.TrimPrefix(strings.ReplaceAll(p, `\`, "/"), "./")
+}
