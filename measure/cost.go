@@ -445,7 +445,11 @@ func rnnMACs(gates int64) func(c *costCtx) (int64, error) {
 				return 0, fmt.Errorf("hidden size is not known: %v", err)
 			}
 		}
-		return product(gates, input+hidden, hidden, steps, batch, dirs)
+		width, ok := addChecked(input, hidden)
+		if !ok {
+			return 0, fmt.Errorf("input + hidden overflows int64")
+		}
+		return product(gates, width, hidden, steps, batch, dirs)
 	}
 }
 
@@ -729,8 +733,8 @@ func (k *coster) tripCount(n *model.Node, c *costCtx) (int64, string) {
 		case v[0] < 0:
 			return -1, fmt.Sprintf("M is %d", v[0])
 		case v[0] >= math.MaxInt32 && c.in(1) != nil && !isConstTrue(c.in(1)):
-			// Exporters write INT32_MAX or INT64_MAX as the M of a while
-			// loop: a bound, not a count.
+			// A while loop as exporters write it (INT64_MAX, or INT32_MAX,
+			// and a condition): M is a bound, not a count.
 			return -1, fmt.Sprintf("M is %d, a bound; the loop ends on its condition", v[0])
 		}
 		return v[0], ""

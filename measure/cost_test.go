@@ -316,15 +316,19 @@ func TestCostsIf(t *testing.T) {
 }
 
 // loopModel is a Loop of M iterations (M a constant, or a runtime input
-// when m < 0) whose body multiplies the carried [1,4] state by a [4,4]
-// weight.
-func loopModel(m int64) *model.Model {
+// when m < 0; with a runtime condition when cond) whose body multiplies
+// the carried [1,4] state by a [4,4] weight.
+func loopModel(m int64, cond bool) *model.Model {
 	b := newCostGraph()
 	var mIn string
 	if m >= 0 {
 		mIn = b.i64("M", m)
 	} else {
 		mIn = b.in("M", model.Int64)
+	}
+	condIn := ""
+	if cond {
+		condIn = b.in("keep_going", model.Bool)
 	}
 	s0 := b.in("s0", f32c, 1, 4)
 	w := b.w("wl", 4, 4)
@@ -335,14 +339,14 @@ func loopModel(m int64) *model.Model {
 			matmulNode("body_mm", "s_in", w, "s_out"),
 		},
 		Outputs: []*model.ValueInfo{{Name: "cond_out"}, {Name: "s_out"}}}
-	b.g.Nodes = append(b.g.Nodes, &model.Node{Name: "loop", Op: "Loop", Inputs: []string{mIn, "", s0}, Outputs: []string{"s"},
+	b.g.Nodes = append(b.g.Nodes, &model.Node{Name: "loop", Op: "Loop", Inputs: []string{mIn, condIn, s0}, Outputs: []string{"s"},
 		Attrs: []*model.Attr{atG("body", body)}})
 	b.out("s")
 	return b.model()
 }
 
 func TestCostsLoop(t *testing.T) {
-	got := costsOf(t, loopModel(3), nil)
+	got := costsOf(t, loopModel(3, false), nil)
 	// derived: body [1,4]×[4,4] = 4 × 4 = 16 MACs, × M 3 = 48 MACs, 96 FLOPs
 	// (Identity is data movement)
 	if got.MACs != 48 || got.FLOPs != 96 || len(got.Unresolved) != 0 {
@@ -352,7 +356,18 @@ func TestCostsLoop(t *testing.T) {
 		t.Errorf("by op %+v", got.ByOp)
 	}
 
-	got = costsOf(t, loopModel(-1), nil)
+	// derived: with a runtime condition M=3 still bounds the loop: 48 MACs
+	if got = costsOf(t, loopModel(3, true), nil); got.MACs != 48 || len(got.Unresolved) != 0 {
+		t.Errorf("M=3 with a condition: MACs %d, unresolved %+v; want 48, none", got.MACs, got.Unresolved)
+	}
+	// A while loop as exporters write it (from memory: torch.onnx gives a
+	// scripted while loop M = INT64_MAX and a condition): M is a bound, not a
+	// count, so the body counts once (16 MACs) and the node is listed.
+	if got = costsOf(t, loopModel(math.MaxInt64, true), nil); got.MACs != 16 || len(got.Unresolved) != 1 ||
+		!strings.Contains(got.Unresolved[0].Reason, "trip count unknown") {
+		t.Errorf("M=INT64_MAX with a condition: MACs %d, unresolved %+v; want 16 and trip count unknown", got.MACs, got.Unresolved)
+	}
+	got = costsOf(t, loopModel(-1, false), nil)
 	// derived: M is a runtime input, so the body counts once: 16 MACs
 	if got.MACs != 16 || len(got.Unresolved) != 1 || got.Unresolved[0].Node != "loop" ||
 		!strings.Contains(got.Unresolved[0].Reason, "trip count unknown") || got.Nodes[0].Known {
@@ -462,5 +477,58 @@ func TestMeasureCosts(t *testing.T) {
 	pb, ma, fl, sp := strings.Index(s, `"param_bytes":`), strings.Index(s, `"macs":`), strings.Index(s, `"flops":`), strings.Index(s, `"sparsity":`)
 	if pb < 0 || !(pb < ma && ma < fl && fl < sp) {
 		t.Errorf("JSON keys param_bytes, macs, flops, sparsity at %d, %d, %d, %d: %s", pb, ma, fl, sp, s[:min(len(s), 300)])
+	}
+}
+
+// TestCostsHostile runs the cost rules on nodes that shape inference
+// rejects but whose output the file declares, so the rules see what a
+// hostile file can give them: each must be listed, none may panic or go
+// negative.
+func TestCostsHostile(t *testing.T) {
+	big := int64(1) << 40
+	cases := []struct {
+		name  string
+		build func(b *costGraph) string
+		out   []int64
+	}{
+		{"Conv weights rank 1", func(b *costGraph) string {
+			return b.node("Conv", "n", []string{b.in("x", f32c, 1, 2, 3, 3), b.w("w", 2)}, "y")
+		}, []int64{1, 2, 3, 3}},
+		{"ConvTranspose weights rank 1", func(b *costGraph) string {
+			return b.node("ConvTranspose", "n", []string{b.in("x", f32c, 1, 2, 3, 3), b.w("w", 2)}, "y")
+		}, []int64{1, 2, 3, 3}},
+		{"Conv overflow", func(b *costGraph) string {
+			return b.node("Conv", "n", []string{b.in("x", f32c, 1<<62, 2, 3, 3), b.w("w", 2, 2, 3, 3)}, "y")
+		}, []int64{1 << 62, 2, 1, 1}}, // output elements 2⁶³ overflow int64
+		{"Gemm rank 3", func(b *costGraph) string {
+			return b.node("Gemm", "n", []string{b.in("a", f32c, 2, 3, 4), b.w("b", 4, 5)}, "y")
+		}, []int64{2, 5}},
+		{"MatMul scalar", func(b *costGraph) string {
+			return b.node("MatMul", "n", []string{b.in("a", f32c), b.w("b", 4, 5)}, "y")
+		}, []int64{5}},
+		{"Einsum operand count", func(b *costGraph) string {
+			return b.node("Einsum", "n", []string{b.in("x", f32c, 2, 3)}, "y", atS("equation", "ij,jk->ik"))
+		}, []int64{2, 3}},
+		{"LSTM overflow", func(b *costGraph) string {
+			return b.node("LSTM", "n", []string{b.in("x", f32c, int(big), 1, int(big)), b.w("W", 1, 4, 4)}, "y", atI("hidden_size", 1<<62))
+		}, []int64{1, 1, 1, 1}},
+		{"MaxPool negative kernel", func(b *costGraph) string {
+			return b.node("MaxPool", "n", []string{b.in("x", f32c, 1, 1, 4, 4)}, "y", atIs("kernel_shape", -2, 2))
+		}, []int64{1, 1, 2, 2}},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			b := newCostGraph()
+			y := c.build(b)
+			b.g.Outputs = append(b.g.Outputs, vi(y, f32c, c.out...))
+			inf, err := Infer(b.model(), InferOptions{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			got := CountCosts(inf)
+			if len(got.Unresolved) == 0 || got.MACs < 0 || got.FLOPs < 0 || got.Nodes[0].Known {
+				t.Errorf("MACs %d, FLOPs %d, unresolved %+v", got.MACs, got.FLOPs, got.Unresolved)
+			}
+		})
 	}
 }
