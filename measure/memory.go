@@ -169,37 +169,15 @@ func planGraph(g *model.Graph, vals map[string]*Value, subs map[*model.Graph]map
 				r.last = i
 			}
 		}
-		hasBody := false
-		for _, a := range n.Attrs {
-			bodies := a.Graphs
-			if a.Graph != nil {
-				bodies = append([]*model.Graph{a.Graph}, bodies...)
-			}
-			for _, body := range bodies {
-				if body == nil {
-					continue
+		hasBody := plan.bodies(n, i, depth, subs, bodyPeak, bodyArena,
+			func(name string) {
+				if r := recs[name]; r != nil {
+					r.last = i
 				}
-				hasBody = true
-				forEachNestedInput(body, func(name string) {
-					if r := recs[name]; r != nil {
-						r.last = i
-					}
-				})
-				if depth >= maxGraphDepth {
-					plan.Unresolved = append(plan.Unresolved, Unresolved{Node: nodeLabel(n, i), Op: n.Op, Reason: "memory unknown: subgraphs nest too deep"})
-					continue
-				}
-				bv := subs[body]
-				if bv == nil {
-					plan.Unresolved = append(plan.Unresolved, Unresolved{Node: nodeLabel(n, i), Op: n.Op, Reason: fmt.Sprintf("memory unknown: subgraph %q was not inferred", body.Name)})
-					continue
-				}
-				bp := planGraph(body, bv, subs, depth+1)
-				bodyPeak[i] = max(bodyPeak[i], bp.PeakLiveBytes)
-				bodyArena[i] = max(bodyArena[i], bp.ArenaBytes)
-				plan.Unresolved = append(plan.Unresolved, bp.Unresolved...)
-			}
-		}
+			},
+			func(body *model.Graph, bv map[string]*Value) *MemoryPlan {
+				return planGraph(body, bv, subs, depth+1)
+			})
 		fold := !hasBody && !randomOps[n.Op]
 		inputs := 0
 		for _, name := range n.Inputs {
@@ -244,9 +222,54 @@ func planGraph(g *model.Graph, vals map[string]*Value, subs map[*model.Graph]map
 		lts = append(lts, Lifetime{Name: r.name, Size: size, First: r.first, Last: r.last})
 	}
 
+	plan.finish(g, steps, lts, lts, bodyPeak, bodyArena)
+	return plan
+}
+
+// bodies plans the subgraphs of node n (step i) with planBody, records the
+// largest body peak and arena at step i, and calls use with every name the
+// bodies read, so that outer tensors stay live through the node. It
+// reports whether n has a subgraph.
+func (plan *MemoryPlan) bodies(n *model.Node, i, depth int, subs map[*model.Graph]map[string]*Value, bodyPeak, bodyArena map[int]int64,
+	use func(string), planBody func(*model.Graph, map[string]*Value) *MemoryPlan) bool {
+	hasBody := false
+	for _, a := range n.Attrs {
+		bodies := a.Graphs
+		if a.Graph != nil {
+			bodies = append([]*model.Graph{a.Graph}, bodies...)
+		}
+		for _, body := range bodies {
+			if body == nil {
+				continue
+			}
+			hasBody = true
+			forEachNestedInput(body, use)
+			if depth >= maxGraphDepth {
+				plan.Unresolved = append(plan.Unresolved, Unresolved{Node: nodeLabel(n, i), Op: n.Op, Reason: "memory unknown: subgraphs nest too deep"})
+				continue
+			}
+			bv := subs[body]
+			if bv == nil {
+				plan.Unresolved = append(plan.Unresolved, Unresolved{Node: nodeLabel(n, i), Op: n.Op, Reason: fmt.Sprintf("memory unknown: subgraph %q was not inferred", body.Name)})
+				continue
+			}
+			bp := planBody(body, bv)
+			bodyPeak[i] = max(bodyPeak[i], bp.PeakLiveBytes)
+			bodyArena[i] = max(bodyArena[i], bp.ArenaBytes)
+			plan.Unresolved = append(plan.Unresolved, bp.Unresolved...)
+		}
+	}
+	return hasBody
+}
+
+// finish computes the live bytes per step and the peak from the sized
+// lifetimes live over steps steps of g, and the arena from the buffers
+// lts (the same list, except where a buffer holds two tensors in turn), with
+// the subgraph bodies' peaks and arenas at their nodes' steps.
+func (plan *MemoryPlan) finish(g *model.Graph, steps int, live, lts []Lifetime, bodyPeak, bodyArena map[int]int64) {
 	// Live bytes per step: a difference array over the steps.
 	diff := make([]int64, steps+1)
-	for _, lt := range lts {
+	for _, lt := range live {
 		diff[lt.First] += lt.Size
 		diff[lt.Last+1] -= lt.Size
 	}
@@ -263,23 +286,23 @@ func planGraph(g *model.Graph, vals map[string]*Value, subs map[*model.Graph]map
 	}
 
 	// Subgraph bodies enter the arena as one block each.
+	var blocks []Lifetime
 	for i, n := range g.Nodes {
 		if b, ok := bodyArena[i]; ok {
-			lts = append(lts, Lifetime{Name: nodeLabel(n, i) + " (subgraph)", Size: b, First: i, Last: i})
+			blocks = append(blocks, Lifetime{Name: nodeLabel(n, i) + " (subgraph)", Size: b, First: i, Last: i})
 		}
 	}
-	plan.Placements, plan.ArenaBytes = PlanArena(lts)
-	live := []Placement{}
-	for _, p := range plan.Placements {
-		if p.First <= plan.PeakStep && plan.PeakStep <= p.Last {
-			live = append(live, p)
+	plan.Placements, plan.ArenaBytes = PlanArena(append(lts[:len(lts):len(lts)], blocks...))
+	var atPeak []Lifetime
+	for _, lt := range append(live[:len(live):len(live)], blocks...) {
+		if lt.First <= plan.PeakStep && plan.PeakStep <= lt.Last {
+			atPeak = append(atPeak, lt)
 		}
 	}
-	sort.SliceStable(live, func(a, b int) bool { return live[a].First < live[b].First })
-	for _, p := range live {
-		plan.LiveAtPeak = append(plan.LiveAtPeak, p.Name)
+	sort.SliceStable(atPeak, func(a, b int) bool { return atPeak[a].First < atPeak[b].First })
+	for _, lt := range atPeak {
+		plan.LiveAtPeak = append(plan.LiveAtPeak, lt.Name)
 	}
-	return plan
 }
 
 // forEachNestedInput calls fn with every input name read by a node of g or

@@ -196,25 +196,38 @@ func TestMemoryStaticExcluded(t *testing.T) {
 	}
 }
 
+// randomOpsMix are the ops of random DAGs: op-agnostic for the graph view,
+// and each a rewrite of the deployed view.
+var randomOpsMix = []string{"Custom", "Custom", "Relu", "Clip", "Reshape", "Identity", "BatchNormalization", "Conv", "QuantizeLinear", "DequantizeLinear"}
+
+// sameShapeOps keep their first input's shape (and, in these uint8 graphs,
+// its bytes) in their first output, as they do in real graphs.
+var sameShapeOps = map[string]bool{"Relu": true, "Clip": true, "Reshape": true, "Identity": true, "BatchNormalization": true, "QuantizeLinear": true, "DequantizeLinear": true}
+
 // randomGraph builds a random DAG directly as an Inference: 1–3 graph inputs,
-// up to 40 nodes of 1–3 inputs and 1–2 outputs each, uint8 vectors of 0–999
-// elements (so bytes = elements), a few outputs marked as weights (static),
-// a few graph outputs.
+// up to 40 nodes of 1–3 inputs and 1–2 outputs each, uint8 tensors of shape
+// [1, c, l] (so bytes = elements = c·l, 0 to 8·125), a few outputs marked
+// as weights (static), a few graph outputs. Some Convs are depthwise: group
+// equal to their input's and output's channels. The ops of sameShapeOps
+// keep their input's shape.
 func randomGraph(r *rand.Rand) *Inference {
 	g := &model.Graph{}
 	vals := map[string]*Value{}
 	var avail []string
-	newVal := func(name string, weight bool) {
-		vals[name] = &Value{Type: model.TensorType(model.Uint8, model.KnownShape(int64(r.Intn(1000)))), Weight: weight}
+	newVal := func(name string, weight bool, c int64) {
+		if c < 0 {
+			c = 1 + int64(r.Intn(8))
+		}
+		vals[name] = &Value{Type: model.TensorType(model.Uint8, model.KnownShape(1, c, int64(r.Intn(126)))), Weight: weight}
 	}
 	for i := range 1 + r.Intn(3) {
 		name := fmt.Sprintf("in%d", i)
 		g.Inputs = append(g.Inputs, &model.ValueInfo{Name: name})
-		newVal(name, false)
+		newVal(name, false, -1)
 		avail = append(avail, name)
 	}
 	for i := range r.Intn(41) {
-		n := &model.Node{Name: fmt.Sprintf("n%d", i), Op: "Custom"}
+		n := &model.Node{Name: fmt.Sprintf("n%d", i), Op: randomOpsMix[r.Intn(len(randomOpsMix))]}
 		for range 1 + r.Intn(3) {
 			// Mostly recent tensors, sometimes far back: skip connections.
 			j := len(avail) - 1 - r.Intn(min(len(avail), 4))
@@ -223,10 +236,18 @@ func randomGraph(r *rand.Rand) *Inference {
 			}
 			n.Inputs = append(n.Inputs, avail[j])
 		}
+		c := int64(-1)
+		if n.Op == "Conv" && r.Intn(2) == 0 {
+			c = vals[n.Inputs[0]].Type.Shape[1].Value
+			n.Attrs = []*model.Attr{{Name: "group", Kind: model.AttrInt, Int: c}}
+		}
 		for k := range 1 + r.Intn(2) {
 			name := fmt.Sprintf("t%d_%d", i, k)
 			n.Outputs = append(n.Outputs, name)
-			newVal(name, r.Intn(10) == 0)
+			newVal(name, r.Intn(10) == 0, c)
+			if k == 0 && sameShapeOps[n.Op] {
+				vals[name].Type = vals[n.Inputs[0]].Type
+			}
 			avail = append(avail, name)
 		}
 		g.Nodes = append(g.Nodes, n)
@@ -499,8 +520,8 @@ func BenchmarkPlanArena10k(b *testing.B) {
 	}
 }
 
-// TestMemoryMeasureJSON: Measure reports the graph view under the JSON
-// contract's keys (DESIGN.md, "Machine-readable contracts").
+// TestMemoryMeasureJSON: Measure reports the graph and deployed views
+// (default rewrites) under the JSON contract's keys (DESIGN.md, "Machine-readable contracts").
 func TestMemoryMeasureJSON(t *testing.T) {
 	m, err := build.MobileNetV2(build.Options{Declared: true})
 	if err != nil {
@@ -524,7 +545,71 @@ func TestMemoryMeasureJSON(t *testing.T) {
 	if g["peak_live_bytes"] != 9_633_792 || g["arena_bytes"] < g["peak_live_bytes"] { // hand-derived in TestMemoryMobileNetV2
 		t.Errorf("memory.graph = %v, want peak_live_bytes 9633792 and arena_bytes ≥ it", g)
 	}
-	if _, ok := got.Memory["deployed"]["arena_bytes"]; !ok {
-		t.Errorf("memory.deployed.arena_bytes missing from %s", js)
+	d := got.Memory["deployed"]
+	if d["peak_live_bytes"] != 6_021_120 || d["arena_bytes"] < d["peak_live_bytes"] { // derived in TestDeployedMobileNetV2
+		t.Errorf("memory.deployed = %v, want peak_live_bytes 6021120 and arena_bytes ≥ it", d)
+	}
+}
+
+// ifModel is cond (bool scalar) and x (float32 [1,4], 16 B) →
+// y = If(cond) → z = Relu(y). The then branch reads x from the enclosing
+// graph: t1 = Relu(x), t2 = Relu(t1); the else branch is e = Identity(x).
+func ifModel() *model.Model {
+	f32 := model.TensorType(model.Float32, model.KnownShape(1, 4))
+	then := &model.Graph{Name: "then",
+		Nodes:   []*model.Node{{Name: "r1", Op: "Relu", Inputs: []string{"x"}, Outputs: []string{"t1"}}, {Name: "r2", Op: "Relu", Inputs: []string{"t1"}, Outputs: []string{"t2"}}},
+		Outputs: []*model.ValueInfo{{Name: "t2", Type: f32}}}
+	els := &model.Graph{Name: "else",
+		Nodes:   []*model.Node{{Name: "id", Op: "Identity", Inputs: []string{"x"}, Outputs: []string{"e"}}},
+		Outputs: []*model.ValueInfo{{Name: "e", Type: f32}}}
+	g := &model.Graph{
+		Inputs: []*model.ValueInfo{{Name: "cond", Type: model.TensorType(model.Bool, model.Shape{})}, {Name: "x", Type: f32}},
+		Nodes: []*model.Node{
+			{Name: "if", Op: "If", Inputs: []string{"cond"}, Outputs: []string{"y"}, Attrs: []*model.Attr{
+				{Name: "then_branch", Kind: model.AttrGraph, Graph: then}, {Name: "else_branch", Kind: model.AttrGraph, Graph: els}}},
+			{Name: "relu", Op: "Relu", Inputs: []string{"y"}, Outputs: []string{"z"}},
+		},
+		Outputs: []*model.ValueInfo{{Name: "z"}},
+	}
+	return &model.Model{Format: "onnx", IRVersion: 8, Opsets: map[string]int64{"": 13}, Graph: g}
+}
+
+// TestMemorySubgraph: a body's own peak is added at its node's step, and
+// outer values a body reads stay live through that step. Hand-worked:
+//
+// then branch: t1 0..1, t2 1..1 (16 B each): peak 32; else branch: e 16.
+// Body peak = max(32, 16) = 32, body arena 32.
+// Main graph: cond 0..0 (1 B), x 0..0 (read by the then and else bodies at
+// step 0, 16 B), y 0..1 (16 B), z 1..1 (16 B).
+//
+//	step 0: 1 + 16 + 16 + 32 (body) = 65   ← peak
+//	step 1: y + z = 16 + 16          = 32
+//
+// Arena: the body block (32) at 0; x (16, 0..0) → 32; y (16, 0..1) → 48;
+// z (16, 1..1) meets y only → 0; cond (1 B) meets the body, x and y → 64.
+// Arena 65.
+//
+// Deployed (default): in the then branch Relu r2 fuses into r1 (t1 is never
+// stored), so its peak is 16; the else branch's Identity reads an outer
+// value, which stays where it is: 16. The main Relu reads the If's output
+// and is not fused into a control-flow node. Step 0: 1 + 16 + 16 + 16 = 49.
+func TestMemorySubgraph(t *testing.T) {
+	inf, err := Infer(ifModel(), InferOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := PlanMemory(inf)
+	if want := []int64{65, 32}; !reflect.DeepEqual(p.LiveBytesByStep, want) { // hand-worked, above
+		t.Errorf("live bytes by step %v, want %v (unresolved %v)", p.LiveBytesByStep, want, p.Unresolved)
+	}
+	if p.ArenaBytes != 65 { // hand-worked, above
+		t.Errorf("arena %d, want 65", p.ArenaBytes)
+	}
+	if want := []string{"cond", "x", "y", "if (subgraph)"}; !reflect.DeepEqual(p.LiveAtPeak, want) {
+		t.Errorf("live at peak %v, want %v", p.LiveAtPeak, want)
+	}
+	checkPlacements(t, p.Placements, p.ArenaBytes)
+	if d := PlanDeployed(inf, DefaultDeployOptions()); !reflect.DeepEqual(d.LiveBytesByStep, []int64{49, 32}) { // hand-worked, above
+		t.Errorf("deployed live bytes by step %v, want [49 32]", d.LiveBytesByStep)
 	}
 }

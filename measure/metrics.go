@@ -78,6 +78,8 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	out.Unresolved = appendUnresolved(out.Unresolved, costs.Unresolved)
 	plan := PlanMemory(inf)
 	out.Memory.Graph = MemoryView{PeakLiveBytes: plan.PeakLiveBytes, ArenaBytes: plan.ArenaBytes}
+	dep := PlanDeployed(inf, DefaultDeployOptions())
+	out.Memory.Deployed = MemoryView{PeakLiveBytes: dep.PeakLiveBytes, ArenaBytes: dep.ArenaBytes}
 	out.Unresolved = append(out.Unresolved, plan.Unresolved...)
 	for _, in := range inf.Inputs {
 		out.Inputs = append(out.Inputs, ioInfo(in))
