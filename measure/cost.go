@@ -44,8 +44,11 @@ import (
 // A node whose figures need a shape that is not fully known (unknown rank,
 // or symbolic dims nobody bound with --dim) is not counted as zero: it is
 // listed in Costs.Unresolved with the shape that stopped it, and left out
-// of the totals, which then are lower bounds. So are operators of no rule
-// (uncostedOps, custom domains, calls of model-local functions).
+// of the totals, which then are lower bounds. So are operators of other
+// domains and calls of model-local functions, whose arithmetic is not
+// known. The few standard operators no convention covers (uncostedOps:
+// DFT, NonMaxSuppression, …) contribute 0 FLOPs, listed there with the
+// reason; they do not make the MACs unknown.
 
 // NodeCost is the cost of one node of the main graph; a control-flow node
 // carries the cost of the subgraphs it runs.
@@ -177,9 +180,10 @@ var flopRules = map[string]flopRule{
 }
 
 // uncostedOps are the operators shape inference knows that have no row in
-// flopRules, with the reason. Their nodes are listed as unresolved and
-// contribute 0, as do operators of other domains and calls of model-local
-// functions.
+// flopRules, with the reason: no accepted convention counts their
+// arithmetic, so they contribute 0 MACs and 0 FLOPs. Operators of other domains and calls of
+// model-local functions, whose arithmetic is not known, are listed as
+// unresolved instead.
 var uncostedOps = map[string]string{
 	"DFT":                               "a Fourier transform's cost depends on the algorithm (FFT or not)",
 	"STFT":                              "a Fourier transform's cost depends on the algorithm (FFT or not)",
@@ -605,10 +609,10 @@ func (k *coster) node(n *model.Node, i int, sc scopes) *tally {
 		key = domain + ":" + n.Op
 	}
 	rule, ok := flopRules[key]
+	if _, listed := uncostedOps[key]; listed && !ok {
+		rule, ok = zeroFlops, true
+	}
 	if !ok {
-		if why, listed := uncostedOps[key]; listed {
-			return k.fail(n, i, "FLOPs not counted: %s", why)
-		}
 		return k.fail(n, i, "MACs unknown: no cost rule for operator %s", key)
 	}
 	c := &costCtx{node: n, ins: make([]*Value, len(n.Inputs)), outs: make([]*Value, len(n.Outputs))}

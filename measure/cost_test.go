@@ -425,6 +425,17 @@ func TestCostsSymbolicBatch(t *testing.T) {
 	}
 }
 
+// TestCostsUncosted checks that a standard operator no convention covers
+// counts 0 without making the model's MACs unknown.
+func TestCostsUncosted(t *testing.T) {
+	b := newCostGraph()
+	b.out(b.node("Det", "det", []string{b.in("x", f32c, 3, 3)}, "d"))
+	got := costsOf(t, b.model(), nil)
+	if got.MACs != 0 || got.FLOPs != 0 || len(got.Unresolved) != 0 || !got.Nodes[0].Known {
+		t.Errorf("Det: %+v", got)
+	}
+}
+
 // TestCostsUnknownOperator checks that an operator of no rule is listed.
 func TestCostsUnknownOperator(t *testing.T) {
 	b := newCostGraph()
