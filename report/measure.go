@@ -45,7 +45,12 @@ func MeasureText(w io.Writer, entries []*measure.Metrics) error {
 		fmt.Fprintf(tw, "  file\t%s\n", Bytes(m.FileBytes))
 		fmt.Fprintf(tw, "  params\t%s\t(%s)\n", Count(m.Params), dtypeText(m))
 		fmt.Fprintf(tw, "  param bytes\t%s\n", Bytes(m.ParamBytes))
-		fmt.Fprintf(tw, "  MACs\t%s\t(FLOPs %s = 2×MACs + elementwise)\n", Count(m.MACs), Count(m.FLOPs))
+		// With nodes unresolved the counts leave those nodes out: lower bounds.
+		atLeast := ""
+		if len(m.Unresolved) > 0 {
+			atLeast = "≥ "
+		}
+		fmt.Fprintf(tw, "  MACs\t%s%s\t(FLOPs %s%s = 2×MACs + elementwise)\n", atLeast, Count(m.MACs), atLeast, Count(m.FLOPs))
 		tw.Flush()
 		for _, io := range m.Inputs {
 			fmt.Fprintf(w, "  input   %s %s%s\n", io.Name, io.DType, shapeText(io.Shape))
