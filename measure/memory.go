@@ -1,7 +1,10 @@
 package measure
 
 import (
+	"cmp"
 	"fmt"
+	"math/bits"
+	"slices"
 	"sort"
 
 	"github.com/loadline/loadline/model"
@@ -401,40 +404,33 @@ func PlanArena(tensors []Lifetime) (placements []Placement, arena int64) {
 	for i := range idx {
 		idx[i] = i
 	}
-	sort.Slice(idx, func(a, b int) bool {
-		x, y := &placements[idx[a]], &placements[idx[b]]
+	slices.SortFunc(idx, func(a, b int) int {
+		x, y := &placements[a], &placements[b]
 		switch {
 		case x.Size != y.Size:
-			return x.Size > y.Size
+			return cmp.Compare(y.Size, x.Size)
 		case x.First != y.First:
-			return x.First < y.First
+			return cmp.Compare(x.First, y.First)
 		case x.Name != y.Name:
-			return x.Name < y.Name
+			return cmp.Compare(x.Name, y.Name)
 		case x.Last != y.Last:
-			return x.Last < y.Last
+			return cmp.Compare(x.Last, y.Last)
 		}
-		return idx[a] < idx[b]
+		return cmp.Compare(a, b)
 	})
 
-	tree := newStepTree(hi - lo + 1)
-	stamp := make([]int, n) // stamp[j] == q+1: tensor j already met in query q
+	tree := newStepTree(hi-lo+1, n)
+	stamp := make([]int32, n) // stamp[j] == q+1: tensor j already met in query q
 	var cand []int32
 	for q, i := range idx {
 		p := &placements[i]
 		a, b := p.First-lo, p.Last-lo
-		cand = cand[:0]
-		tree.query(a, b, func(j int32) {
-			if stamp[j] != q+1 {
-				stamp[j] = q + 1
-				cand = append(cand, j)
+		cand = tree.query(a, b, int32(q+1), stamp, cand[:0])
+		slices.SortFunc(cand, func(x, y int32) int {
+			if c := cmp.Compare(placements[x].Offset, placements[y].Offset); c != 0 {
+				return c
 			}
-		})
-		sort.Slice(cand, func(x, y int) bool {
-			px, py := &placements[cand[x]], &placements[cand[y]]
-			if px.Offset != py.Offset {
-				return px.Offset < py.Offset
-			}
-			return cand[x] < cand[y]
+			return cmp.Compare(x, y)
 		})
 		var prevEnd int64
 		best, bestGap := int64(-1), int64(-1)
@@ -459,14 +455,31 @@ func PlanArena(tensors []Lifetime) (placements []Placement, arena int64) {
 // steps. An interval is stored in cover at each node of its canonical
 // decomposition and in part at each proper ancestor of those nodes, so that
 // the intervals meeting a query are those in cover or part of the query's
-// canonical nodes plus those in cover of their ancestors.
+// canonical nodes plus those in cover of their ancestors. The lists are
+// linked through one slice of entries, so inserting allocates only when
+// that slice grows.
 type stepTree struct {
 	size        int
-	cover, part [][]int32
+	cover, part []int32 // per node, the index of its list's first entry, -1 for none
+	entries     []treeEntry
 }
 
-func newStepTree(size int) *stepTree {
-	return &stepTree{size: size, cover: make([][]int32, 4*size), part: make([][]int32, 4*size)}
+type treeEntry struct{ id, next int32 }
+
+// newStepTree makes a tree for n intervals, each of which takes about two
+// entries a level.
+func newStepTree(size, n int) *stepTree {
+	t := &stepTree{size: size, cover: make([]int32, 4*size), part: make([]int32, 4*size),
+		entries: make([]treeEntry, 0, n*(2*bits.Len(uint(size))+2))}
+	for i := range t.cover {
+		t.cover[i], t.part[i] = -1, -1
+	}
+	return t
+}
+
+func (t *stepTree) push(head []int32, node int, id int32) {
+	t.entries = append(t.entries, treeEntry{id, head[node]})
+	head[node] = int32(len(t.entries) - 1)
 }
 
 func (t *stepTree) insert(a, b int, id int32) { t.ins(1, 0, t.size-1, a, b, id) }
@@ -476,33 +489,40 @@ func (t *stepTree) ins(node, l, r, a, b int, id int32) {
 		return
 	}
 	if a <= l && r <= b {
-		t.cover[node] = append(t.cover[node], id)
+		t.push(t.cover, node, id)
 		return
 	}
-	t.part[node] = append(t.part[node], id)
+	t.push(t.part, node, id)
 	mid := (l + r) / 2
 	t.ins(2*node, l, mid, a, b, id)
 	t.ins(2*node+1, mid+1, r, a, b, id)
 }
 
-// query calls fn for every stored interval that meets [a, b], some more
-// than once.
-func (t *stepTree) query(a, b int, fn func(int32)) { t.q(1, 0, t.size-1, a, b, fn) }
+// query appends to out, once each, the stored intervals that meet [a, b],
+// using stamp (stamp[id] == mark: already appended) to drop repeats.
+func (t *stepTree) query(a, b int, mark int32, stamp []int32, out []int32) []int32 {
+	return t.q(1, 0, t.size-1, a, b, mark, stamp, out)
+}
 
-func (t *stepTree) q(node, l, r, a, b int, fn func(int32)) {
-	if b < l || r < a {
-		return
-	}
-	for _, id := range t.cover[node] {
-		fn(id)
-	}
-	if a <= l && r <= b {
-		for _, id := range t.part[node] {
-			fn(id)
+func (t *stepTree) collect(e int32, mark int32, stamp []int32, out []int32) []int32 {
+	for ; e >= 0; e = t.entries[e].next {
+		if id := t.entries[e].id; stamp[id] != mark {
+			stamp[id] = mark
+			out = append(out, id)
 		}
-		return
+	}
+	return out
+}
+
+func (t *stepTree) q(node, l, r, a, b int, mark int32, stamp []int32, out []int32) []int32 {
+	if b < l || r < a {
+		return out
+	}
+	out = t.collect(t.cover[node], mark, stamp, out)
+	if a <= l && r <= b {
+		return t.collect(t.part[node], mark, stamp, out)
 	}
 	mid := (l + r) / 2
-	t.q(2*node, l, mid, a, b, fn)
-	t.q(2*node+1, mid+1, r, a, b, fn)
+	out = t.q(2*node, l, mid, a, b, mark, stamp, out)
+	return t.q(2*node+1, mid+1, r, a, b, mark, stamp, out)
 }
