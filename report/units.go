@@ -2,7 +2,10 @@ package report
 
 import (
 	"fmt"
+	"math"
 	"strconv"
+
+	"github.com/loadline/loadline/budget"
 )
 
 // Bytes prints a byte count in binary units (KiB = 1024 B), as device
@@ -53,4 +56,32 @@ func trim3(v float64) string {
 		return fmt.Sprintf("%.1f", v)
 	}
 	return fmt.Sprintf("%.2f", v)
+}
+
+// Figure prints one budget metric's value in its own unit: binary bytes for
+// the byte metrics (file, weights, arena, ram, flash), decimal counts for
+// params, macs and flops. Any other key prints as a plain integer.
+func Figure(metric string, v int64) string {
+	switch metric {
+	case budget.MetricFile, budget.MetricWeights, budget.MetricArena, budget.MetricRAM, budget.MetricFlash:
+		return Bytes(v)
+	case budget.MetricParams, budget.MetricMACs, budget.MetricFLOPs:
+		return Count(v)
+	}
+	return strconv.FormatInt(v, 10)
+}
+
+// signedFigure prints a difference with its sign: "+12.0 KiB", "-3.50 M",
+// "±0".
+func signedFigure(metric string, d int64) string {
+	switch {
+	case d > 0:
+		return "+" + Figure(metric, d)
+	case d < 0:
+		if d == math.MinInt64 {
+			return "-" + Figure(metric, math.MaxInt64)
+		}
+		return "-" + Figure(metric, -d)
+	}
+	return "±0"
 }
