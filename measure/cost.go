@@ -45,8 +45,8 @@ import (
 // or symbolic dims nobody bound with --dim) is not counted as zero: it is
 // listed in Costs.Unresolved with the shape that stopped it, and left out
 // of the totals, which then are lower bounds. So are operators of other
-// domains and calls of model-local functions, whose arithmetic is not
-// known. The few standard operators no convention covers (uncostedOps:
+// domains, whose arithmetic is not known. A call of a model-local function
+// costs what its body costs. The few standard operators no convention covers (uncostedOps:
 // DFT, NonMaxSuppression, …) contribute 0 FLOPs, listed there with the
 // reason; they do not make the MACs unknown.
 
@@ -181,9 +181,9 @@ var flopRules = map[string]flopRule{
 
 // uncostedOps are the operators shape inference knows that have no row in
 // flopRules, with the reason: no accepted convention counts their
-// arithmetic, so they contribute 0 MACs and 0 FLOPs. Operators of other domains and calls of
-// model-local functions, whose arithmetic is not known, are listed as
-// unresolved instead.
+// arithmetic, so they contribute 0 MACs and 0 FLOPs. Operators of other
+// domains, whose arithmetic is not known, are listed as unresolved
+// instead.
 var uncostedOps = map[string]string{
 	"DFT":                               "a Fourier transform's cost depends on the algorithm (FFT or not)",
 	"STFT":                              "a Fourier transform's cost depends on the algorithm (FFT or not)",
@@ -602,7 +602,7 @@ func (k *coster) node(n *model.Node, i int, sc scopes) *tally {
 		domain = ""
 	}
 	if k.inf.Model.FindFunction(n.Domain, n.Op) != nil {
-		return k.fail(n, i, "MACs unknown: %s calls a model-local function, whose body is not costed", n.Op)
+		return k.call(n, i)
 	}
 	key := n.Op
 	if domain != "" {
@@ -678,6 +678,23 @@ func (k *coster) graph(g *model.Graph, outer scopes) (*tally, bool) {
 		t.add(k.node(n, i, sc))
 	}
 	return t, true
+}
+
+// call costs a call of a model-local function by the function's body, as
+// inference instantiated it for this call.
+func (k *coster) call(n *model.Node, i int) *tally {
+	body := k.inf.Calls[n]
+	if body == nil || k.depth >= maxGraphDepth {
+		return k.fail(n, i, "MACs unknown: the body of function %s was not inferred for this call", n.Op)
+	}
+	k.depth++
+	defer func() { k.depth-- }()
+	t := newTally()
+	sc := scopes{body.Values}
+	for j, bn := range body.Graph.Nodes {
+		t.add(k.node(bn, j, sc))
+	}
+	return t
 }
 
 // control costs If, Loop, Scan and SequenceMap by their subgraphs.

@@ -543,3 +543,29 @@ func TestCostsHostile(t *testing.T) {
 		})
 	}
 }
+
+// TestCostsFunction checks that a call of a model-local function costs
+// its body, instantiated for each call's shapes.
+func TestCostsFunction(t *testing.T) {
+	b := newCostGraph()
+	x := b.in("x", f32c, 1, 4)
+	w1, w2 := b.w("w1", 4, 8), b.w("w2", 8, 2)
+	b.g.Nodes = append(b.g.Nodes,
+		&model.Node{Name: "dense1", Op: "Dense", Domain: "local", Inputs: []string{x, w1}, Outputs: []string{"h"}},
+		&model.Node{Name: "dense2", Op: "Dense", Domain: "local", Inputs: []string{"h", w2}, Outputs: []string{"y"}})
+	b.out("y")
+	m := b.model()
+	m.Opsets["local"] = 1
+	m.Functions = []*model.Function{{Name: "Dense", Domain: "local", Inputs: []string{"a", "w"}, Outputs: []string{"r"},
+		Nodes:  []*model.Node{matmulNode("mm", "a", "w", "t"), {Name: "act", Op: "Relu", Inputs: []string{"t"}, Outputs: []string{"r"}}},
+		Opsets: map[string]int64{"": 17}}}
+	got := costsOf(t, m, nil)
+	// derived: dense1 [1,4]×[4,8] = 8 × 4 = 32 MACs, Relu 8; dense2 [1,8]×[8,2] = 2 × 8 = 16 MACs, Relu 2;
+	// MACs 48, FLOPs 2·48 + 8 + 2 = 106
+	if got.MACs != 48 || got.FLOPs != 106 || len(got.Unresolved) != 0 {
+		t.Errorf("MACs %d, FLOPs %d, unresolved %+v; want 48, 106, none", got.MACs, got.FLOPs, got.Unresolved)
+	}
+	if got.ByOp["MatMul"] != (OpCost{Nodes: 2, MACs: 48, FLOPs: 96}) || got.Nodes[0].MACs != 32 || got.Nodes[1].MACs != 16 {
+		t.Errorf("by op %+v, nodes %+v", got.ByOp, got.Nodes)
+	}
+}

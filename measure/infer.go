@@ -41,6 +41,18 @@ type Inference struct {
 	// Subgraphs maps a control-flow node's name to what inference learned of
 	// each of its subgraphs' values, for cost counting of their bodies.
 	Subgraphs map[*model.Graph]map[string]*Value
+	// Calls maps each call of a model-local function to the function's body
+	// as instantiated for it, with the values inference found there, for
+	// cost counting.
+	Calls map[*model.Node]*CallBody
+}
+
+// CallBody is a model-local function's body instantiated for one call
+// (attribute references replaced by the caller's attributes) and what
+// inference knows of its values.
+type CallBody struct {
+	Graph  *model.Graph
+	Values map[string]*Value
 }
 
 // NamedValue is a graph input or output with what is known of it.
@@ -63,6 +75,7 @@ type engine struct {
 	opts       InferOptions
 	unresolved []Unresolved
 	subgraphs  map[*model.Graph]map[string]*Value
+	calls      map[*model.Node]*CallBody
 	steps      int
 	depth      int
 	quiet      int // >0 while evaluating speculatively (loop unrolling)
@@ -91,10 +104,10 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 	if m == nil || m.Graph == nil {
 		return nil, errors.New("model has no graph")
 	}
-	e := &engine{m: m, opts: opts, subgraphs: map[*model.Graph]map[string]*Value{}, poisoned: map[string]string{}}
+	e := &engine{m: m, opts: opts, subgraphs: map[*model.Graph]map[string]*Value{}, calls: map[*model.Node]*CallBody{}, poisoned: map[string]string{}}
 	g := m.Graph
 	sc := &scope{vals: map[string]*Value{}}
-	res := &Inference{Model: m, Subgraphs: e.subgraphs}
+	res := &Inference{Model: m, Subgraphs: e.subgraphs, Calls: e.calls}
 
 	for _, t := range g.Initializers {
 		sc.vals[t.Name] = tensorValue(t)
@@ -372,6 +385,9 @@ func (e *engine) inferFunction(f *model.Function, call *model.Node, ins []*Value
 	e.m.Opsets = saved
 	if err != nil {
 		return nil, err
+	}
+	if e.quiet == 0 && e.calls != nil {
+		e.calls[call] = &CallBody{Graph: body, Values: fs.vals}
 	}
 	outs := make([]*Value, len(call.Outputs))
 	for i, name := range f.Outputs {
