@@ -82,7 +82,9 @@ type MemoryPlan struct {
 	// become live (a subgraph body appears as "node (subgraph)").
 	LiveAtPeak []string
 	// Placements gives every counted tensor's offset in the arena, graph
-	// inputs first, then node outputs in step order.
+	// inputs first, then node outputs in step order, then one block per
+	// node with subgraphs ("node (subgraph)"). In the deployed view a
+	// placement is a buffer, named by the first tensor it holds.
 	Placements []Placement
 	// LiveBytesByStep is the sum of live bytes at each step.
 	LiveBytesByStep []int64

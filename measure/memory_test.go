@@ -481,16 +481,28 @@ func TestMemoryMobileNetV2(t *testing.T) {
 	}
 }
 
-// TestMemoryReferenceArchitectures logs the graph view of every reference
-// architecture and checks the invariants on each.
+// TestMemoryReferenceArchitectures logs the graph and deployed views of
+// every reference architecture and checks the invariants on each.
 func TestMemoryReferenceArchitectures(t *testing.T) {
 	for _, arch := range build.Architectures() {
 		f, _ := build.Architecture(arch)
 		m, err := f(build.Options{Declared: true})
 		p := planBuilt(t, m, err)
-		t.Logf("%-20s peak %11d B  arena %11d B  ratio %.4f  (%d tensors)", arch, p.PeakLiveBytes, p.ArenaBytes, p.Ratio(), len(p.Placements))
-		if p.ArenaBytes < p.PeakLiveBytes || len(p.Unresolved) != 0 {
-			t.Errorf("%s: arena %d, peak %d, unresolved %v", arch, p.ArenaBytes, p.PeakLiveBytes, p.Unresolved)
+		inf, err := Infer(m, InferOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		d := PlanDeployed(inf, DefaultDeployOptions())
+		t.Logf("%-22s graph peak %10d B arena %10d B ratio %.4f (%d tensors) | deployed peak %10d B arena %10d B ratio %.4f (%d buffers)",
+			arch, p.PeakLiveBytes, p.ArenaBytes, p.Ratio(), len(p.Placements), d.PeakLiveBytes, d.ArenaBytes, d.Ratio(), len(d.Placements))
+		for _, q := range []*MemoryPlan{p, d} {
+			if q.ArenaBytes < q.PeakLiveBytes || len(q.Unresolved) != 0 {
+				t.Errorf("%s: arena %d, peak %d, unresolved %v", arch, q.ArenaBytes, q.PeakLiveBytes, q.Unresolved)
+			}
+			checkPlacements(t, q.Placements, q.ArenaBytes)
+		}
+		if d.PeakLiveBytes > p.PeakLiveBytes {
+			t.Errorf("%s: deployed peak %d above graph peak %d", arch, d.PeakLiveBytes, p.PeakLiveBytes)
 		}
 	}
 }
