@@ -1,0 +1,44 @@
+package report
+
+import (
+	"encoding/json"
+	"io"
+
+	"github.com/loadline/loadline/budget"
+)
+
+// CheckJSON writes the loadline.check/v1 document: the schema name, then
+// the result as budget's types spell it (base, head, verdict, models with
+// their figures and checks, budget_changes, waivers, problems, findings).
+// Lists are written as [] rather than null, so a consumer can iterate
+// without a check; an added model's base figures and a removed model's
+// head figures are null.
+func CheckJSON(w io.Writer, r *budget.Result) error {
+	out := *r
+	out.Models = make([]budget.ModelResult, len(r.Models))
+	for i, m := range r.Models {
+		if m.Checks == nil {
+			m.Checks = []budget.Check{}
+		}
+		out.Models[i] = m
+	}
+	out.Verdict = verdict(r)
+	out.BudgetChanges = orEmpty(out.BudgetChanges)
+	out.Waivers = orEmpty(out.Waivers)
+	out.Problems = orEmpty(out.Problems)
+	out.Findings = orEmpty(out.Findings)
+	doc := struct {
+		Schema string `json:"schema"`
+		*budget.Result
+	}{CheckSchema, &out}
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(doc)
+}
+
+func orEmpty[T any](s []T) []T {
+	if s == nil {
+		return []T{}
+	}
+	return s
+}

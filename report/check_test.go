@@ -1,0 +1,96 @@
+package report
+
+import (
+	"bytes"
+	"flag"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/loadline/loadline/budget"
+)
+
+var update = flag.Bool("update", false, "rewrite the golden reports in testdata/report from the current output")
+
+// goldenNow is the day the golden markdown counts waiver days from.
+var goldenNow = time.Date(2026, 12, 2, 9, 0, 0, 0, time.UTC)
+
+// renderers are every check format, as the goldens name them.
+var renderers = []struct {
+	ext    string
+	render func(*bytes.Buffer, *budget.Result) error
+}{
+	{"txt", func(b *bytes.Buffer, r *budget.Result) error { return CheckText(b, r, TextOptions{}) }},
+	{"md", func(b *bytes.Buffer, r *budget.Result) error {
+		return CheckMarkdown(b, r, MarkdownOptions{Version: "0.1.0", Now: goldenNow})
+	}},
+	{"json", func(b *bytes.Buffer, r *budget.Result) error { return CheckJSON(b, r) }},
+	{"xml", func(b *bytes.Buffer, r *budget.Result) error { return CheckJUnit(b, r) }},
+}
+
+// TestGolden renders every fixture in every format and compares with
+// testdata/report/<fixture>.<format>.golden; -update rewrites them.
+func TestGolden(t *testing.T) {
+	for _, f := range fixtures() {
+		for _, rd := range renderers {
+			t.Run(f.name+"."+rd.ext, func(t *testing.T) {
+				var b bytes.Buffer
+				if err := rd.render(&b, f.r); err != nil {
+					t.Fatal(err)
+				}
+				golden(t, f.name+"."+rd.ext+".golden", b.Bytes())
+			})
+		}
+	}
+	// One coloured rendering, so the escape codes are reviewed too.
+	var b bytes.Buffer
+	if err := CheckText(&b, mixed().r, TextOptions{Color: true}); err != nil {
+		t.Fatal(err)
+	}
+	golden(t, "mixed.color.txt.golden", b.Bytes())
+}
+
+func golden(t *testing.T, name string, got []byte) {
+	t.Helper()
+	path := filepath.Join("..", "testdata", "report", name)
+	if *update {
+		if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(path, got, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return
+	}
+	want, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatalf("%v (run go test ./report -update to create it)", err)
+	}
+	if !bytes.Equal(got, want) {
+		t.Errorf("%s differs from the golden file; run go test ./report -update and review the diff\n%s", name, firstDiff(got, want))
+	}
+}
+
+// firstDiff shows the first line where got and want part.
+func firstDiff(got, want []byte) string {
+	g, w := strings.Split(string(got), "\n"), strings.Split(string(want), "\n")
+	for i := 0; i < len(g) || i < len(w); i++ {
+		var gl, wl string
+		if i < len(g) {
+			gl = g[i]
+		}
+		if i < len(w) {
+			wl = w[i]
+		}
+		if gl != wl {
+			return "line " + itoa(i+1) + ":\n got: " + gl + "\nwant: " + wl
+		}
+	}
+	return ""
+}
+
+func itoa(i int) string { return Figure("", int64(i)) }
+
+func timeParse(s string) (time.Time, error) { return time.Parse(time.RFC3339, s) }
