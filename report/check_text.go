@@ -77,7 +77,7 @@ func statusWord(s budget.Status) string {
 func CheckText(w io.Writer, r *budget.Result, opt TextOptions) error {
 	p := &printer{w: w}
 	paint := func(code, s string) string {
-		if !opt.Color || s == "" {
+		if !opt.Color || code == "" || s == "" {
 			return s
 		}
 		return code + s + ansiReset

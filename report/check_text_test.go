@@ -53,6 +53,11 @@ func TestCheckTextColorOnlyWhenAsked(t *testing.T) {
 	if !bytes.Contains(color.Bytes(), []byte("\x1b[1;31mFAIL\x1b[0m")) {
 		t.Error("no red FAIL with Color")
 	}
+	// Every reset closes a colour: no stray codes around plain cells.
+	resets := strings.Count(color.String(), ansiReset)
+	if opens := strings.Count(color.String(), "\x1b[") - resets; resets != opens {
+		t.Errorf("%d resets for %d colours", resets, opens)
+	}
 	// Taking the colour away gives the plain text back: colour never
 	// moves a column.
 	if got := stripANSI(color.String()); got != plain.String() {

@@ -1,0 +1,312 @@
+package action
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"net/http"
+	"net/url"
+	"strings"
+
+	"github.com/google/go-github/v75/github"
+
+	"github.com/loadline/loadline/budget"
+)
+
+// GitHub posts a check's report on a GitHub pull request: the job summary,
+// the annotations, one comment kept up to date, optionally a commit status.
+type GitHub struct {
+	Env GitHubEnv
+	// Token, when set, is used instead of Env.Token.
+	Token string
+	// Annotations receives the workflow commands (the step's standard
+	// output in a job); nil writes none.
+	Annotations io.Writer
+	// Comment turns the pull-request comment on.
+	Comment bool
+	// Status turns the commit status on: context "loadline" on the pull
+	// request's head commit.
+	Status bool
+	// FailOn is the verdict from which the commit status is "failure":
+	// "fail" (the default), "warn" or "never", as check's --fail-on.
+	FailOn string
+	Retry  Retry
+	// Transport carries the requests (default http.DefaultTransport);
+	// retries and timeouts are layered on top of it.
+	Transport http.RoundTripper
+	// EnvErr is an error met reading the environment; Post reports it
+	// after doing what it can without the payload.
+	EnvErr error
+}
+
+// StatusContext is the name of loadline's commit status.
+const StatusContext = "loadline"
+
+// NewGitHub returns a poster for env that comments and writes annotations
+// to stdout.
+func NewGitHub(env GitHubEnv, annotations io.Writer) *GitHub {
+	return &GitHub{Env: env, Annotations: annotations, Comment: true, FailOn: "fail"}
+}
+
+func (g *GitHub) token() string {
+	if g.Token != "" {
+		return g.Token
+	}
+	return g.Env.Token
+}
+
+// client builds the go-github client on GITHUB_API_URL, which is the API
+// root as is (https://api.github.com, or https://HOST/api/v3 on GitHub
+// Enterprise Server), so it becomes BaseURL unchanged.
+func (g *GitHub) client() (*github.Client, error) {
+	hc := &http.Client{Transport: newTransport(g.Transport, g.Retry)}
+	c := github.NewClient(hc)
+	if t := g.token(); t != "" {
+		c = c.WithAuthToken(t)
+	}
+	if g.Env.APIURL != "" {
+		u, err := url.Parse(strings.TrimRight(g.Env.APIURL, "/") + "/")
+		if err != nil {
+			return nil, fmt.Errorf("GITHUB_API_URL: %w", err)
+		}
+		c.BaseURL = u
+	}
+	c.UserAgent = "loadline"
+	return c, nil
+}
+
+// Post writes the job summary and the annotations, then, on a pull
+// request, creates or edits loadline's comment and sets the commit status.
+// A token that may not write (a pull request from a fork) gives warnings,
+// not an error: the job summary still holds the report and the verdict is
+// the check's. An error is an unreachable or failing API, after retries.
+func (g *GitHub) Post(ctx context.Context, body string, res *budget.Result) (warnings []string, err error) {
+	red := newRedactor(g.token())
+	defer func() {
+		warnings = red.strings(warnings)
+		err = red.error(err)
+	}()
+	var errs []error
+	if g.Env.StepSummary != "" {
+		if err := AppendStepSummary(g.Env.StepSummary, body); err != nil {
+			errs = append(errs, err)
+		}
+	}
+	if g.Annotations != nil {
+		if err := WriteAnnotations(g.Annotations, res); err != nil {
+			errs = append(errs, fmt.Errorf("annotations: %w", err))
+		}
+	}
+	if g.EnvErr != nil {
+		return warnings, errors.Join(append(errs, g.EnvErr)...)
+	}
+	outputs := [][2]string{}
+	if res != nil {
+		outputs = append(outputs, [2]string{"verdict", string(res.Verdict)})
+	}
+	if !g.Comment && !g.Status {
+		return warnings, errors.Join(append(errs, g.writeOutputs(outputs))...)
+	}
+	if g.Env.PullNumber == 0 {
+		warnings = append(warnings, fmt.Sprintf("the %s event is not a pull request: no comment or status posted; the report is in the job summary", eventName(g.Env)))
+		return warnings, errors.Join(append(errs, g.writeOutputs(outputs))...)
+	}
+	if g.token() == "" {
+		warnings = append(warnings, "no GitHub token (GITHUB_TOKEN): no comment or status posted; the report is in the job summary")
+		return warnings, errors.Join(append(errs, g.writeOutputs(outputs))...)
+	}
+	c, err := g.client()
+	if err != nil {
+		return warnings, errors.Join(append(errs, err)...)
+	}
+	if g.Comment {
+		url, w, err := g.upsertComment(ctx, c, body)
+		warnings = append(warnings, w...)
+		if err != nil {
+			errs = append(errs, err)
+		} else if url != "" {
+			outputs = append(outputs, [2]string{"comment-url", url})
+		}
+	}
+	if g.Status && res != nil {
+		w, err := g.setStatus(ctx, c, res)
+		warnings = append(warnings, w...)
+		if err != nil {
+			errs = append(errs, err)
+		}
+	}
+	errs = append(errs, g.writeOutputs(outputs))
+	return warnings, errors.Join(errs...)
+}
+
+func eventName(e GitHubEnv) string {
+	if e.EventName == "" {
+		return "current"
+	}
+	return e.EventName
+}
+
+func (g *GitHub) writeOutputs(kv [][2]string) error {
+	if g.Env.Output == "" || len(kv) == 0 {
+		return nil
+	}
+	return AppendOutputs(g.Env.Output, kv)
+}
+
+// upsertComment edits the comment carrying Marker, looking through every
+// page of the pull request's comments, or creates it. It returns the
+// comment's address.
+func (g *GitHub) upsertComment(ctx context.Context, c *github.Client, body string) (string, []string, error) {
+	owner, repo, pr := g.Env.Owner(), g.Env.Repo(), g.Env.PullNumber
+	text := commentBody(body, GitHubCommentLimit, "see the job summary")
+	id, err := g.findComment(ctx, c, owner, repo, pr)
+	if err != nil {
+		if w, ok := g.refused(err, "read the pull request's comments"); ok {
+			return "", []string{w}, nil
+		}
+		return "", nil, fmt.Errorf("listing comments on %s#%d: %w", g.Env.Repository, pr, err)
+	}
+	var out *github.IssueComment
+	if id != 0 {
+		out, _, err = c.Issues.EditComment(ctx, owner, repo, id, &github.IssueComment{Body: &text})
+		if err != nil {
+			if w, ok := g.refused(err, "edit its comment"); ok {
+				return "", []string{w}, nil
+			}
+			return "", nil, fmt.Errorf("editing comment %d on %s#%d: %w", id, g.Env.Repository, pr, err)
+		}
+	} else {
+		out, _, err = c.Issues.CreateComment(ctx, owner, repo, pr, &github.IssueComment{Body: &text})
+		if err != nil {
+			if w, ok := g.refused(err, "comment"); ok {
+				return "", []string{w}, nil
+			}
+			return "", nil, fmt.Errorf("commenting on %s#%d: %w", g.Env.Repository, pr, err)
+		}
+	}
+	return out.GetHTMLURL(), nil, nil
+}
+
+// findComment returns the ID of the first comment whose body starts with
+// Marker, or 0.
+func (g *GitHub) findComment(ctx context.Context, c *github.Client, owner, repo string, pr int) (int64, error) {
+	opts := &github.IssueListCommentsOptions{ListOptions: github.ListOptions{PerPage: 100}}
+	for {
+		comments, resp, err := c.Issues.ListComments(ctx, owner, repo, pr, opts)
+		if err != nil {
+			return 0, err
+		}
+		for _, cm := range comments {
+			if hasMarker(cm.GetBody()) {
+				return cm.GetID(), nil
+			}
+		}
+		if resp.NextPage == 0 {
+			return 0, nil
+		}
+		opts.Page = resp.NextPage
+	}
+}
+
+// refused tells a 403 that is a refusal (the token lacks the permission,
+// as a fork's read-only token does) from a rate limit, and words the
+// warning for it.
+func (g *GitHub) refused(err error, what string) (string, bool) {
+	var er *github.ErrorResponse
+	if !errors.As(err, &er) || er.Response == nil || er.Response.StatusCode != http.StatusForbidden || isRateLimited(er.Response) {
+		return "", false
+	}
+	who := "the job's token"
+	if g.Env.Fork() {
+		who = fmt.Sprintf("the token of a pull request from the fork %s", g.Env.HeadRepo)
+	}
+	msg := er.Message
+	if msg == "" {
+		msg = "forbidden"
+	}
+	return fmt.Sprintf("%s may not %s on %s#%d (HTTP 403: %s); the report is in the job summary and the verdict stands", who, what, g.Env.Repository, g.Env.PullNumber, msg), true
+}
+
+// setStatus sets the "loadline" commit status on the pull request's head.
+func (g *GitHub) setStatus(ctx context.Context, c *github.Client, res *budget.Result) ([]string, error) {
+	sha := g.Env.HeadSHA
+	if sha == "" {
+		sha = g.Env.SHA
+	}
+	if sha == "" {
+		return []string{"no head commit in the event payload: no commit status set"}, nil
+	}
+	st := &github.RepoStatus{
+		State:       github.Ptr(statusState(res.Verdict, g.FailOn)),
+		Context:     github.Ptr(StatusContext),
+		Description: github.Ptr(StatusDescription(res)),
+	}
+	if u := g.Env.RunURL(); u != "" {
+		st.TargetURL = github.Ptr(u)
+	}
+	if _, _, err := c.Repositories.CreateStatus(ctx, g.Env.Owner(), g.Env.Repo(), sha, st); err != nil {
+		if w, ok := g.refused(err, "set a commit status"); ok {
+			return []string{w}, nil
+		}
+		return nil, fmt.Errorf("setting the %s status on %s: %w", StatusContext, shortSHA(sha), err)
+	}
+	return nil, nil
+}
+
+// statusState maps a verdict to a commit status state under failOn.
+func statusState(v budget.Status, failOn string) string {
+	switch failOn {
+	case "never":
+		return "success"
+	case "warn":
+		if v == budget.Warn || v == budget.Fail {
+			return "failure"
+		}
+		return "success"
+	}
+	if v == budget.Fail {
+		return "failure"
+	}
+	return "success"
+}
+
+// StatusDescription is the one-line commit status text: the verdict and
+// how many models fail and warn, at most the 140 characters GitHub allows.
+func StatusDescription(res *budget.Result) string {
+	var fail, warn int
+	for _, m := range res.Models {
+		switch {
+		case m.Error != "" || m.Status == budget.Fail:
+			fail++
+		case m.Status == budget.Warn:
+			warn++
+		}
+	}
+	var s string
+	switch res.Verdict {
+	case budget.Fail:
+		s = "over budget"
+	case budget.Warn:
+		s = "within budget, with warnings"
+	default:
+		s = "within budget"
+	}
+	s = fmt.Sprintf("%s: %d models checked, %d failing, %d warning", s, len(res.Models), fail, warn)
+	return truncateRunes(s, 140)
+}
+
+func truncateRunes(s string, n int) string {
+	r := []rune(s)
+	if len(r) <= n {
+		return s
+	}
+	return string(r[:n-1]) + "…"
+}
+
+func shortSHA(s string) string {
+	if len(s) > 12 {
+		return s[:12]
+	}
+	return s
+}

@@ -1,0 +1,209 @@
+package action
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"net/http"
+	"net/url"
+	"strconv"
+	"strings"
+
+	"github.com/loadline/loadline/budget"
+)
+
+// GitLab posts a check's report as one note on a GitLab merge request,
+// through the REST API's merge-request notes endpoints, and edits that
+// note on every later run.
+type GitLab struct {
+	Env GitLabEnv
+	// Comment turns the note on; without it Post does nothing.
+	Comment bool
+	Retry   Retry
+	// Transport carries the requests (default http.DefaultTransport).
+	Transport http.RoundTripper
+	// EnvErr is an error met reading the environment.
+	EnvErr error
+}
+
+// gitlabNote is the part of a GitLab note loadline reads.
+type gitlabNote struct {
+	ID     int64  `json:"id"`
+	Body   string `json:"body"`
+	System bool   `json:"system"`
+}
+
+// GitLabError is a GitLab API answer outside 2xx.
+type GitLabError struct {
+	Method, URL string
+	StatusCode  int
+	Message     string
+	// rateLimited is set when the answer carried rate-limit headers.
+	rateLimited bool
+}
+
+func (e *GitLabError) Error() string {
+	s := fmt.Sprintf("%s %s: HTTP %d", e.Method, e.URL, e.StatusCode)
+	if e.Message != "" {
+		s += ": " + e.Message
+	}
+	return s
+}
+
+// Post creates or edits loadline's note on the merge request. A token that
+// may not write notes (a job token, or a fork's) gives a warning, not an
+// error.
+func (g *GitLab) Post(ctx context.Context, body string, res *budget.Result) (warnings []string, err error) {
+	red := newRedactor(g.Env.Token)
+	defer func() {
+		warnings = red.strings(warnings)
+		err = red.error(err)
+	}()
+	if g.EnvErr != nil {
+		return nil, g.EnvErr
+	}
+	if !g.Comment {
+		return nil, nil
+	}
+	switch {
+	case g.Env.MRIID == 0:
+		return []string{"not a merge request pipeline (no CI_MERGE_REQUEST_IID): no note posted"}, nil
+	case g.Env.APIURL == "" || g.Env.ProjectID == "":
+		return nil, errors.New("GitLab CI environment incomplete: CI_API_V4_URL and CI_PROJECT_ID are needed to post a note")
+	case g.Env.Token == "":
+		return []string{"no GitLab token (LOADLINE_GITLAB_TOKEN, GITLAB_TOKEN or CI_JOB_TOKEN): no note posted"}, nil
+	}
+	hc := &http.Client{Transport: newTransport(g.Transport, g.Retry)}
+	notes := strings.TrimRight(g.Env.APIURL, "/") + "/projects/" + url.PathEscape(g.Env.ProjectID) +
+		"/merge_requests/" + strconv.Itoa(g.Env.MRIID) + "/notes"
+	text := commentBody(body, GitLabNoteLimit, "see the job log")
+
+	id, err := g.findNote(ctx, hc, notes)
+	if err != nil {
+		if w, ok := g.refused(err, "read the merge request's notes"); ok {
+			return []string{w}, nil
+		}
+		return nil, fmt.Errorf("listing notes on merge request !%d: %w", g.Env.MRIID, err)
+	}
+	payload := map[string]string{"body": text}
+	if id != 0 {
+		err = g.do(ctx, hc, http.MethodPut, notes+"/"+strconv.FormatInt(id, 10), payload, nil)
+		if err != nil {
+			if w, ok := g.refused(err, "edit its note"); ok {
+				return []string{w}, nil
+			}
+			return nil, fmt.Errorf("editing note %d on merge request !%d: %w", id, g.Env.MRIID, err)
+		}
+		return nil, nil
+	}
+	if err := g.do(ctx, hc, http.MethodPost, notes, payload, nil); err != nil {
+		if w, ok := g.refused(err, "add a note"); ok {
+			return []string{w}, nil
+		}
+		return nil, fmt.Errorf("adding a note on merge request !%d: %w", g.Env.MRIID, err)
+	}
+	return nil, nil
+}
+
+// findNote pages through the merge request's notes, oldest first, 100 a
+// page, following X-Next-Page, and returns the first one carrying Marker.
+func (g *GitLab) findNote(ctx context.Context, hc *http.Client, notes string) (int64, error) {
+	page := "1"
+	for page != "" {
+		u := notes + "?per_page=100&page=" + url.QueryEscape(page) + "&sort=asc&order_by=created_at"
+		var list []gitlabNote
+		var next string
+		err := g.do(ctx, hc, http.MethodGet, u, nil, func(resp *http.Response) error {
+			next = strings.TrimSpace(resp.Header.Get("X-Next-Page"))
+			return json.NewDecoder(resp.Body).Decode(&list)
+		})
+		if err != nil {
+			return 0, err
+		}
+		for _, n := range list {
+			if !n.System && hasMarker(n.Body) {
+				return n.ID, nil
+			}
+		}
+		if next == page {
+			return 0, fmt.Errorf("GET %s: X-Next-Page names the same page %s", notes, page)
+		}
+		page = next
+	}
+	return 0, nil
+}
+
+// do sends one API request with a JSON body (when payload is not nil) and
+// hands a 2xx answer to read (when not nil).
+func (g *GitLab) do(ctx context.Context, hc *http.Client, method, u string, payload any, read func(*http.Response) error) error {
+	var body io.Reader
+	if payload != nil {
+		b, err := json.Marshal(payload)
+		if err != nil {
+			return err
+		}
+		body = bytes.NewReader(b)
+	}
+	req, err := http.NewRequestWithContext(ctx, method, u, body)
+	if err != nil {
+		return err
+	}
+	req.Header.Set(g.Env.TokenHeader, g.Env.Token)
+	req.Header.Set("Accept", "application/json")
+	req.Header.Set("User-Agent", "loadline")
+	if payload != nil {
+		req.Header.Set("Content-Type", "application/json")
+	}
+	resp, err := hc.Do(req)
+	if err != nil {
+		return err
+	}
+	defer resp.Body.Close()
+	if resp.StatusCode < 200 || resp.StatusCode > 299 {
+		e := &GitLabError{Method: method, URL: req.URL.Redacted(), StatusCode: resp.StatusCode, rateLimited: isRateLimited(resp)}
+		data, _ := io.ReadAll(io.LimitReader(resp.Body, 4<<10))
+		var msg struct {
+			Message any    `json:"message"`
+			Error   string `json:"error"`
+		}
+		if json.Unmarshal(data, &msg) == nil {
+			switch {
+			case msg.Error != "":
+				e.Message = msg.Error
+			case msg.Message != nil:
+				e.Message = fmt.Sprint(msg.Message)
+			}
+		}
+		return e
+	}
+	if read != nil {
+		if err := read(resp); err != nil {
+			return fmt.Errorf("%s %s: reading the answer: %w", method, req.URL.Redacted(), err)
+		}
+	}
+	return nil
+}
+
+// refused tells a 401 or 403 that is a refusal from a rate limit, and
+// words the warning for it.
+func (g *GitLab) refused(err error, what string) (string, bool) {
+	var e *GitLabError
+	if !errors.As(err, &e) || e.rateLimited || (e.StatusCode != http.StatusForbidden && e.StatusCode != http.StatusUnauthorized) {
+		return "", false
+	}
+	who := "the token (" + g.Env.TokenHeader + ")"
+	switch {
+	case g.Env.Fork:
+		who = "the token of a merge request from a fork"
+	case g.Env.TokenHeader == "JOB-TOKEN":
+		who = "the job token (CI_JOB_TOKEN; set LOADLINE_GITLAB_TOKEN to an access token with the api scope)"
+	}
+	msg := e.Message
+	if msg == "" {
+		msg = http.StatusText(e.StatusCode)
+	}
+	return fmt.Sprintf("%s may not %s on merge request !%d (HTTP %d: %s); the report is in the job log and the verdict stands", who, what, g.Env.MRIID, e.StatusCode, msg), true
+}
