@@ -293,10 +293,13 @@ func withWaiver(c *budget.Check) string {
 // one that does not is labelled.
 func checkText(c *budget.Check) string {
 	r := withWaiver(c)
-	if strings.HasPrefix(r, c.Metric+" ") {
-		return r
+	if !strings.HasPrefix(r, c.Metric+" ") {
+		r = metricLabel(c) + ": " + r
 	}
-	return metricLabel(c) + ": " + r
+	if c.Source != "" {
+		r += " — " + c.Source // where the budget file sets it
+	}
+	return r
 }
 
 // finding is a budget-file problem with its level.

@@ -79,6 +79,9 @@ func junitCheck(m *budget.ModelResult, c *budget.Check) junitCase {
 	rc := cells(m, c)
 	figures := fmt.Sprintf("%s: head %s, base %s, delta %s, limit %s, headroom %s",
 		rc.metric, rc.head, rc.base, rc.delta, rc.limit, rc.headroom)
+	if c.Source != "" {
+		figures += "\nset at " + c.Source
+	}
 	tc := junitCase{Name: metricLabel(c)}
 	switch c.Status {
 	case budget.Fail:

@@ -249,7 +249,11 @@ func renderMarkdown(r *budget.Result, opt MarkdownOptions, lim mdLimits) []byte 
 			if c.Loosened {
 				flag = "**loosened**"
 			}
-			rows = append(rows, fmt.Sprintf("| %s | %s | %s | %s |", mdCode(c.Key), mdText(orNone(c.Old)), mdText(orNone(c.New)), flag))
+			key := mdCode(c.Key)
+			if c.Path != "" {
+				key += "<br><sub>" + mdCode(c.Path) + "</sub>"
+			}
+			rows = append(rows, fmt.Sprintf("| %s | %s | %s | %s |", key, mdText(orNone(c.Old)), mdText(orNone(c.New)), flag))
 		}
 		writeCapped(&b, rows, lim.items)
 	}

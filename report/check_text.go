@@ -176,7 +176,11 @@ func CheckText(w io.Writer, r *budget.Result, opt TextOptions) error {
 			if c.Loosened {
 				flag = "LOOSENED"
 			}
-			bc.add(c.Key, orNone(c.Old)+" → "+orNone(c.New), flag).paint(2, ansiFor(budget.Warn))
+			key := c.Key
+			if c.Path != "" {
+				key += " (" + c.Path + ")"
+			}
+			bc.add(key, orNone(c.Old)+" → "+orNone(c.New), flag).paint(2, ansiFor(budget.Warn))
 		}
 		bc.write(p, paint)
 	}
