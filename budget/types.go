@@ -13,8 +13,8 @@ const (
 	MetricMACs    = "macs"    // multiply-accumulates
 	MetricFLOPs   = "flops"   // floating-point operations
 	MetricArena   = "arena"   // deployed activation arena bytes
-	MetricRAM     = "ram"     // arena + weights when the device keeps weights in RAM
-	MetricFlash   = "flash"   // bytes stored in flash
+	MetricRAM     = "ram"     // arena + weights when the device keeps weights in RAM; defined in Device.Deploy
+	MetricFlash   = "flash"   // the model file as stored in flash; defined in Device.Deploy
 )
 
 // Metrics lists every metric key in report order.
