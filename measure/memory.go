@@ -363,7 +363,7 @@ func tensorBytes(v *Value) (int64, string) {
 		if !v.Type.Shape.AllKnown() {
 			return 0, fmt.Sprintf("shape %s symbolic", v.Type.Shape)
 		}
-		return 0, fmt.Sprintf("shape %s overflows", v.Type.Shape)
+		return 0, fmt.Sprintf("shape %s has a negative dim or overflows", v.Type.Shape)
 	}
 	if n > maxTensorBytes {
 		return 0, fmt.Sprintf("shape %s implausibly large", v.Type.Shape)
@@ -396,11 +396,19 @@ func PlanArena(tensors []Lifetime) (placements []Placement, arena int64) {
 	if n == 0 {
 		return placements, 0
 	}
-	lo, hi := tensors[0].First, tensors[0].First
+	// The tree runs over the ranks of the distinct step values, so that
+	// steps far apart cost nothing.
+	stepVals := make([]int, 0, 2*n)
 	for i, t := range tensors {
 		last := max(t.Last, t.First)
 		placements[i] = Placement{Name: t.Name, Size: max(t.Size, 0), First: t.First, Last: last}
-		lo, hi = min(lo, t.First), max(hi, last)
+		stepVals = append(stepVals, t.First, last)
+	}
+	slices.Sort(stepVals)
+	stepVals = slices.Compact(stepVals)
+	rank := func(step int) int {
+		r, _ := slices.BinarySearch(stepVals, step)
+		return r
 	}
 	idx := make([]int, n)
 	for i := range idx {
@@ -421,12 +429,12 @@ func PlanArena(tensors []Lifetime) (placements []Placement, arena int64) {
 		return cmp.Compare(a, b)
 	})
 
-	tree := newStepTree(hi-lo+1, n)
+	tree := newStepTree(len(stepVals), n)
 	stamp := make([]int32, n) // stamp[j] == q+1: tensor j already met in query q
 	var cand []int32
 	for q, i := range idx {
 		p := &placements[i]
-		a, b := p.First-lo, p.Last-lo
+		a, b := rank(p.First), rank(p.Last)
 		cand = tree.query(a, b, int32(q+1), stamp, cand[:0])
 		slices.SortFunc(cand, func(x, y int32) int {
 			if c := cmp.Compare(placements[x].Offset, placements[y].Offset); c != 0 {

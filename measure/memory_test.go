@@ -8,6 +8,7 @@ import (
 	"sort"
 	"testing"
 
+	"github.com/loadline/loadline/internal/corpus"
 	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/model/build"
 )
@@ -432,8 +433,16 @@ func TestPlanArenaRandom(t *testing.T) {
 	}
 }
 
-// TestPlanArenaEdges: empty input, zero sizes, and an inverted lifetime.
+// TestPlanArenaEdges: empty input, zero sizes, an inverted lifetime, and
+// steps far apart (the planner works on the steps' ranks, so extreme step
+// numbers cost no memory).
 func TestPlanArenaEdges(t *testing.T) {
+	far := []Lifetime{{"lo", 8, -1 << 62, -1 << 62}, {"hi", 8, 1 << 62, 1 << 62}, {"all", 4, -1 << 62, 1 << 62}}
+	// Hand-worked: lo and hi (8 B) go first, both at 0, never live
+	// together; all (4 B) meets both, so it goes at 8: arena 12.
+	if ps, a := PlanArena(far); a != 12 || ps[0].Offset != 0 || ps[1].Offset != 0 || ps[2].Offset != 8 {
+		t.Errorf("far: arena %d, placements %+v; want 12, offsets 0, 0, 8", a, ps)
+	}
 	if ps, a := PlanArena(nil); len(ps) != 0 || a != 0 {
 		t.Errorf("empty: %v %d", ps, a)
 	}
@@ -624,4 +633,53 @@ func TestMemorySubgraph(t *testing.T) {
 	if d := PlanDeployed(inf, DefaultDeployOptions()); !reflect.DeepEqual(d.LiveBytesByStep, []int64{49, 32}) { // hand-worked, above
 		t.Errorf("deployed live bytes by step %v, want [49 32]", d.LiveBytesByStep)
 	}
+}
+
+// TestMemoryCorpus plans every model of ONNX's backend test suite (Debian
+// package libonnx-testdata, inputs at the dims of their test data, as the
+// shape score prepares them) in both views: no panic, arena ≥ peak, no
+// shared bytes, the deployed view with no rewrites equal to the graph view,
+// and every rewrite at most the graph view's bytes at each step.
+func TestMemoryCorpus(t *testing.T) {
+	paths := corpus.Models(t)
+	all := DefaultDeployOptions()
+	all.InPlaceDepthwise = true
+	var planned, complete, withBodies int
+	for _, path := range paths {
+		sc, err := prepareCase(t, path)
+		if err != nil {
+			continue // the shape score reports these
+		}
+		inf, err := Infer(sc.model, InferOptions{})
+		if err != nil {
+			continue
+		}
+		planned++
+		g := PlanMemory(inf)
+		if len(g.Unresolved) == 0 {
+			complete++
+		}
+		if len(inf.Subgraphs) > 0 {
+			withBodies++
+		}
+		if off := PlanDeployed(inf, DeployOptions{}); !reflect.DeepEqual(g, off) {
+			t.Errorf("%s: deployed view with no rewrites differs from the graph view", shortPath(path))
+		}
+		for _, p := range []*MemoryPlan{g, PlanDeployed(inf, DefaultDeployOptions()), PlanDeployed(inf, all)} {
+			if p.ArenaBytes < p.PeakLiveBytes {
+				t.Errorf("%s: arena %d < peak %d", shortPath(path), p.ArenaBytes, p.PeakLiveBytes)
+			}
+			checkPlacements(t, p.Placements, p.ArenaBytes)
+			if p == g {
+				continue
+			}
+			for s := range p.LiveBytesByStep {
+				if p.LiveBytesByStep[s] > g.LiveBytesByStep[s] {
+					t.Errorf("%s: step %d holds %d B deployed, above the graph view's %d", shortPath(path), s, p.LiveBytesByStep[s], g.LiveBytesByStep[s])
+					break
+				}
+			}
+		}
+	}
+	t.Logf("%d of %d corpus models planned, %d with every tensor sized, %d with subgraphs", planned, len(paths), complete, withBodies)
 }
