@@ -348,6 +348,21 @@ func TestParseHostile(t *testing.T) {
 			t.Errorf("got %v", err)
 		}
 	})
+	t.Run("deep nesting", func(t *testing.T) {
+		data := []byte("version: 1\nmodels: " + strings.Repeat("[", 500_000) + "\n")
+		_, err := Parse("loadline.yaml", data)
+		if err == nil || !strings.Contains(err.Error(), "not valid YAML") {
+			t.Errorf("got %v", err)
+		}
+	})
+	t.Run("long scalar", func(t *testing.T) {
+		data := []byte("version: 1\ndevices:\n  d: {ram: " + strings.Repeat("9", 900_000) + "}\n")
+		_, err := Parse("loadline.yaml", data)
+		want := `loadline.yaml:3:12: devices.d.ram: "99999999999999999999…": value is 900000 characters long; a quantity needs at most 64`
+		if err == nil || err.Error() != want {
+			t.Errorf("got %v, want %s", err, want)
+		}
+	})
 	t.Run("self-merge", func(t *testing.T) {
 		_, err := Parse("loadline.yaml", []byte("version: 1\ndevices: &d {<<: *d}\n"))
 		want := "loadline.yaml:2:18: devices: merges nested too deep"
@@ -355,4 +370,23 @@ func TestParseHostile(t *testing.T) {
 			t.Errorf("got %v, want %s", err, want)
 		}
 	})
+}
+
+func TestLoadMissing(t *testing.T) {
+	_, err := Load(filepath.Join(t.TempDir(), "loadline.yaml"))
+	if !errors.Is(err, os.ErrNotExist) {
+		t.Errorf("Load of a missing file: %v", err)
+	}
+}
+
+func TestErrorsPrint(t *testing.T) {
+	es := Errors{
+		{File: "loadline.yaml", Line: 3, Column: 5, Key: "devices.d", Msg: `unknown key "rma"`, Hint: `did you mean "ram"?`},
+		{File: "loadline.yaml", Msg: "empty budget file"},
+		{File: "loadline.yaml", Line: 7, Msg: "not valid YAML: x"},
+	}
+	want := "loadline.yaml:3:5: devices.d: unknown key \"rma\" (did you mean \"ram\"?)\nloadline.yaml: empty budget file\nloadline.yaml:7: not valid YAML: x"
+	if es.Error() != want {
+		t.Errorf("got\n%s\nwant\n%s", es.Error(), want)
+	}
 }
