@@ -329,15 +329,24 @@ func findings(r *budget.Result) []finding {
 }
 
 // shortNote is modelNote for a table cell, the full text being listed
-// below the table.
+// below the table (see modelLine).
 func shortNote(m *budget.ModelResult) string {
 	switch {
 	case m.Error != "":
 		return "could not be measured"
 	case m.Unbudgeted:
 		return "no budget rule matches"
+	case len(m.Checks) == 0 && len(m.Notes) > 0 && m.Change != budget.Removed:
+		return "not judged; see why below"
 	}
 	return modelNote(m)
+}
+
+// modelLine reports whether a model needs a line of its own below the
+// table, for what its checks cannot say: not measured, not budgeted, or not
+// judged for a reason its notes give.
+func modelLine(m *budget.ModelResult) bool {
+	return m.Error != "" || m.Unbudgeted || len(m.Checks) == 0 && len(m.Notes) > 0 && m.Change != budget.Removed
 }
 
 // changeNote says how the model changed, for the line that names it; empty

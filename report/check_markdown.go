@@ -193,9 +193,11 @@ func renderMarkdown(r *budget.Result, opt MarkdownOptions, lim mdLimits) []byte 
 	// simply pass, for the models in the table.
 	var notes []string
 	for _, m := range shown {
-		if m.Error != "" || m.Unbudgeted {
+		if modelLine(m) {
 			notes = append(notes, fmt.Sprintf("- %s %s: %s", mdStatus(m.Status), mdCode(m.Path), mdText(modelNote(m))))
-			continue
+			if m.Error != "" {
+				continue
+			}
 		}
 		for i := range m.Checks {
 			c := &m.Checks[i]

@@ -147,7 +147,7 @@ func CheckText(w io.Writer, r *budget.Result, opt TextOptions) error {
 			reason(budget.Fail, m.Path+": "+modelNote(m))
 			continue
 		}
-		if m.Unbudgeted {
+		if modelLine(m) {
 			reason(m.Status, m.Path+": "+modelNote(m))
 		}
 		for i := range m.Checks {
