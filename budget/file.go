@@ -153,6 +153,16 @@ func Parse(name string, data []byte) (*File, error) {
 	}
 	f := d.file(root)
 	if len(d.errs) > 0 {
+		// Devices are decoded before models whatever their order in the
+		// file: print the errors in file order, the stop notice last.
+		errs := d.errs
+		if d.tooMany {
+			errs = errs[:len(errs)-1]
+		}
+		sort.SliceStable(errs, func(i, j int) bool {
+			a, b := errs[i], errs[j]
+			return a.Line < b.Line || a.Line == b.Line && a.Column < b.Column
+		})
 		return nil, d.errs
 	}
 	return f, nil
@@ -215,6 +225,10 @@ type decoder struct {
 	errs    Errors
 	nodes   int // node visits left
 	stopped bool
+	tooMany bool // the last error says decoding stopped at maxErrors
+	// badCapacity names devices whose capacity had an error, so that a %
+	// limit on them is not reported a second time.
+	badCapacity map[string]bool
 }
 
 func (d *decoder) add(n *yaml.Node, key, msg, hint string) {
@@ -223,7 +237,7 @@ func (d *decoder) add(n *yaml.Node, key, msg, hint string) {
 	}
 	if len(d.errs) >= maxErrors {
 		d.errs = append(d.errs, &Error{File: d.name, Msg: fmt.Sprintf("more than %d errors; stopping", maxErrors)})
-		d.stopped = true
+		d.stopped, d.tooMany = true, true
 		return
 	}
 	e := &Error{File: d.name, Key: key, Msg: msg, Hint: hint}
@@ -494,18 +508,15 @@ func (d *decoder) devices(f *File, n *yaml.Node) {
 			switch fe.name {
 			case "ram", "flash":
 				q, ok := d.quantity(fe.v, fkey)
-				if !ok {
-					continue
+				if ok && (q.Kind == Percent || q.Kind == Count || q.Value <= 0) {
+					ok = false
+					d.capacityError(fe, fkey, q)
 				}
-				switch {
-				case q.Kind == Percent:
-					d.add(fe.v, fkey, fmt.Sprintf("%q: a capacity is in bytes, not a share", q.Text), "write e.g. 512KiB")
-					continue
-				case q.Kind == Count:
-					d.add(fe.v, fkey, fmt.Sprintf("%q is a count; a capacity is in bytes", q.Text), countAsBytesHint(q.Text))
-					continue
-				case q.Value <= 0:
-					d.add(fe.v, fkey, fmt.Sprintf("%q: a capacity must be more than 0", q.Text), "leave it out if the device has none to budget")
+				if !ok {
+					if d.badCapacity == nil {
+						d.badCapacity = map[string]bool{}
+					}
+					d.badCapacity[e.name+"."+fe.name] = true
 					continue
 				}
 				if fe.name == "ram" {
@@ -532,6 +543,17 @@ func (d *decoder) devices(f *File, n *yaml.Node) {
 			}
 		}
 		f.Devices[e.name] = dev
+	}
+}
+
+func (d *decoder) capacityError(fe entry, fkey string, q Quantity) {
+	switch {
+	case q.Kind == Percent:
+		d.add(fe.v, fkey, fmt.Sprintf("%q: a capacity is in bytes, not a share", q.Text), "write e.g. 512KiB")
+	case q.Kind == Count:
+		d.add(fe.v, fkey, fmt.Sprintf("%q is a count; a capacity is in bytes", q.Text), countAsBytesHint(q.Text))
+	default:
+		d.add(fe.v, fkey, fmt.Sprintf("%q: a capacity must be more than 0", q.Text), "leave it out if the device has none to budget")
 	}
 }
 
@@ -745,6 +767,9 @@ func (d *decoder) setting(e entry, key string, limit bool, dev *Device) (Setting
 		return Setting{}, false // the unknown device is reported already
 	}
 	if _, ok := dev.Capacity(e.name); !ok {
+		if d.badCapacity[dev.Name+"."+e.name] {
+			return Setting{}, false // its error is reported already
+		}
 		d.add(e.v, mkey, fmt.Sprintf("%q: device %q has no %s capacity to take a share of", q.Text, dev.Name, e.name),
 			fmt.Sprintf("add devices.%s.%s, or write the limit in bytes", dev.Name, e.name))
 		return Setting{}, false

@@ -147,6 +147,21 @@ waivers:
 waivers:
   - {path: models/a.onnx, metric: ram, until: 2027-01-31, reason: " "}
 `, []string{`loadline.yaml:13:67: waivers[0].reason: empty reason (say why the figure may exceed its budget, for the reviewer who renews it)`}},
+		{"bad capacity is reported once", `version: 1
+devices:
+  porch-cam: {ram: 320k}
+models:
+  - {path: a.onnx, device: porch-cam, limits: {ram: 90%}}
+`, []string{`loadline.yaml:3:20: devices.porch-cam.ram: "320k" is a count; a capacity is in bytes (write 320KB or 320KiB)`}},
+		{"errors in file order", `version: 1
+models:
+  - {path: a.onnx, device: porch-cam, limits: {rma: 1KiB}}
+devices:
+  porch-cam: {ram: 0}
+`, []string{
+			`loadline.yaml:3:48: models[0].limits: unknown metric "rma" (did you mean "ram"?)`,
+			`loadline.yaml:5:20: devices.porch-cam.ram: "0": a capacity must be more than 0 (leave it out if the device has none to budget)`,
+		}},
 		{"version", `version: 2
 `, []string{`loadline.yaml:1:10: version: version "2" is not one this loadline reads (write version: 1)`}},
 		{"missing version", `devices: {}
