@@ -151,7 +151,11 @@ func (g *GitLab) do(ctx context.Context, hc *http.Client, method, u string, payl
 	if err != nil {
 		return err
 	}
-	req.Header.Set(g.Env.TokenHeader, g.Env.Token)
+	header := g.Env.TokenHeader
+	if header == "" {
+		header = "PRIVATE-TOKEN"
+	}
+	req.Header.Set(header, g.Env.Token)
 	req.Header.Set("Accept", "application/json")
 	req.Header.Set("User-Agent", "loadline")
 	if payload != nil {
