@@ -81,32 +81,27 @@ func (t *tally) add(m *budget.ModelResult) {
 	}
 }
 
-// phrases says the tally in words: "2 models over budget, 1 near a limit,
-// 1 waived, 3 within budget". Removed models are left out of "within
-// budget": nothing is judged for them.
+// phrases says the tally in words, naming models once: "2 models over
+// budget", "1 near a limit", "3 within budget". Removed models are left
+// out of "within budget": nothing is judged for them.
 func (t tally) phrases() []string {
 	var out []string
-	if t.unmeasured > 0 {
-		out = append(out, plural(t.unmeasured, "model", "models")+" could not be measured")
+	add := func(n int, what string) {
+		switch {
+		case n == 0:
+		case len(out) == 0:
+			out = append(out, plural(n, "model", "models")+" "+what)
+		default:
+			out = append(out, fmt.Sprintf("%d %s", n, what))
+		}
 	}
-	if t.fail > 0 {
-		out = append(out, plural(t.fail, "model", "models")+" over budget")
-	}
-	if t.unbudgeted > 0 {
-		out = append(out, plural(t.unbudgeted, "model", "models")+" matched by no budget rule")
-	}
-	if t.warn > 0 {
-		out = append(out, plural(t.warn, "model", "models")+" near a limit")
-	}
-	if t.waived > 0 {
-		out = append(out, plural(t.waived, "model", "models")+" over budget but waived")
-	}
-	if within := t.pass - t.removed; within > 0 {
-		out = append(out, plural(within, "model", "models")+" within budget")
-	}
-	if t.removed > 0 {
-		out = append(out, plural(t.removed, "model", "models")+" removed")
-	}
+	add(t.unmeasured, "could not be measured")
+	add(t.fail, "over budget")
+	add(t.unbudgeted, "matched by no budget rule")
+	add(t.warn, "near a limit")
+	add(t.waived, "over budget but waived")
+	add(t.pass-t.removed, "within budget")
+	add(t.removed, "removed")
 	if len(out) == 0 {
 		out = append(out, "no models changed")
 	}
@@ -118,6 +113,16 @@ func plural(n int, one, many string) string {
 		return "1 " + one
 	}
 	return fmt.Sprintf("%d %s", n, many)
+}
+
+// summary is the headline's sentence: the tally of models, and the
+// budget-file problems, which can decide the verdict on their own.
+func summary(r *budget.Result) string {
+	s := strings.Join(count(r.Models).phrases(), ", ")
+	if n := len(findings(r)); n > 0 {
+		s += "; " + plural(n, "problem", "problems") + " in the budget file"
+	}
+	return s
 }
 
 // verdict is the result's verdict, or the worst model status when the
@@ -222,7 +227,10 @@ func cells(m *budget.ModelResult, c *budget.Check) row {
 		if h < 0 {
 			r.headroom = signedFigure(c.Metric, h)
 		}
-		if *c.Limit > 0 {
+		// A share of the limit says how close a figure is to it; for a
+		// growth check it would be of the base plus its allowance, which
+		// says little, and the delta already gives the growth.
+		if *c.Limit > 0 && c.Kind != "growth" {
 			r.headroom += " (" + percent(h, *c.Limit, false) + ")"
 		}
 	}

@@ -6,6 +6,7 @@ import (
 	"html"
 	"io"
 	"math"
+	"sort"
 	"strings"
 	"time"
 	"unicode/utf8"
@@ -34,6 +35,7 @@ type MarkdownOptions struct {
 // halved until the document fits MaxChars.
 const (
 	mdTableModels  = 30 // models in the table
+	mdPassModels   = 10 // of which within budget, when others need attention
 	mdDetailModels = 10 // models with a collapsible section
 	mdListItems    = 50 // rows of the budget-change, waiver and problem lists
 	mdTopLayers    = 5  // layers in each top-layers table
@@ -51,7 +53,7 @@ func CheckMarkdown(w io.Writer, r *budget.Result, opt MarkdownOptions) error {
 	if limit <= 0 {
 		limit = MarkdownLimit
 	}
-	lim := mdLimits{models: mdTableModels, details: mdDetailModels, items: mdListItems}
+	lim := mdLimits{models: mdTableModels, passes: mdPassModels, details: mdDetailModels, items: mdListItems}
 	var doc []byte
 	for {
 		doc = renderMarkdown(r, opt, lim)
@@ -67,10 +69,10 @@ func CheckMarkdown(w io.Writer, r *budget.Result, opt MarkdownOptions) error {
 	return err
 }
 
-type mdLimits struct{ models, details, items int }
+type mdLimits struct{ models, passes, details, items int }
 
 func (l mdLimits) halve() mdLimits {
-	return mdLimits{l.models / 2, l.details / 2, l.items / 2}
+	return mdLimits{l.models / 2, l.passes / 2, l.details / 2, l.items / 2}
 }
 
 // cutMarkdown is the last resort when even the shortest rendering is too
@@ -115,7 +117,6 @@ func cutMarkdown(doc []byte, foot string, limit int) []byte {
 func renderMarkdown(r *budget.Result, opt MarkdownOptions, lim mdLimits) []byte {
 	var b bytes.Buffer
 	v := verdict(r)
-	t := count(r.Models)
 
 	headline := map[budget.Status]string{
 		budget.Fail: "✖ loadline: over budget",
@@ -126,19 +127,36 @@ func renderMarkdown(r *budget.Result, opt MarkdownOptions, lim mdLimits) []byte 
 	}
 	fmt.Fprintf(&b, "## %s\n\n", headline)
 	fmt.Fprintf(&b, "%s. Head %s against base %s.\n",
-		capitalise(strings.Join(t.phrases(), ", ")), mdCode(revisionText(r.Head)), mdCode(revisionText(r.Base)))
+		capitalise(summary(r)), mdCode(revisionText(r.Head)), mdCode(revisionText(r.Base)))
 
 	// The table: models that changed or need attention, worst first.
 	var shown, removed []*budget.ModelResult
 	var hidden tally
-	for _, m := range ordered(r.Models) {
+	passes := 0 // models within budget in the table
+	models := ordered(r.Models)
+	// Within budget, the tightest first: when only some fit, those are
+	// the ones a reviewer wants to see.
+	sort.SliceStable(models, func(i, j int) bool {
+		ri, rj := rank(models[i].Status), rank(models[j].Status)
+		if ri != rj || ri != rank(budget.Pass) {
+			return ri < rj
+		}
+		return tightness(models[i]) < tightness(models[j])
+	})
+	for _, m := range models {
+		pass := m.Status == budget.Pass || m.Status == ""
 		switch {
-		case m.Change == budget.Unchanged && m.Status == budget.Pass:
+		case m.Change == budget.Unchanged && pass:
 			continue // counted in the headline, not news for this change
 		case m.Change == budget.Removed && len(m.Checks) == 0 && m.Error == "":
 			removed = append(removed, m)
-		case len(shown) < lim.models:
+		case len(shown) < lim.models && (!pass || passes < lim.passes || passes == len(shown)):
+			// Models within budget take few places when others need the
+			// reader's attention, all there are when none does.
 			shown = append(shown, m)
+			if pass {
+				passes++
+			}
 		default:
 			hidden.add(m)
 		}
@@ -174,7 +192,10 @@ func renderMarkdown(r *budget.Result, opt MarkdownOptions, lim mdLimits) []byte 
 			}
 		}
 	}
-	if hidden.total > 0 {
+	switch {
+	case hidden.total > 0 && hidden.total == hidden.pass:
+		fmt.Fprintf(&b, "\n… and %s, each with more headroom than those listed.\n", strings.Join(hidden.more(), ", "))
+	case hidden.total > 0:
 		fmt.Fprintf(&b, "\n… and %s, not listed here.\n", strings.Join(hidden.more(), ", "))
 	}
 	if len(removed) > 0 {
@@ -305,6 +326,33 @@ func (t tally) more() []string {
 	return out
 }
 
+// tightness is the smallest share of an allowance a model has left, over
+// its checks with a known figure: headroom over the limit for a limit
+// check, over the allowed growth for a growth check (whose headroom is
+// always a small share of its limit). +Inf when no check has a limit.
+func tightness(m *budget.ModelResult) float64 {
+	t := math.Inf(1)
+	for i := range m.Checks {
+		c := &m.Checks[i]
+		if c.Limit == nil {
+			continue
+		}
+		if m.Head != nil {
+			if _, unknown := m.Head.Unknown[c.Metric]; unknown {
+				continue
+			}
+		}
+		allowance := *c.Limit
+		if c.Kind == "growth" && c.Base != nil {
+			allowance -= *c.Base
+		}
+		if allowance > 0 {
+			t = math.Min(t, float64(*c.Limit-c.Value)/float64(allowance))
+		}
+	}
+	return t
+}
+
 // writeCapped writes lines, at most limit of them, then a count of the rest.
 func writeCapped(b *bytes.Buffer, lines []string, limit int) {
 	for i, l := range lines {
@@ -326,7 +374,7 @@ func footer(opt MarkdownOptions) string {
 		"MACs are the multiply-accumulates of convolution, matrix-product and recurrent layers. " +
 		"FLOPs are 2 × MACs plus one per output element of elementwise, activation, pooling, normalisation and reduction layers. " +
 		"The arena is the activation memory an embedded runtime allocates, planned greedy-by-size over tensor lifetimes after the deployment rewrites (fused activations, folded batch norm, aliased reshapes). " +
-		"Headroom is the limit minus the head figure, with its share of the limit; a growth check's limit is the largest head figure its allowed growth permits.</sub>\n"
+		"Headroom is the limit minus the head figure, with its share of the limit for an absolute limit; a growth check's limit is the largest head figure its allowed growth permits.</sub>\n"
 }
 
 func daysLeft(now, until time.Time) string {

@@ -83,8 +83,7 @@ func CheckText(w io.Writer, r *budget.Result, opt TextOptions) error {
 		return code + s + ansiReset
 	}
 	v := verdict(r)
-	t := count(r.Models)
-	p.printf("loadline: %s — %s\n", paint(ansiFor(v), statusWord(v)), strings.Join(t.phrases(), ", "))
+	p.printf("loadline: %s — %s\n", paint(ansiFor(v), statusWord(v)), summary(r))
 	p.printf("base %s → head %s\n", revisionText(r.Base), revisionText(r.Head))
 
 	models := ordered(r.Models)

@@ -6,6 +6,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"sort"
 	"strings"
 	"text/tabwriter"
 
@@ -51,6 +52,12 @@ func MeasureText(w io.Writer, entries []*measure.Metrics) error {
 			atLeast = "≥ "
 		}
 		fmt.Fprintf(tw, "  MACs\t%s%s\t(FLOPs %s%s = 2×MACs + elementwise)\n", atLeast, Count(m.MACs), atLeast, Count(m.FLOPs))
+		g, d := m.Memory.Graph, m.Memory.Deployed
+		fmt.Fprintf(tw, "  activations, graph\t%s%s\tpeak live %s%s, arena/peak %.2f\n", atLeast, Bytes(g.ArenaBytes), atLeast, Bytes(g.PeakLiveBytes), m.MemoryDetail.ArenaRatio)
+		fmt.Fprintf(tw, "  activations, deployed\t%s%s\tpeak live %s%s, arena/peak %.2f\n", atLeast, Bytes(d.ArenaBytes), atLeast, Bytes(d.PeakLiveBytes), m.MemoryDetail.DeployedRatio)
+		if m.Sparsity >= 0 {
+			fmt.Fprintf(tw, "  weight sparsity\t%.1f %%\t(exact zeros)\n", 100*m.Sparsity)
+		}
 		tw.Flush()
 		for _, io := range m.Inputs {
 			fmt.Fprintf(w, "  input   %s %s%s\n", io.Name, io.DType, shapeText(io.Shape))
@@ -68,8 +75,41 @@ func MeasureText(w io.Writer, entries []*measure.Metrics) error {
 				fmt.Fprintf(w, "    %s (%s): %s\n", u.Node, u.Op, u.Reason)
 			}
 		}
+		if len(m.Layers) > 0 {
+			layersText(w, m)
+		}
 	}
 	return nil
+}
+
+// layersText writes the per-node table, the top contributors to MACs and to
+// live memory, and what is live at the graph-view peak.
+func layersText(w io.Writer, m *measure.Metrics) {
+	fmt.Fprintln(w, "\n  layers (schedule = file order; live = graph-view bytes live at the step; offset = graph-view arena)")
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintln(tw, "  step\tnode\top\toutput\tMACs\tbytes\tlive\toffset\t")
+	for _, l := range m.Layers {
+		off := "-"
+		if l.Offset >= 0 {
+			off = fmt.Sprint(l.Offset)
+		}
+		fmt.Fprintf(tw, "  %d\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t\n", l.Step, l.Node, l.Op, l.Shape, Count(l.MACs), Bytes(l.Bytes), Bytes(l.LiveBytes), off)
+	}
+	tw.Flush()
+	top := func(title string, key func(measure.Layer) int64, unit func(int64) string) {
+		ls := append([]measure.Layer{}, m.Layers...)
+		sort.SliceStable(ls, func(i, j int) bool { return key(ls[i]) > key(ls[j]) })
+		fmt.Fprintf(w, "\n  top %s\n", title)
+		for _, l := range ls[:min(5, len(ls))] {
+			if key(l) == 0 {
+				break
+			}
+			fmt.Fprintf(w, "    %-10s %s (%s, step %d)\n", unit(key(l)), l.Node, l.Op, l.Step)
+		}
+	}
+	top("MACs", func(l measure.Layer) int64 { return l.MACs }, Count)
+	top("live memory (graph view)", func(l measure.Layer) int64 { return l.LiveBytes }, Bytes)
+	fmt.Fprintf(w, "\n  graph-view peak %s at step %d; live there: %s\n", Bytes(m.Memory.Graph.PeakLiveBytes), m.MemoryDetail.PeakStep, strings.Join(m.MemoryDetail.LiveAtPeak, ", "))
 }
 
 func opsetText(o map[string]int64) string {
