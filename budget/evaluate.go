@@ -243,25 +243,31 @@ func (e *evaluation) model(in Input) ModelResult {
 		p = cleanPath(in.OldPath)
 	}
 	b := f.merge(f.Match(p))
+	deviceConflict := false
+	for _, r := range b.rules {
+		deviceConflict = deviceConflict || r.Device != b.rules[0].Device
+	}
 	globs := make([]string, len(b.rules))
 	for i, r := range b.rules {
 		globs[i] = r.Path
 	}
 	mr.Rule = strings.Join(globs, ", ")
-	if b.dev != nil {
+	switch {
+	case deviceConflict:
+		why := "the rules matching this model disagree on its device"
+		mr.Base, mr.Head = noDevice(in.Base, why), noDevice(in.Head, why)
+	case b.dev != nil:
 		mr.Device = b.dev.Name
 		mr.Base, mr.Head = b.dev.Deploy(in.Base), b.dev.Deploy(in.Head)
-	} else {
-		mr.Base, mr.Head = noDevice(in.Base, "no rule names a device for this model"), noDevice(in.Head, "no rule names a device for this model")
+	default:
+		why := "no rule names a device for this model"
+		mr.Base, mr.Head = noDevice(in.Base, why), noDevice(in.Head, why)
 	}
-	switch {
-	case mr.Change == Removed:
+	if mr.Change == Removed {
 		mr.Notes = append(mr.Notes, "removed: nothing to judge")
 		return mr
-	case in.Error != "":
-		mr.Error, mr.Status = in.Error, Fail
-		return mr
-	case len(b.rules) == 0:
+	}
+	if len(b.rules) == 0 {
 		mr.Unbudgeted = true
 		mr.Status = Warn
 		if e.strict {
@@ -269,6 +275,12 @@ func (e *evaluation) model(in Input) ModelResult {
 		}
 		e.res.addFinding(Finding{Level: mr.Status, Path: p,
 			Message: fmt.Sprintf("%s is not budgeted: no models entry in %s matches it", p, f.Name)})
+	}
+	switch {
+	case in.Error != "":
+		mr.Error, mr.Status = in.Error, Fail
+		return mr
+	case mr.Unbudgeted:
 		return mr
 	case mr.Head == nil:
 		mr.Error, mr.Status = "no figures for the head revision", Fail
@@ -280,12 +292,10 @@ func (e *evaluation) model(in Input) ModelResult {
 			e.res.addFinding(Finding{Level: Fail, Path: p, Message: p + ": " + c})
 		}
 		mr.Status = Fail
-		for _, r := range b.rules[1:] {
-			if r.Device != b.rules[0].Device {
-				// Device names the first rule's, but no limit is judged
-				// while the rules disagree on where the model runs.
-				return mr
-			}
+		if deviceConflict {
+			// No limit is judged while the rules disagree on where the
+			// model runs: every ram and flash figure depends on it.
+			return mr
 		}
 	}
 	for _, metric := range Metrics {

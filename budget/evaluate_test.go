@@ -161,13 +161,14 @@ func TestEvaluateModels(t *testing.T) {
 		{Path: "models/porch/gone.onnx", Change: Removed, Base: fig(999999, 0, mib, 99e6)},
 		{Path: "models/porch/broken.onnx", Change: Modified, Base: small, Error: "models/porch/broken.onnx: truncated at byte 12"},
 		{Path: "models/attic/owl.onnx", Change: Added, Head: small},
+		{Path: "models/attic/bat.onnx", Change: Added, Error: "models/attic/bat.onnx: not an ONNX file"},
 		{Path: "models/kitchen/stop.onnx", OldPath: "models/kitchen/halt.onnx", Change: Renamed, Base: small, Head: small},
 	}
 	res := f.Evaluate(in, EvalOptions{Today: today})
 	if len(res.Models) != len(in) {
 		t.Fatalf("%d results for %d models", len(res.Models), len(in))
 	}
-	want := []Status{Pass, Pass, Fail, Warn, Pass}
+	want := []Status{Pass, Pass, Fail, Warn, Fail, Pass}
 	for i, mr := range res.Models {
 		if mr.Status != want[i] {
 			t.Errorf("%s: status %s, want %s (%+v)", mr.Path, mr.Status, want[i], mr)
@@ -184,8 +185,11 @@ func TestEvaluateModels(t *testing.T) {
 	if !owl.Unbudgeted || owl.Device != "" || owl.Head.Unknown[MetricRAM] == "" {
 		t.Errorf("unbudgeted = %+v", owl)
 	}
-	if res.Models[4].Device != "kitchen-timer" || res.Models[4].OldPath != "models/kitchen/halt.onnx" {
-		t.Errorf("renamed = %+v", res.Models[4])
+	if bat := res.Models[4]; !bat.Unbudgeted || bat.Error == "" {
+		t.Errorf("unmeasurable and unbudgeted = %+v", bat)
+	}
+	if res.Models[5].Device != "kitchen-timer" || res.Models[5].OldPath != "models/kitchen/halt.onnx" {
+		t.Errorf("renamed = %+v", res.Models[5])
 	}
 	if bird := res.Models[0]; bird.Device != "porch-cam" || bird.Rule != "models/porch/**/*.onnx" || bird.Head.RAM != 1024 || bird.Head.Flash != 1024 {
 		t.Errorf("bird = %+v", bird)
@@ -194,6 +198,7 @@ func TestEvaluateModels(t *testing.T) {
 	wantProblems := []string{
 		"waiver for models/porch/old.onnx ram expired on 2026-01-31 (loadline.yaml:21:5)",
 		"models/attic/owl.onnx is not budgeted: no models entry in loadline.yaml matches it",
+		"models/attic/bat.onnx is not budgeted: no models entry in loadline.yaml matches it",
 	}
 	if strings.Join(res.Problems, "\n") != strings.Join(wantProblems, "\n") {
 		t.Errorf("problems:\n%s\nwant\n%s", strings.Join(res.Problems, "\n"), strings.Join(wantProblems, "\n"))
@@ -281,6 +286,9 @@ models:
 	}
 	if mr.Status != Fail || strings.Join(mr.Notes, "\n") != strings.Join(wantNotes, "\n") {
 		t.Errorf("notes:\n%s\nwant\n%s", strings.Join(mr.Notes, "\n"), strings.Join(wantNotes, "\n"))
+	}
+	if mr.Device != "" || len(mr.Checks) != 0 || mr.Head.Unknown[MetricRAM] != "the rules matching this model disagree on its device" {
+		t.Errorf("with no agreed device nothing is judged: %+v", mr)
 	}
 	if _, err := g.Dims("models/k/a.onnx"); err == nil || !strings.Contains(err.Error(), "rules disagree on dim batch") {
 		t.Errorf("Dims: %v", err)
