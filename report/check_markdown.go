@@ -542,10 +542,8 @@ func mdText(s string) string {
 		case '\\', '`', '*', '_', '[', ']', '|', '#', '~':
 			b.WriteByte('\\')
 			b.WriteRune(r)
-		case '<':
+		case '<': // '>' alone opens nothing mid-line, and every line starts with our own text
 			b.WriteString("&lt;")
-		case '>':
-			b.WriteString("&gt;")
 		case '&':
 			b.WriteString("&amp;")
 		default:

@@ -148,7 +148,7 @@ func TestMarkdownEscapes(t *testing.T) {
 			t.Errorf("mdCode(%q) = %q, want %q", tc.in, got, tc.want)
 		}
 	}
-	if got, want := mdText(`<img src=x> *bold* [link](u) a|b`), `&lt;img src=x&gt; \*bold\* \[link\](u) a\|b`; got != want {
+	if got, want := mdText(`<img src=x> *bold* [link](u) a|b`), `&lt;img src=x> \*bold\* \[link\](u) a\|b`; got != want {
 		t.Errorf("mdText = %q, want %q", got, want)
 	}
 
