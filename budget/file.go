@@ -469,13 +469,23 @@ func (d *decoder) file(root *yaml.Node) *File {
 	}
 	if e, ok := byName["waivers"]; ok {
 		items, _ := d.sequence(e.v, "waivers")
+		first := map[[2]string]Waiver{}
 		for i, item := range items {
 			if d.stopped {
 				break
 			}
-			if w, ok := d.waiver(i, item); ok {
-				f.Waivers = append(f.Waivers, w)
+			w, ok := d.waiver(i, item)
+			if !ok {
+				continue
 			}
+			k := [2]string{w.Path, w.Metric}
+			if prev, dup := first[k]; dup {
+				d.add(&yaml.Node{Line: w.Line, Column: w.Column}, fmt.Sprintf("waivers[%d]", i), fmt.Sprintf("a second waiver for %s %s (first at %d:%d)", w.Path, w.Metric, prev.Line, prev.Column),
+					"keep one, with the date and reason in force")
+				continue
+			}
+			first[k] = w
+			f.Waivers = append(f.Waivers, w)
 		}
 	}
 	return f

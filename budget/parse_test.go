@@ -162,6 +162,12 @@ devices:
 			`loadline.yaml:3:48: models[0].limits: unknown metric "rma" (did you mean "ram"?)`,
 			`loadline.yaml:5:20: devices.porch-cam.ram: "0": a capacity must be more than 0 (leave it out if the device has none to budget)`,
 		}},
+		{"duplicate waiver", head + `  - path: models/a.onnx
+    device: porch-cam
+waivers:
+  - {path: models/a.onnx, metric: ram, until: 2027-01-31, reason: ring buffer}
+  - {path: models/a.onnx, metric: ram, until: 2028-01-31, reason: later}
+`, []string{`loadline.yaml:14:6: waivers[1]: a second waiver for models/a.onnx ram (first at 13:6) (keep one, with the date and reason in force)`}},
 		{"version", `version: 2
 `, []string{`loadline.yaml:1:10: version: version "2" is not one this loadline reads (write version: 1)`}},
 		{"missing version", `devices: {}
