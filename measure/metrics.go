@@ -29,8 +29,13 @@ type Metrics struct {
 	// Nodes is the number of nodes of the main graph.
 	Nodes int `json:"nodes"`
 
-	// Memory is activation memory, graph and deployed views (memory.go).
+	// Memory is activation memory, graph and deployed views (memory.go,
+	// deployed.go).
 	Memory MemoryFigures `json:"memory"`
+	// MemoryDetail says where the graph-view peak is.
+	MemoryDetail MemoryDetail `json:"memory_detail"`
+	// Layers is the per-node view, filled when Options.Layers is set.
+	Layers []Layer `json:"layers,omitempty"`
 }
 
 // IOInfo is a graph input or output: name, dtype, and shape with symbolic
@@ -45,6 +50,11 @@ type IOInfo struct {
 type Options struct {
 	// Dims binds symbolic dims by name.
 	Dims map[string]int64
+	// Deploy chooses the deployed view's rewrites; nil is
+	// DefaultDeployOptions.
+	Deploy *DeployOptions
+	// Layers fills Metrics.Layers, the per-node view.
+	Layers bool
 }
 
 // Measure infers shapes and computes the figures of a decoded model.
@@ -78,9 +88,27 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	out.Unresolved = appendUnresolved(out.Unresolved, costs.Unresolved)
 	plan := PlanMemory(inf)
 	out.Memory.Graph = MemoryView{PeakLiveBytes: plan.PeakLiveBytes, ArenaBytes: plan.ArenaBytes}
-	dep := PlanDeployed(inf, DefaultDeployOptions())
+	deploy := DefaultDeployOptions()
+	if opts.Deploy != nil {
+		deploy = *opts.Deploy
+	}
+	dep := PlanDeployed(inf, deploy)
 	out.Memory.Deployed = MemoryView{PeakLiveBytes: dep.PeakLiveBytes, ArenaBytes: dep.ArenaBytes}
-	out.Unresolved = append(out.Unresolved, plan.Unresolved...)
+	out.Unresolved = appendUnresolved(out.Unresolved, plan.Unresolved)
+	out.Unresolved = appendUnresolved(out.Unresolved, dep.Unresolved)
+	out.MemoryDetail = MemoryDetail{
+		PeakStep:        plan.PeakStep,
+		LiveAtPeak:      plan.LiveAtPeak,
+		ArenaRatio:      plan.Ratio(),
+		DeployedRatio:   dep.Ratio(),
+	}
+	if out.MemoryDetail.LiveAtPeak == nil {
+		out.MemoryDetail.LiveAtPeak = []string{}
+	}
+	if opts.Layers {
+		out.Layers = layersOf(inf, costs, plan)
+		out.MemoryDetail.LiveBytesByStep = plan.LiveBytesByStep
+	}
 	for _, in := range inf.Inputs {
 		out.Inputs = append(out.Inputs, ioInfo(in))
 	}

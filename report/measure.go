@@ -66,7 +66,10 @@ func MeasureText(w io.Writer, entries []*measure.Metrics) error {
 			fmt.Fprintf(w, "  output  %s %s%s\n", io.Name, io.DType, shapeText(io.Shape))
 		}
 		if n := len(m.Unresolved); n > 0 {
-			fmt.Fprintf(w, "  unresolved: %d node(s); figures downstream of them are incomplete\n", n)
+			if syms := inputSymbols(m); len(syms) > 0 {
+				fmt.Fprintf(w, "  note: input dims %s are symbolic; bind them (--dim %s=1) to count MACs and memory\n", strings.Join(syms, ", "), syms[0])
+			}
+			fmt.Fprintf(w, "  unresolved: %d node(s); figures marked ≥ leave them out\n", n)
 			for j, u := range m.Unresolved {
 				if j == 10 {
 					fmt.Fprintf(w, "    … and %d more (see --json)\n", n-10)
@@ -86,7 +89,7 @@ func MeasureText(w io.Writer, entries []*measure.Metrics) error {
 // live memory, and what is live at the graph-view peak.
 func layersText(w io.Writer, m *measure.Metrics) {
 	fmt.Fprintln(w, "\n  layers (schedule = file order; live = graph-view bytes live at the step; offset = graph-view arena)")
-	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
 	fmt.Fprintln(tw, "  step\tnode\top\toutput\tMACs\tbytes\tlive\toffset\t")
 	for _, l := range m.Layers {
 		off := "-"
@@ -142,4 +145,19 @@ func shapeText(s []any) string {
 		parts[i] = fmt.Sprint(d)
 	}
 	return "[" + strings.Join(parts, ",") + "]"
+}
+
+// inputSymbols lists the symbolic dims of the graph inputs, in order.
+func inputSymbols(m *measure.Metrics) []string {
+	var out []string
+	seen := map[string]bool{}
+	for _, in := range m.Inputs {
+		for _, d := range in.Shape {
+			if s, ok := d.(string); ok && !seen[s] {
+				seen[s] = true
+				out = append(out, s)
+			}
+		}
+	}
+	return out
 }

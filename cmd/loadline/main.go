@@ -101,8 +101,9 @@ func newRoot(stdout, stderr io.Writer) *cobra.Command {
 }
 
 func newMeasureCmd(stdout io.Writer) *cobra.Command {
-	var asJSON bool
+	var asJSON, layers bool
 	var dims []string
+	var deploy deployFlags
 	cmd := &cobra.Command{
 		Use:   "measure [--json] [--dim NAME=VALUE]... FILE...",
 		Short: "Print the figures of model files (no git, no budget)",
@@ -115,7 +116,7 @@ func newMeasureCmd(stdout io.Writer) *cobra.Command {
 			if err != nil {
 				return &exitError{exitUsage, err}
 			}
-			entries := check.MeasureFiles(args, measure.Options{Dims: bound})
+			entries := check.MeasureFiles(args, measure.Options{Dims: bound, Layers: layers, Deploy: deploy.options()})
 			if asJSON {
 				err = report.MeasureJSON(stdout, entries)
 			} else {
@@ -138,7 +139,33 @@ func newMeasureCmd(stdout io.Writer) *cobra.Command {
 	}
 	cmd.Flags().BoolVar(&asJSON, "json", false, "print the "+report.MeasureSchema+" JSON document")
 	cmd.Flags().StringArrayVar(&dims, "dim", nil, "bind a symbolic dimension, NAME=VALUE (repeatable)")
+	cmd.Flags().BoolVar(&layers, "layers", false, "add the per-node table, the top contributors to MACs and memory, and the peak's live tensors")
+	deploy.register(cmd)
 	return cmd
+}
+
+// deployFlags switch the deployed view's rewrites.
+type deployFlags struct {
+	noFoldBN, noFuse, noAlias, noFoldQDQ, inPlaceDepthwise bool
+}
+
+func (d *deployFlags) register(cmd *cobra.Command) {
+	f := cmd.Flags()
+	f.BoolVar(&d.noFoldBN, "no-fold-bn", false, "deployed view: keep BatchNormalization as its own node")
+	f.BoolVar(&d.noFuse, "no-fuse-activations", false, "deployed view: keep activations as their own nodes")
+	f.BoolVar(&d.noAlias, "no-alias-views", false, "deployed view: give Reshape/Flatten/Squeeze/Unsqueeze/Identity outputs their own buffers")
+	f.BoolVar(&d.noFoldQDQ, "no-fold-qdq", false, "deployed view: keep QuantizeLinear/DequantizeLinear pairs (activations at float size)")
+	f.BoolVar(&d.inPlaceDepthwise, "inplace-depthwise", false, "deployed view: depthwise convolutions overwrite their input")
+}
+
+func (d *deployFlags) options() *measure.DeployOptions {
+	o := measure.DefaultDeployOptions()
+	o.FoldBN = !d.noFoldBN
+	o.FuseActivations = !d.noFuse
+	o.AliasViews = !d.noAlias
+	o.FoldQDQ = !d.noFoldQDQ
+	o.InPlaceDepthwise = d.inPlaceDepthwise
+	return &o
 }
 
 // parseDims reads --dim NAME=VALUE flags.
