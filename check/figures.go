@@ -1,0 +1,72 @@
+package check
+
+import (
+	"fmt"
+	"sort"
+
+	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/measure"
+)
+
+// Figures converts measured figures into what the budget judges. When
+// nodes stayed unresolved, the figures that depend on every node's shape
+// (MACs, FLOPs, activation memory and with it ram) are marked unknown, with
+// the first unresolved node as the reason: they are reported, never judged
+// as if the missing part were zero. file, params and weights never depend
+// on inference.
+func Figures(m *measure.Metrics) *budget.Figures {
+	if m == nil {
+		return nil
+	}
+	f := &budget.Figures{
+		FileBytes:  m.FileBytes,
+		Params:     m.Params,
+		ParamBytes: m.ParamBytes,
+		MACs:       m.MACs,
+		FLOPs:      m.FLOPs,
+		Memory: budget.MemoryFigures{
+			Graph:    budget.MemoryView{PeakLiveBytes: m.Memory.Graph.PeakLiveBytes, ArenaBytes: m.Memory.Graph.ArenaBytes},
+			Deployed: budget.MemoryView{PeakLiveBytes: m.Memory.Deployed.PeakLiveBytes, ArenaBytes: m.Memory.Deployed.ArenaBytes},
+		},
+	}
+	if m.Error != "" {
+		f.Unknown = map[string]string{}
+		for _, k := range budget.Metrics {
+			f.Unknown[k] = m.Error
+		}
+		return f
+	}
+	if n := len(m.Unresolved); n > 0 {
+		u := m.Unresolved[0]
+		why := fmt.Sprintf("%d node(s) unresolved, first %s (%s): %s", n, u.Node, u.Op, u.Reason)
+		f.Unknown = map[string]string{}
+		for _, k := range []string{budget.MetricMACs, budget.MetricFLOPs, budget.MetricArena, budget.MetricRAM} {
+			f.Unknown[k] = why
+		}
+	}
+	return f
+}
+
+// DetailOf gathers the per-layer data a report's detail section shows; nil
+// when the measurement has none.
+func DetailOf(m *measure.Metrics) *budget.Detail {
+	if m == nil || m.Error != "" || len(m.Layers) == 0 {
+		return nil
+	}
+	d := &budget.Detail{LiveBytes: m.MemoryDetail.LiveBytesByStep, PeakStep: m.MemoryDetail.PeakStep}
+	byMACs := append([]measure.Layer{}, m.Layers...)
+	sort.SliceStable(byMACs, func(i, j int) bool { return byMACs[i].MACs > byMACs[j].MACs })
+	for _, l := range byMACs[:min(5, len(byMACs))] {
+		if l.MACs > 0 {
+			d.TopMACs = append(d.TopMACs, budget.Layer{Node: l.Node, Op: l.Op, Value: l.MACs})
+		}
+	}
+	byMem := append([]measure.Layer{}, m.Layers...)
+	sort.SliceStable(byMem, func(i, j int) bool { return byMem[i].LiveBytes > byMem[j].LiveBytes })
+	for _, l := range byMem[:min(5, len(byMem))] {
+		if l.LiveBytes > 0 {
+			d.TopMemory = append(d.TopMemory, budget.Layer{Node: l.Node, Op: l.Op, Value: l.LiveBytes})
+		}
+	}
+	return d
+}

@@ -1,0 +1,392 @@
+package check
+
+import (
+	"bufio"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"path"
+	"strings"
+	"time"
+
+	"github.com/go-git/go-git/v5/plumbing"
+
+	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/measure"
+)
+
+// DefaultBudgetFile is the budget file's path from the repository root.
+const DefaultBudgetFile = "loadline.yaml"
+
+// Options are the choices of `loadline check`.
+type Options struct {
+	Dir        string // a folder inside the repository; "" is the current one
+	Base, Head string // revisions; "" picks the defaults (see ResolveRange)
+	Staged     bool   // compare the index with HEAD (pre-commit)
+	// PrePush, when set, is the pre-push hook's standard input: one line
+	// per pushed ref, "<local ref> <local sha> <remote ref> <remote sha>".
+	PrePush    io.Reader
+	BudgetFile string // repository path of the budget file; "" is loadline.yaml
+	// TrustHeadBudget judges a change by its own budget file instead of
+	// the base's: the explicit way to let a change loosen its own gate.
+	TrustHeadBudget bool
+	Strict          bool // an unbudgeted model fails instead of warning
+	NoCache         bool
+	Getenv          func(string) string // the environment; nil is os.Getenv
+	Today           time.Time           // for waiver expiry; zero is now
+	Progress        io.Writer           // progress lines; nil is quiet
+}
+
+// BudgetFileError is a budget file that cannot be used (exit 2).
+type BudgetFileError struct{ Err error }
+
+func (e *BudgetFileError) Error() string { return e.Err.Error() }
+func (e *BudgetFileError) Unwrap() error { return e.Err }
+
+var modelExts = []string{".onnx", ".tflite"}
+
+// IsModelPath reports whether a path has a model file extension.
+func IsModelPath(p string) bool {
+	ext := strings.ToLower(path.Ext(p))
+	for _, e := range modelExts {
+		if ext == e {
+			return true
+		}
+	}
+	return false
+}
+
+// Range is a resolved base and head.
+type Range struct {
+	Base, Head *Snapshot
+	// BaseRef and HeadRef say how they were chosen, for reports.
+	BaseRef, HeadRef string
+}
+
+// ResolveRange picks base and head. Head: --head, else the index with
+// --staged, else HEAD. Base: --base (its merge-base with head on a branch),
+// else the pull request's base from the CI environment (GitHub's
+// GITHUB_BASE_REF, GitLab's CI_MERGE_REQUEST_DIFF_BASE_SHA), else HEAD for
+// --staged, else the merge-base of HEAD with the default branch.
+func ResolveRange(r *Repo, o Options) (*Range, error) {
+	getenv := o.Getenv
+	if getenv == nil {
+		getenv = os.Getenv
+	}
+	rg := &Range{}
+	var err error
+	switch {
+	case o.Staged:
+		if rg.Head, err = r.Index(); err != nil {
+			return nil, err
+		}
+		rg.HeadRef = "index"
+	default:
+		rg.HeadRef = o.Head
+		if rg.HeadRef == "" {
+			rg.HeadRef = "HEAD"
+		}
+		if rg.Head, err = r.Resolve(rg.HeadRef); err != nil {
+			return nil, err
+		}
+	}
+	base := o.Base
+	mergeBase := true
+	if base == "" {
+		if ref := getenv("GITHUB_BASE_REF"); ref != "" {
+			base = "origin/" + ref
+		} else if sha := getenv("CI_MERGE_REQUEST_DIFF_BASE_SHA"); sha != "" {
+			base, mergeBase = sha, false
+		}
+	}
+	if base == "" && o.Staged {
+		s, err := r.Resolve("HEAD")
+		if err != nil {
+			// The first commit of a repository: everything staged is added.
+			rg.Base, rg.BaseRef = &Snapshot{repo: r, Label: "empty", files: map[string]plumbing.Hash{}}, "empty"
+			return rg, nil
+		}
+		rg.Base, rg.BaseRef = s, "HEAD"
+		return rg, nil
+	}
+	if base == "" {
+		if base, err = r.DefaultBranch(); err != nil {
+			return nil, err
+		}
+	}
+	b, err := r.Resolve(base)
+	if err != nil {
+		return nil, err
+	}
+	rg.Base, rg.BaseRef = b, base
+	if mergeBase && rg.Head.tree != nil && b.Commit != rg.Head.Commit {
+		mb, err := r.MergeBase(b, rg.Head)
+		if err != nil {
+			return nil, err
+		}
+		rg.Base = mb
+	}
+	return rg, nil
+}
+
+// Run checks a change: it finds the models that changed between base and
+// head, measures both sides from git objects, and judges them against the
+// budget file in force.
+func Run(o Options) (*budget.Result, *Stats, error) {
+	dir := o.Dir
+	if dir == "" {
+		dir = "."
+	}
+	r, err := OpenRepo(dir)
+	if err != nil {
+		return nil, nil, err
+	}
+	if o.PrePush != nil {
+		return runPrePush(r, o)
+	}
+	rg, err := ResolveRange(r, o)
+	if err != nil {
+		return nil, nil, err
+	}
+	return runRange(r, rg, o)
+}
+
+// runPrePush checks each pushed ref against what the remote has (or, for a
+// new branch, against the default branch), and joins the results.
+func runPrePush(r *Repo, o Options) (*budget.Result, *Stats, error) {
+	const zero = "0000000000000000000000000000000000000000"
+	total := &Stats{}
+	var joined *budget.Result
+	sc := bufio.NewScanner(o.PrePush)
+	var lines [][]string
+	for sc.Scan() {
+		if f := strings.Fields(sc.Text()); len(f) == 4 {
+			lines = append(lines, f)
+		}
+	}
+	getenv := o.Getenv
+	if getenv == nil {
+		getenv = os.Getenv
+	}
+	// The multi-language hook framework passes the range in variables.
+	if len(lines) == 0 && getenv("PRE_COMMIT_TO_REF") != "" {
+		lines = append(lines, []string{"", getenv("PRE_COMMIT_TO_REF"), "", getenv("PRE_COMMIT_FROM_REF")})
+	}
+	for _, f := range lines {
+		local, remote := f[1], f[3]
+		if local == zero || local == "" {
+			continue // a deletion: nothing to judge
+		}
+		po := o
+		po.PrePush, po.Head, po.Base = nil, local, remote
+		if remote == zero || remote == "" {
+			po.Base = ""
+		}
+		rg, err := ResolveRange(r, po)
+		if err != nil {
+			return nil, nil, err
+		}
+		res, st, err := runRange(r, rg, po)
+		if err != nil {
+			return nil, nil, err
+		}
+		total.Measured.Add(st.Measured.Load())
+		total.CacheHits.Add(st.CacheHits.Load())
+		joined = joinResults(joined, res)
+	}
+	if joined == nil {
+		joined = &budget.Result{Verdict: budget.Pass, Models: []budget.ModelResult{}}
+	}
+	return joined, total, nil
+}
+
+func joinResults(a, b *budget.Result) *budget.Result {
+	if a == nil {
+		return b
+	}
+	a.Models = append(a.Models, b.Models...)
+	a.BudgetChanges = append(a.BudgetChanges, b.BudgetChanges...)
+	a.Problems = append(a.Problems, b.Problems...)
+	a.Verdict = worse(a.Verdict, b.Verdict)
+	a.Head = b.Head
+	return a
+}
+
+func worse(a, b budget.Status) budget.Status {
+	rank := map[budget.Status]int{budget.Pass: 0, budget.Waived: 0, budget.Warn: 1, budget.Fail: 2}
+	if rank[b] > rank[a] {
+		return b
+	}
+	return a
+}
+
+// loadBudget reads and parses the budget file at a snapshot; nil when the
+// snapshot has none.
+func loadBudget(s *Snapshot, p string) (*budget.File, error) {
+	if _, ok := s.Hash(p); !ok {
+		return nil, nil
+	}
+	data, err := s.Read(p)
+	if err != nil {
+		return nil, err
+	}
+	f, err := budget.Parse(p+" (at "+s.Label+")", data)
+	if err != nil {
+		return nil, &BudgetFileError{Err: err}
+	}
+	return f, nil
+}
+
+func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
+	bpath := o.BudgetFile
+	if bpath == "" {
+		bpath = DefaultBudgetFile
+	}
+	baseBudget, err := loadBudget(rg.Base, bpath)
+	if err != nil {
+		return nil, nil, err
+	}
+	headBudget, err := loadBudget(rg.Head, bpath)
+	if err != nil {
+		return nil, nil, err
+	}
+	var problems []string
+	inForce := baseBudget
+	switch {
+	case o.TrustHeadBudget && headBudget != nil:
+		inForce = headBudget
+		if baseBudget != nil {
+			problems = append(problems, "judged by the head's budget file (--trust-head-budget): this change may loosen its own gate")
+		}
+	case baseBudget == nil && headBudget != nil:
+		inForce = headBudget
+		problems = append(problems, fmt.Sprintf("%s is new in this change; its models are judged by it", bpath))
+	}
+	if inForce == nil {
+		return nil, nil, &BudgetFileError{Err: fmt.Errorf("no budget file: %s is in neither %s nor %s (write one with loadline init, or name it with --budget)", bpath, rg.BaseRef, rg.HeadRef)}
+	}
+	want := func(p string) bool {
+		return p != bpath && (IsModelPath(p) || len(inForce.Match(p)) > 0)
+	}
+	changes, err := Diff(rg.Base, rg.Head, want)
+	if err != nil {
+		return nil, nil, err
+	}
+	if o.Progress != nil && len(changes) > 0 {
+		fmt.Fprintf(o.Progress, "loadline: %d changed model(s) between %s and %s\n", len(changes), rg.BaseRef, rg.HeadRef)
+	}
+	var cache *Cache
+	if !o.NoCache {
+		cache = NewCache(r)
+	}
+	stats := &Stats{}
+	type pair struct{ base, head int }
+	var jobs []blobJob
+	var dims []map[string]int64
+	pairs := make([]pair, len(changes))
+	dimsFor := func(p string) map[string]int64 {
+		out := map[string]int64{}
+		for _, rule := range inForce.Match(p) {
+			for k, v := range rule.Dims {
+				out[k] = v
+			}
+		}
+		return out
+	}
+	for i, c := range changes {
+		pairs[i] = pair{-1, -1}
+		rulePath := c.Path
+		if c.Kind != "removed" {
+			pairs[i].head = len(jobs)
+			jobs = append(jobs, blobJob{rg.Head, c.Path})
+			dims = append(dims, dimsFor(rulePath))
+		}
+		if c.Kind != "added" {
+			old := c.Path
+			if c.OldPath != "" {
+				old = c.OldPath
+			}
+			pairs[i].base = len(jobs)
+			jobs = append(jobs, blobJob{rg.Base, old})
+			// Both sides are measured with the dims of the head's rule, so
+			// that they compare like with like.
+			dims = append(dims, dimsFor(rulePath))
+		}
+	}
+	metrics := make([]*measure.Metrics, len(jobs))
+	// Group jobs by dims so each group shares one pool.
+	groups := map[string][]int{}
+	for i, d := range dims {
+		k := fmt.Sprint(d)
+		groups[k] = append(groups[k], i)
+	}
+	for _, idx := range groups {
+		sub := make([]blobJob, len(idx))
+		for j, i := range idx {
+			sub[j] = jobs[i]
+		}
+		out := measureBlobs(sub, measure.Options{Dims: dims[idx[0]]}, cache, stats)
+		for j, i := range idx {
+			metrics[i] = out[j]
+		}
+	}
+	// A missing object is the environment's fault, not the model's.
+	for _, m := range metrics {
+		if m != nil && m.Error != "" && isEnvMessage(m.Error) {
+			return nil, nil, &EnvError{Err: errors.New(m.Error)}
+		}
+	}
+	inputs := make([]budget.Input, len(changes))
+	for i, c := range changes {
+		in := budget.Input{Path: c.Path, OldPath: c.OldPath, Change: budget.Change(c.Kind)}
+		if pairs[i].head >= 0 {
+			m := metrics[pairs[i].head]
+			in.Head = Figures(m)
+			if m.Error != "" {
+				in.Error = m.Error
+			}
+		}
+		if pairs[i].base >= 0 {
+			m := metrics[pairs[i].base]
+			if m.Error == "" {
+				in.Base = Figures(m)
+			}
+		}
+		inputs[i] = in
+	}
+	today := o.Today
+	if today.IsZero() {
+		today = time.Now()
+	}
+	res := inForce.Evaluate(inputs, budget.EvalOptions{Strict: o.Strict, Today: today})
+	for i := range res.Models {
+		for j, c := range changes {
+			if c.Path == res.Models[i].Path && pairs[j].head >= 0 {
+				res.Models[i].Detail = DetailOf(metrics[pairs[j].head])
+			}
+		}
+	}
+	res.Base = budget.Revision{Ref: rg.BaseRef, Commit: commitOf(rg.Base)}
+	res.Head = budget.Revision{Ref: rg.HeadRef, Commit: commitOf(rg.Head)}
+	if baseBudget != nil && headBudget != nil {
+		res.BudgetChanges = budget.Diff(baseBudget, headBudget)
+	}
+	if res.BudgetChanges == nil {
+		res.BudgetChanges = []budget.BudgetChange{}
+	}
+	res.Problems = append(problems, res.Problems...)
+	return res, stats, nil
+}
+
+func commitOf(s *Snapshot) string {
+	if s.tree == nil {
+		return ""
+	}
+	return s.Commit.String()
+}
+
+// isEnvMessage recognises measurement errors caused by missing objects.
+func isEnvMessage(msg string) bool {
+	return strings.Contains(msg, "is missing from the object store") || strings.Contains(msg, "not in the local LFS store")
+}
