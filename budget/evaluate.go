@@ -300,7 +300,7 @@ func (e *evaluation) model(in Input) ModelResult {
 	}
 	for _, metric := range Metrics {
 		if srcs := b.limits[metric]; len(srcs) > 0 {
-			mr.Checks = append(mr.Checks, e.limit(p, metric, srcs, b, mr.Head))
+			mr.Checks = append(mr.Checks, e.limit(p, metric, srcs, b, mr.Base, mr.Head))
 		}
 		if srcs := b.growth[metric]; len(srcs) > 0 {
 			mr.Checks = append(mr.Checks, e.growth(p, metric, srcs, mr.Base, mr.Head))
@@ -322,7 +322,7 @@ func resolve(metric string, s Setting, dev *Device) (int64, string) {
 	return share(capacity, s.Value), fmt.Sprintf("%s of %s's %s", formatPercent(s.Value), dev.Name, FormatValue(metric, capacity))
 }
 
-func (e *evaluation) limit(p, metric string, srcs []source, b *budgetFor, head *Figures) Check {
+func (e *evaluation) limit(p, metric string, srcs []source, b *budgetFor, base, head *Figures) Check {
 	f := e.file
 	s := srcs[0]
 	lim, explain := resolve(metric, s.set, b.dev)
@@ -347,6 +347,10 @@ func (e *evaluation) limit(p, metric string, srcs []source, b *budgetFor, head *
 		return e.waive(p, c)
 	}
 	c.Value = v
+	if bv, ok := base.Value(metric); ok {
+		delta := v - bv
+		c.Base, c.Delta = &bv, &delta
+	}
 	room := lim - v
 	c.Headroom = &room
 	fv := FormatValue(metric, v)

@@ -145,6 +145,17 @@ func TestEvaluateChecks(t *testing.T) {
 			if tt.status == Waived && (c.Waiver == nil || c.Waiver.Line != 17) {
 				t.Errorf("waiver = %+v, want the one at line 17", c.Waiver)
 			}
+			if tt.in.Base != nil {
+				bv, _ := tt.in.Base.Value(tt.metric)
+				if tt.metric == MetricRAM {
+					bv = tt.in.Base.Memory.Deployed.ArenaBytes // porch-cam: weights in flash
+				}
+				if c.Base == nil || *c.Base != bv || c.Delta == nil || *c.Delta != c.Value-bv {
+					t.Errorf("base, delta = %v, %v; want %d, value − base", c.Base, c.Delta, bv)
+				}
+			} else if c.Base != nil || c.Delta != nil {
+				t.Errorf("an added model has no base, but base = %d", *c.Base)
+			}
 			if !strings.HasPrefix(c.Source, "loadline.yaml:") {
 				t.Errorf("source = %q", c.Source)
 			}
