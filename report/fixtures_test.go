@@ -138,7 +138,7 @@ func growthReason(metric string, base, v int64, allowed string) string {
 // porchChecks judges porch-cam figures as the birdcam rule does, in
 // evaluation's order (budget.Metrics, a metric's limit before its growth);
 // the statuses are given so each fixture says what it shows. As evaluation
-// does, only growth checks carry the base figure.
+// does, every check of a model with a base carries the base figure.
 func porchChecks(base, head *budget.Figures, ram, ramGrowth, macs budget.Status) []budget.Check {
 	const porchRAM = "90% of porch-cam's 512 KiB"
 	growth := func(metric string, pct int64, allowed int64, allowedText string, st budget.Status) budget.Check {
@@ -151,15 +151,15 @@ func porchChecks(base, head *budget.Figures, ram, ramGrowth, macs budget.Status)
 		return chk(metric, "growth", v, bv, lim, st, growthReason(metric, bv, v, allowedText))
 	}
 	checks := []budget.Check{
-		chk(budget.MetricRAM, "limit", head.RAM, -1, porchRAMLimit, ram, limitReason(budget.MetricRAM, head.RAM, porchRAMLimit, porchRAM, ram)),
+		chk(budget.MetricRAM, "limit", head.RAM, baseOf(base, budget.MetricRAM), porchRAMLimit, ram, limitReason(budget.MetricRAM, head.RAM, porchRAMLimit, porchRAM, ram)),
 	}
 	if base != nil {
 		checks = append(checks, growth(budget.MetricRAM, 5, 0, "5%", ramGrowth))
 	}
 	checks = append(checks,
-		chk(budget.MetricFlash, "limit", head.Flash, -1, porchFlashLimit, budget.Pass, limitReason(budget.MetricFlash, head.Flash, porchFlashLimit, "", budget.Pass)),
-		chk(budget.MetricParams, "limit", head.Params, -1, porchParams, budget.Pass, limitReason(budget.MetricParams, head.Params, porchParams, "", budget.Pass)),
-		chk(budget.MetricMACs, "limit", head.MACs, -1, porchMACs, macs, limitReason(budget.MetricMACs, head.MACs, porchMACs, "", macs)),
+		chk(budget.MetricFlash, "limit", head.Flash, baseOf(base, budget.MetricFlash), porchFlashLimit, budget.Pass, limitReason(budget.MetricFlash, head.Flash, porchFlashLimit, "", budget.Pass)),
+		chk(budget.MetricParams, "limit", head.Params, baseOf(base, budget.MetricParams), porchParams, budget.Pass, limitReason(budget.MetricParams, head.Params, porchParams, "", budget.Pass)),
+		chk(budget.MetricMACs, "limit", head.MACs, baseOf(base, budget.MetricMACs), porchMACs, macs, limitReason(budget.MetricMACs, head.MACs, porchMACs, "", macs)),
 	)
 	if base != nil {
 		checks = append(checks,
