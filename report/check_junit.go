@@ -24,9 +24,13 @@ func CheckJUnit(w io.Writer, r *budget.Result) error {
 	for _, m := range ordered(r.Models) {
 		s := junitSuite{Name: m.Path}
 		prop := func(name, value string) {
-			if value != "" {
-				s.Properties = append(s.Properties, junitProperty{name, value})
+			if value == "" {
+				return
 			}
+			if s.Properties == nil {
+				s.Properties = &junitProperties{}
+			}
+			s.Properties.List = append(s.Properties.List, junitProperty{name, value})
 		}
 		prop("change", string(m.Change))
 		prop("old_path", m.OldPath)
@@ -115,15 +119,19 @@ type junitSuites struct {
 }
 
 type junitSuite struct {
-	Name       string          `xml:"name,attr"`
-	Tests      int             `xml:"tests,attr"`
-	Failures   int             `xml:"failures,attr"`
-	Errors     int             `xml:"errors,attr"`
-	Skipped    int             `xml:"skipped,attr"`
-	Time       string          `xml:"time,attr"`
-	Properties []junitProperty `xml:"properties>property,omitempty"`
-	Cases      []junitCase     `xml:"testcase"`
-	SystemOut  string          `xml:"system-out,omitempty"`
+	Name       string           `xml:"name,attr"`
+	Tests      int              `xml:"tests,attr"`
+	Failures   int              `xml:"failures,attr"`
+	Errors     int              `xml:"errors,attr"`
+	Skipped    int              `xml:"skipped,attr"`
+	Time       string           `xml:"time,attr"`
+	Properties *junitProperties `xml:"properties,omitempty"`
+	Cases      []junitCase      `xml:"testcase"`
+	SystemOut  string           `xml:"system-out,omitempty"`
+}
+
+type junitProperties struct {
+	List []junitProperty `xml:"property"`
 }
 
 type junitProperty struct {
