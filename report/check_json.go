@@ -33,6 +33,7 @@ func CheckJSON(w io.Writer, r *budget.Result) error {
 	}{CheckSchema, &out}
 	enc := json.NewEncoder(w)
 	enc.SetIndent("", "  ")
+	enc.SetEscapeHTML(false) // reasons read "ram 498 KiB > limit …", not "\u003e"
 	return enc.Encode(doc)
 }
 
