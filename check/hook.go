@@ -68,10 +68,11 @@ func hookScript(o HookOptions, chained string) string {
 	for i, a := range args {
 		quoted[i] = fmt.Sprintf("%q", a)
 	}
+	// The report goes to stderr, where git shows a hook's messages.
 	if o.Stage == "pre-push" && chained != "" {
-		fmt.Fprintf(&b, "printf '%%s\\n' \"$input\" | exec %q %s\n", o.Binary, strings.Join(quoted, " "))
+		fmt.Fprintf(&b, "printf '%%s\\n' \"$input\" | exec %q %s 1>&2\n", o.Binary, strings.Join(quoted, " "))
 	} else {
-		fmt.Fprintf(&b, "exec %q %s\n", o.Binary, strings.Join(quoted, " "))
+		fmt.Fprintf(&b, "exec %q %s 1>&2\n", o.Binary, strings.Join(quoted, " "))
 	}
 	return b.String()
 }

@@ -326,7 +326,7 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 		for j, i := range idx {
 			sub[j] = jobs[i]
 		}
-		out := measureBlobs(sub, measure.Options{Dims: dims[idx[0]]}, cache, stats)
+		out := measureBlobs(sub, measure.Options{Dims: dims[idx[0]], Layers: true}, cache, stats)
 		for j, i := range idx {
 			metrics[i] = out[j]
 		}

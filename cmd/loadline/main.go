@@ -63,12 +63,17 @@ const conventions = `Figures (static estimates from the model file; measure on t
 Units: B, KiB, MiB (1024-based) for bytes; k, M, G (1000-based) for counts.`
 
 func main() {
-	os.Exit(run(os.Args[1:], os.Stdout, os.Stderr))
+	os.Exit(runWith(os.Args[1:], os.Stdin, os.Stdout, os.Stderr))
 }
 
-// run executes the command line and returns the exit code; tests call it.
+// run executes the command line with no standard input; tests call it.
 func run(args []string, stdout, stderr io.Writer) int {
-	root := newRoot(stdout, stderr)
+	return runWith(args, strings.NewReader(""), stdout, stderr)
+}
+
+// runWith executes the command line and returns the exit code.
+func runWith(args []string, stdin io.Reader, stdout, stderr io.Writer) int {
+	root := newRoot(stdin, stdout, stderr)
 	root.SetArgs(args)
 	err := root.Execute()
 	if err == nil {
@@ -85,7 +90,7 @@ func run(args []string, stdout, stderr io.Writer) int {
 	return exitUsage
 }
 
-func newRoot(stdout, stderr io.Writer) *cobra.Command {
+func newRoot(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 	root := &cobra.Command{
 		Use:   "loadline",
 		Short: "Keep neural-network models inside the resource budgets of their devices",
@@ -96,7 +101,8 @@ func newRoot(stdout, stderr io.Writer) *cobra.Command {
 	}
 	root.SetOut(stdout)
 	root.SetErr(stderr)
-	root.AddCommand(newMeasureCmd(stdout), newDemoCmd(stdout, stderr))
+	root.AddCommand(newMeasureCmd(stdout), newCheckCmd(stdin, stdout, stderr), newCompareCmd(stdout),
+		newInitCmd(stdout, stderr), newHookCmd(stdout), newDemoCmd(stdout, stderr))
 	return root
 }
 

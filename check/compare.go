@@ -1,0 +1,68 @@
+package check
+
+import (
+	"fmt"
+	"path/filepath"
+	"time"
+
+	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/measure"
+)
+
+// CompareOptions are the choices of `loadline compare`.
+type CompareOptions struct {
+	Old, New   string // model files
+	BudgetFile string // the budget file; "" is ./loadline.yaml
+	// As is the repository path whose budget rule applies; "" is New's
+	// path as given.
+	As     string
+	Strict bool
+	Today  time.Time
+}
+
+// Compare judges two model files outside git: OLD as the base, NEW as the
+// head, under the rule that matches As.
+func Compare(o CompareOptions) (*budget.Result, error) {
+	bpath := o.BudgetFile
+	if bpath == "" {
+		bpath = DefaultBudgetFile
+	}
+	f, err := budget.Load(bpath)
+	if err != nil {
+		return nil, &BudgetFileError{Err: err}
+	}
+	as := o.As
+	if as == "" {
+		as = filepath.ToSlash(filepath.Clean(o.New))
+	}
+	dims := map[string]int64{}
+	for _, r := range f.Match(as) {
+		for k, v := range r.Dims {
+			dims[k] = v
+		}
+	}
+	ms := MeasureFiles([]string{o.Old, o.New}, measure.Options{Dims: dims, Layers: true})
+	in := budget.Input{Path: as, Change: budget.Modified}
+	if ms[0].Error != "" {
+		return nil, fmt.Errorf("%s", ms[0].Error)
+	}
+	in.Base = Figures(ms[0])
+	in.Head = Figures(ms[1])
+	if ms[1].Error != "" {
+		in.Error = ms[1].Error
+	}
+	today := o.Today
+	if today.IsZero() {
+		today = time.Now()
+	}
+	res := f.Evaluate([]budget.Input{in}, budget.EvalOptions{Strict: o.Strict, Today: today})
+	for i := range res.Models {
+		res.Models[i].Detail = DetailOf(ms[1])
+	}
+	res.Base = budget.Revision{Ref: o.Old}
+	res.Head = budget.Revision{Ref: o.New}
+	if res.BudgetChanges == nil {
+		res.BudgetChanges = []budget.BudgetChange{}
+	}
+	return res, nil
+}

@@ -1,0 +1,311 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"strings"
+	"time"
+
+	"github.com/spf13/cobra"
+
+	"github.com/loadline/loadline/action"
+	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/check"
+	"github.com/loadline/loadline/report"
+)
+
+// version names this build in reports.
+const version = "loadline 0.1.0"
+
+const checkConventions = `Verdicts: each limit in the budget file is a check of the head's figure
+(fail above the limit, warn above warn_at of it); each growth rule a check
+against the base's figure. A waiver turns a failure into "waived" until its
+date. ram = deployed activation arena (+ weight bytes when the device keeps
+weights in RAM); flash = the model file's bytes.
+Exit codes: 0 within budget (warnings allowed), 1 a budget is broken or a
+changed model cannot be measured, 2 usage or budget-file error, 3
+environment error (missing git objects, unreachable API when --post-required).`
+
+// renderFlags are the output choices shared by check and compare.
+type renderFlags struct {
+	format string
+	out    string
+	failOn string
+}
+
+func (r *renderFlags) register(cmd *cobra.Command) {
+	cmd.Flags().StringVar(&r.format, "format", "text", "report format: text, markdown, json or junit")
+	cmd.Flags().StringVarP(&r.out, "out", "o", "", "write the report to FILE instead of standard output")
+	cmd.Flags().StringVar(&r.failOn, "fail-on", "fail", "which verdict exits 1: fail, warn or never")
+}
+
+func (r *renderFlags) validate() error {
+	switch r.format {
+	case "text", "markdown", "json", "junit":
+	default:
+		return fmt.Errorf("--format %q: choose text, markdown, json or junit", r.format)
+	}
+	switch r.failOn {
+	case "fail", "warn", "never":
+	default:
+		return fmt.Errorf("--fail-on %q: choose fail, warn or never", r.failOn)
+	}
+	return nil
+}
+
+// render writes the result in the chosen format.
+func render(w io.Writer, res *budget.Result, format string) error {
+	switch format {
+	case "markdown":
+		return report.CheckMarkdown(w, res, report.MarkdownOptions{Version: version, Now: time.Now()})
+	case "json":
+		return report.CheckJSON(w, res)
+	case "junit":
+		return report.CheckJUnit(w, res)
+	}
+	return report.CheckText(w, res, report.TextOptions{Color: report.ColorFor(w)})
+}
+
+// emit renders to --out or the given writer, then turns the verdict into
+// the exit error.
+func (r *renderFlags) emit(w io.Writer, res *budget.Result) error {
+	if r.out != "" {
+		var buf bytes.Buffer
+		if err := render(&buf, res, r.format); err != nil {
+			return &exitError{exitEnviron, err}
+		}
+		if err := os.WriteFile(r.out, buf.Bytes(), 0o644); err != nil {
+			return &exitError{exitEnviron, err}
+		}
+	} else if err := render(w, res, r.format); err != nil {
+		return &exitError{exitEnviron, err}
+	}
+	return verdictExit(res.Verdict, r.failOn)
+}
+
+func verdictExit(v budget.Status, failOn string) error {
+	switch {
+	case failOn == "never":
+		return nil
+	case v == budget.Fail:
+		return &exitError{exitBudget, errors.New("")}
+	case v == budget.Warn && failOn == "warn":
+		return &exitError{exitBudget, errors.New("")}
+	}
+	return nil
+}
+
+// pipelineExit maps pipeline errors to exit codes.
+func pipelineExit(err error) error {
+	var bf *check.BudgetFileError
+	var env *check.EnvError
+	switch {
+	case errors.As(err, &bf):
+		return &exitError{exitUsage, err}
+	case errors.As(err, &env):
+		return &exitError{exitEnviron, err}
+	}
+	return &exitError{exitBudget, err}
+}
+
+func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
+	var o check.Options
+	var rf renderFlags
+	var prePush, post, postRequired bool
+	cmd := &cobra.Command{
+		Use:   "check [--base REV] [--head REV | --staged | --pre-push] [--budget FILE] [--format text|markdown|json|junit] [--out FILE]",
+		Short: "Judge the models a change touches against the budget file",
+		Long: "Finds the models that changed between base and head, measures both sides from git\n" +
+			"objects (never the working tree), and judges them against the budget file in force:\n" +
+			"the base revision's, so that a change cannot loosen its own gate (--trust-head-budget\n" +
+			"is the explicit way out). Base by default: the pull request's base from the CI\n" +
+			"environment, else the merge-base of HEAD with the default branch.\n\n" + checkConventions + "\n\n" + conventions,
+		Example: "  loadline check                       # this branch against the default branch\n" +
+			"  loadline check --staged              # what git commit would record (pre-commit hook)\n" +
+			"  loadline check --base origin/main --format markdown --out report.md",
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if err := rf.validate(); err != nil {
+				return &exitError{exitUsage, err}
+			}
+			if o.Staged && (prePush || o.Head != "") {
+				return &exitError{exitUsage, errors.New("--staged compares the index with HEAD; it does not combine with --head or --pre-push")}
+			}
+			if prePush {
+				o.PrePush = stdin
+			}
+			o.Progress = stderr
+			res, stats, err := check.Run(o)
+			if err != nil {
+				return pipelineExit(err)
+			}
+			fmt.Fprintf(stderr, "loadline: %d model(s) changed, %d measured, %d from cache\n", len(res.Models), stats.Measured.Load(), stats.CacheHits.Load())
+			if post {
+				if err := postResult(res, stderr); err != nil && postRequired {
+					return &exitError{exitEnviron, err}
+				}
+			}
+			return rf.emit(stdout, res)
+		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&o.Base, "base", "", "base revision (default: the pull request's base, else the merge-base with the default branch)")
+	f.StringVar(&o.Head, "head", "", "head revision (default HEAD)")
+	f.BoolVar(&o.Staged, "staged", false, "compare the staged files (the index) with HEAD, for a pre-commit hook")
+	f.BoolVar(&prePush, "pre-push", false, "check the commits being pushed, read from standard input as git's pre-push hook gives them")
+	f.StringVar(&o.BudgetFile, "budget", "", "budget file, a path from the repository root (default loadline.yaml)")
+	f.BoolVar(&o.TrustHeadBudget, "trust-head-budget", false, "judge by the head's budget file instead of the base's")
+	f.BoolVar(&o.Strict, "strict", false, "fail models that no budget rule covers (default: warn)")
+	f.BoolVar(&o.NoCache, "no-cache", false, "measure everything again instead of using cached figures")
+	f.BoolVar(&post, "post", false, "post the report where reviewers look (pull-request comment, job summary, annotations), detected from the CI environment")
+	f.BoolVar(&postRequired, "post-required", false, "with --post, exit 3 when posting fails (default: warn and keep the verdict)")
+	rf.register(cmd)
+	return cmd
+}
+
+// postResult publishes the markdown report on the platform the environment
+// names. Posting never changes the verdict; failures are returned for the
+// caller to report.
+func postResult(res *budget.Result, stderr io.Writer) error {
+	poster, ok := action.Detect(os.Getenv)
+	if !ok {
+		fmt.Fprintln(stderr, "loadline: --post: no supported CI platform in the environment (GITHUB_ACTIONS or GITLAB_CI); nothing posted")
+		return nil
+	}
+	var body strings.Builder
+	if err := report.CheckMarkdown(&body, res, report.MarkdownOptions{Version: version, Now: time.Now()}); err != nil {
+		return err
+	}
+	warnings, err := poster.Post(context.Background(), body.String(), res)
+	for _, w := range warnings {
+		fmt.Fprintln(stderr, "loadline: warning:", w)
+	}
+	if err != nil {
+		fmt.Fprintln(stderr, "loadline: posting the report failed (the verdict stands):", err)
+	}
+	return err
+}
+
+func newCompareCmd(stdout io.Writer) *cobra.Command {
+	var o check.CompareOptions
+	var rf renderFlags
+	cmd := &cobra.Command{
+		Use:   "compare OLD NEW [--budget FILE] [--as PATH] [--format text|markdown|json|junit]",
+		Short: "Judge two model files outside git, OLD as the base and NEW as the head",
+		Long:  "Measures both files and judges NEW, and its growth over OLD, by the budget rule that\nmatches PATH (--as; default NEW's path).\n\n" + checkConventions,
+		Args:  cobra.ExactArgs(2),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if err := rf.validate(); err != nil {
+				return &exitError{exitUsage, err}
+			}
+			o.Old, o.New = args[0], args[1]
+			res, err := check.Compare(o)
+			if err != nil {
+				return pipelineExit(err)
+			}
+			return rf.emit(stdout, res)
+		},
+	}
+	cmd.Flags().StringVar(&o.BudgetFile, "budget", "", "budget file (default ./loadline.yaml)")
+	cmd.Flags().StringVar(&o.As, "as", "", "the repository path whose budget rule applies (default NEW's path)")
+	cmd.Flags().BoolVar(&o.Strict, "strict", false, "fail when no budget rule covers the model")
+	rf.register(cmd)
+	return cmd
+}
+
+func newInitCmd(stdout, stderr io.Writer) *cobra.Command {
+	var headroom float64
+	var force, toStdout bool
+	cmd := &cobra.Command{
+		Use:   "init [--headroom PCT] [--force] [--stdout]",
+		Short: "Write a starter loadline.yaml for the models under the current folder",
+		Long: "Finds the .onnx files under the current folder, measures them, and writes loadline.yaml\n" +
+			"with limits at today's figures plus the headroom, one rule per folder, and comments\n" +
+			"that explain each key. Edit the device capacities to your hardware's.",
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if headroom < 0 || headroom > 1000 {
+				return &exitError{exitUsage, fmt.Errorf("--headroom %g: give a percentage, e.g. 10", headroom)}
+			}
+			text, ms, err := check.StarterBudget(check.InitOptions{Dir: ".", Headroom: headroom / 100})
+			if err != nil {
+				return &exitError{exitUsage, err}
+			}
+			if _, err := budget.Parse("loadline.yaml", []byte(text)); err != nil {
+				return &exitError{exitEnviron, fmt.Errorf("the starter budget does not parse (a loadline bug): %w", err)}
+			}
+			if toStdout {
+				_, err := io.WriteString(stdout, text)
+				return err
+			}
+			if _, err := os.Stat(check.DefaultBudgetFile); err == nil && !force {
+				return &exitError{exitUsage, fmt.Errorf("%s exists; use --force to replace it or --stdout to print the starter", check.DefaultBudgetFile)}
+			}
+			if err := os.WriteFile(check.DefaultBudgetFile, []byte(text), 0o644); err != nil {
+				return &exitError{exitEnviron, err}
+			}
+			fmt.Fprintf(stderr, "wrote %s for %d model(s); set the device capacities, then commit it\n", check.DefaultBudgetFile, len(ms))
+			return nil
+		},
+	}
+	cmd.Flags().Float64Var(&headroom, "headroom", 10, "percent added to today's figures for the starter limits")
+	cmd.Flags().BoolVar(&force, "force", false, "replace an existing loadline.yaml")
+	cmd.Flags().BoolVar(&toStdout, "stdout", false, "print the starter instead of writing loadline.yaml")
+	return cmd
+}
+
+func newHookCmd(stdout io.Writer) *cobra.Command {
+	hook := &cobra.Command{
+		Use:   "hook install|uninstall [--stage pre-commit|pre-push]",
+		Short: "Install or remove the git hook that runs loadline check",
+	}
+	var o check.HookOptions
+	install := &cobra.Command{
+		Use:   "install [--stage pre-commit|pre-push] [--chain | --force]",
+		Short: "Install the hook (honours core.hooksPath)",
+		Args:  cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, args []string) error {
+			r, err := check.OpenRepo(".")
+			if err != nil {
+				return pipelineExit(err)
+			}
+			if o.Binary, err = os.Executable(); err != nil {
+				o.Binary = "loadline"
+			}
+			p, err := r.InstallHook(o)
+			if err != nil {
+				return &exitError{exitUsage, err}
+			}
+			fmt.Fprintln(stdout, "installed", p)
+			return nil
+		},
+	}
+	install.Flags().StringVar(&o.Stage, "stage", "pre-commit", "pre-commit (checks staged changes) or pre-push (checks the pushed commits)")
+	install.Flags().BoolVar(&o.Chain, "chain", false, "keep an existing hook and run it before loadline")
+	install.Flags().BoolVar(&o.Force, "force", false, "replace an existing hook loadline did not write")
+	var stage string
+	uninstall := &cobra.Command{
+		Use:   "uninstall [--stage pre-commit|pre-push]",
+		Short: "Remove loadline's hook, restoring a chained one",
+		Args:  cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, args []string) error {
+			r, err := check.OpenRepo(".")
+			if err != nil {
+				return pipelineExit(err)
+			}
+			p, err := r.UninstallHook(stage)
+			if err != nil {
+				return &exitError{exitUsage, err}
+			}
+			fmt.Fprintln(stdout, "removed", p)
+			return nil
+		},
+	}
+	uninstall.Flags().StringVar(&stage, "stage", "pre-commit", "pre-commit or pre-push")
+	hook.AddCommand(install, uninstall)
+	return hook
+}
