@@ -5,48 +5,82 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"strings"
+	"time"
 
-	"github.com/loadline/loadline/measure"
+	git "github.com/go-git/go-git/v5"
+	"github.com/go-git/go-git/v5/plumbing"
+	"github.com/go-git/go-git/v5/plumbing/object"
+
+	"github.com/loadline/loadline/budget"
 	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/model/build"
 	"github.com/loadline/loadline/model/onnx"
-	"github.com/loadline/loadline/report"
 )
 
-// DemoModel is one model of the invented demo scenario.
-type DemoModel struct {
-	Path  string // relative to the demo folder
-	About string
-	Build func() (*model.Model, error)
+// The demo's invented scenario. Wrenfield Labs (a made-up company) ships a
+// bird detector on a porch camera and a wake-word spotter on a kitchen
+// timer; both devices and their capacities are invented for the demo. The
+// figures the demo prints are whatever loadline measures on the models
+// built here.
+const demoBudget = `# Wrenfield Labs' budget file (an invented scenario for loadline demo).
+version: 1
+devices:
+  porch-cam:          # camera hub with a small MCU
+    ram: 512KiB
+    flash: 2MiB
+    weights: flash
+  kitchen-timer:      # microcontroller in a kitchen timer
+    ram: 128KiB
+    flash: 256KiB
+    weights: flash
+models:
+  - path: "models/porch-cam/**/*.onnx"
+    device: porch-cam
+    limits: {ram: 90%, flash: 1.5MiB, macs: 30M}
+    growth: {ram: 10%, macs: 20%}
+  - path: "models/kitchen-timer/**/*.onnx"
+    device: kitchen-timer
+    dims: {batch: 1}
+    limits: {ram: 80%, flash: 200KiB, params: 40k, macs: 6M}
+    growth: {params: 60%, macs: 60%}
+    warn_at: 90%
+`
+
+// demoCommit is one commit of the demo's history.
+type demoCommit struct {
+	message string
+	models  map[string]func() (*model.Model, error)
 }
 
-// DemoScenario is the demo's invented fleet: Wrenfield Labs ships a bird
-// detector on a porch camera and a wake-word model on a kitchen timer. The
-// names are made up for the demo; the figures are whatever loadline
-// measures on the models built here.
-func DemoScenario() []DemoModel {
-	return []DemoModel{
-		{"models/porch-cam/birdspot.onnx", "bird detector for the porch camera: MobileNet v1 0.25 at 128×128, float32",
-			func() (*model.Model, error) {
-				return build.MobileNetV1(build.Options{Size: 128, Width: 0.25, Classes: 12})
-			}},
-		{"models/kitchen-timer/wakeword.onnx", "wake-word spotter for the kitchen timer: a small depthwise-separable CNN on 49×10 MFCCs, symbolic batch",
-			buildWakeword},
-	}
+var demoHistory = []demoCommit{
+	{"Baseline: bird detector at 128×128, wake-word spotter with 64 channels", map[string]func() (*model.Model, error){
+		"models/porch-cam/birdspot.onnx": func() (*model.Model, error) {
+			return build.MobileNetV1(build.Options{Size: 128, Width: 0.25, Classes: 12})
+		},
+		"models/kitchen-timer/wakeword.onnx": func() (*model.Model, error) { return buildWakeword(64) },
+	}},
+	{"Retrain: bird detector at 160×160, wake-word spotter with 80 channels", map[string]func() (*model.Model, error){
+		"models/porch-cam/birdspot.onnx": func() (*model.Model, error) {
+			return build.MobileNetV1(build.Options{Size: 160, Width: 0.25, Classes: 12})
+		},
+		"models/kitchen-timer/wakeword.onnx": func() (*model.Model, error) { return buildWakeword(80) },
+	}},
 }
 
-// buildWakeword builds a small keyword-spotting network of our own design,
-// in the spirit of the depthwise-separable CNNs used for the job.
-func buildWakeword() (*model.Model, error) {
+// buildWakeword builds a small keyword-spotting network of our own design
+// (depthwise-separable convolutions on 49×10 MFCC frames), with a symbolic
+// batch dimension that the budget rule binds.
+func buildWakeword(ch int64) (*model.Model, error) {
 	b := build.New("wakeword", 13)
 	x := b.InputShape("mfcc", model.Float32, model.Shape{model.Sym("batch"), model.Known(1), model.Known(49), model.Known(10)})
-	x = b.Conv("conv0", x, build.Conv2D(64, 3, 2, 1).WithBias())
+	x = b.Conv("conv0", x, build.Conv2D(ch, 3, 2, 1).WithBias())
 	x = b.Relu("relu0", x)
 	for i := range 4 {
 		p := fmt.Sprintf("block%d", i)
-		x = b.Conv(p+".dw", x, build.Conv2D(64, 3, 1, 1).Grouped(64).WithBias())
+		x = b.Conv(p+".dw", x, build.Conv2D(ch, 3, 1, 1).Grouped(ch).WithBias())
 		x = b.Relu(p+".dw_relu", x)
-		x = b.Conv(p+".pw", x, build.Conv2D(64, 1, 1, 0).WithBias())
+		x = b.Conv(p+".pw", x, build.Conv2D(ch, 1, 1, 0).WithBias())
 		x = b.Relu(p+".pw_relu", x)
 	}
 	x = b.GlobalAveragePool("pool", x)
@@ -57,42 +91,76 @@ func buildWakeword() (*model.Model, error) {
 	return b.Model()
 }
 
-// RunDemo writes the demo models into dir, measures them and prints the
-// report to w. It returns the measured figures.
-func RunDemo(dir string, w io.Writer) ([]*measure.Metrics, error) {
-	var paths []string
-	for _, d := range DemoScenario() {
-		m, err := d.Build()
+// DemoRepo builds the demo repository in dir: the budget file and the
+// baseline on main, the retrain on a branch that is checked out. It uses
+// no git command and no network.
+func DemoRepo(dir string, log io.Writer) error {
+	r, err := git.PlainInitWithOptions(dir, &git.PlainInitOptions{InitOptions: git.InitOptions{DefaultBranch: plumbing.NewBranchReferenceName("main")}})
+	if err != nil {
+		return err
+	}
+	wt, err := r.Worktree()
+	if err != nil {
+		return err
+	}
+	who := &object.Signature{Name: "Wrenfield Dev", Email: "dev@wrenfield.example", When: time.Date(2026, 11, 2, 9, 0, 0, 0, time.UTC)}
+	for i, c := range demoHistory {
+		if i == 1 {
+			if err := wt.Checkout(&git.CheckoutOptions{Branch: plumbing.NewBranchReferenceName("retrain-160"), Create: true}); err != nil {
+				return err
+			}
+		}
+		files := map[string][]byte{}
+		if i == 0 {
+			files[DefaultBudgetFile] = []byte(demoBudget)
+		}
+		for p, f := range c.models {
+			m, err := f()
+			if err != nil {
+				return fmt.Errorf("building %s: %w", p, err)
+			}
+			data, err := onnx.Encode(m)
+			if err != nil {
+				return fmt.Errorf("encoding %s: %w", p, err)
+			}
+			files[p] = data
+		}
+		for p, data := range files {
+			full := filepath.Join(dir, filepath.FromSlash(p))
+			if err := os.MkdirAll(filepath.Dir(full), 0o755); err != nil {
+				return err
+			}
+			if err := os.WriteFile(full, data, 0o644); err != nil {
+				return err
+			}
+			if _, err := wt.Add(p); err != nil {
+				return err
+			}
+		}
+		who.When = who.When.Add(24 * time.Hour)
+		h, err := wt.Commit(c.message, &git.CommitOptions{Author: who, Committer: who})
 		if err != nil {
-			return nil, fmt.Errorf("building %s: %w", d.Path, err)
+			return err
 		}
-		data, err := onnx.Encode(m)
-		if err != nil {
-			return nil, fmt.Errorf("encoding %s: %w", d.Path, err)
-		}
-		p := filepath.Join(dir, d.Path)
-		if err := os.MkdirAll(filepath.Dir(p), 0o755); err != nil {
-			return nil, err
-		}
-		if err := os.WriteFile(p, data, 0o644); err != nil {
-			return nil, err
-		}
-		fmt.Fprintf(w, "built %s — %s\n", d.Path, d.About)
-		paths = append(paths, p)
+		fmt.Fprintf(log, "commit %s  %s\n", h.String()[:7], c.message)
 	}
-	fmt.Fprintln(w)
-	// The wake-word model's batch is symbolic: bind it, as a budget rule's dims would.
-	entries := MeasureFiles(paths, measure.Options{Dims: map[string]int64{"batch": 1}})
-	for _, e := range entries {
-		if rel, err := filepath.Rel(dir, e.Path); err == nil {
-			e.Path = rel
+	return nil
+}
+
+// DemoSummary explains a demo result in two lines.
+func DemoSummary(res *budget.Result) string {
+	var broke, grew []string
+	for _, m := range res.Models {
+		for _, c := range m.Checks {
+			if c.Status == budget.Fail {
+				broke = append(broke, m.Path+" "+c.Metric+" "+c.Kind)
+			}
 		}
-		if e.Error != "" {
-			return entries, fmt.Errorf("%s: %s", e.Path, e.Error)
+		if m.Status != budget.Fail && m.Base != nil && m.Head != nil && m.Head.Params > m.Base.Params {
+			grew = append(grew, m.Path)
 		}
 	}
-	if err := report.MeasureText(w, entries); err != nil {
-		return entries, err
-	}
-	return entries, nil
+	return fmt.Sprintf("What happened: the retrain broke %d budget check(s) (%s), so CI would fail the pull request;\n"+
+		"%s grew but stayed within its limits and allowed growth. Each figure above was measured from the committed files.",
+		len(broke), strings.Join(broke, ", "), strings.Join(grew, ", "))
 }

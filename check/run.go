@@ -223,7 +223,7 @@ func worse(a, b budget.Status) budget.Status {
 
 // loadBudget reads and parses the budget file at a snapshot; nil when the
 // snapshot has none.
-func loadBudget(s *Snapshot, p string) (*budget.File, error) {
+func loadBudget(s *Snapshot, p, ref string) (*budget.File, error) {
 	if _, ok := s.Hash(p); !ok {
 		return nil, nil
 	}
@@ -231,7 +231,7 @@ func loadBudget(s *Snapshot, p string) (*budget.File, error) {
 	if err != nil {
 		return nil, err
 	}
-	f, err := budget.Parse(p+" (at "+s.Label+")", data)
+	f, err := budget.Parse(p+" (at "+ref+")", data)
 	if err != nil {
 		return nil, &BudgetFileError{Err: err}
 	}
@@ -243,11 +243,11 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	if bpath == "" {
 		bpath = DefaultBudgetFile
 	}
-	baseBudget, err := loadBudget(rg.Base, bpath)
+	baseBudget, err := loadBudget(rg.Base, bpath, rg.BaseRef)
 	if err != nil {
 		return nil, nil, err
 	}
-	headBudget, err := loadBudget(rg.Head, bpath)
+	headBudget, err := loadBudget(rg.Head, bpath, rg.HeadRef)
 	if err != nil {
 		return nil, nil, err
 	}

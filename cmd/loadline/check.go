@@ -19,7 +19,7 @@ import (
 )
 
 // version names this build in reports.
-const version = "loadline 0.1.0"
+const version = "0.1.0"
 
 const checkConventions = `Verdicts: each limit in the budget file is a check of the head's figure
 (fail above the limit, warn above warn_at of it); each growth rule a check

@@ -196,10 +196,12 @@ func newDemoCmd(stdout, stderr io.Writer) *cobra.Command {
 	var keep bool
 	cmd := &cobra.Command{
 		Use:   "demo",
-		Short: "Build invented demo models in a temporary folder and measure them",
-		Long: "Builds the models of an invented scenario (a bird detector for a porch camera,\n" +
-			"a wake-word spotter for a kitchen timer) with loadline's own graph builder,\n" +
-			"writes them as ONNX files into a temporary folder and measures them. Offline.",
+		Short: "Run the whole flow on an invented scenario in a temporary repository",
+		Long: "Builds a throwaway git repository for an invented company (a bird detector on a porch\n" +
+			"camera, a wake-word spotter on a kitchen timer; devices and models of loadline's own\n" +
+			"making), commits a baseline and a retrain that breaks one budget and grows another\n" +
+			"within budget, runs the check, and prints the terminal report and the markdown that\n" +
+			"would be posted on the pull request. Offline; exits 0.",
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			dir, err := os.MkdirTemp("", "loadline-demo-")
@@ -207,18 +209,30 @@ func newDemoCmd(stdout, stderr io.Writer) *cobra.Command {
 				return &exitError{exitEnviron, err}
 			}
 			if keep {
-				fmt.Fprintln(stderr, "demo folder:", dir)
+				fmt.Fprintln(stderr, "demo repository:", dir)
 			} else {
 				defer os.RemoveAll(dir)
 			}
-			if _, err := check.RunDemo(dir, stdout); err != nil {
-				return &exitError{exitBudget, err}
+			fmt.Fprintln(stdout, "== A throwaway repository for Wrenfield Labs (invented) ==")
+			if err := check.DemoRepo(dir, stdout); err != nil {
+				return &exitError{exitEnviron, err}
 			}
-			fmt.Fprintln(stdout, "\nThe figures above were computed from the files alone: shapes inferred for every tensor,\n"+
-				"parameters counted from the weights. `loadline measure FILE` does the same for your models.")
+			fmt.Fprintln(stdout, "\n== loadline check (branch retrain-160 against main) ==")
+			res, _, err := check.Run(check.Options{Dir: dir})
+			if err != nil {
+				return pipelineExit(err)
+			}
+			if err := report.CheckText(stdout, res, report.TextOptions{Color: report.ColorFor(stdout)}); err != nil {
+				return &exitError{exitEnviron, err}
+			}
+			fmt.Fprintln(stdout, "\n== The markdown loadline check --post would put on the pull request ==")
+			if err := report.CheckMarkdown(stdout, res, report.MarkdownOptions{Version: version}); err != nil {
+				return &exitError{exitEnviron, err}
+			}
+			fmt.Fprintln(stdout, "\n"+check.DemoSummary(res))
 			return nil
 		},
 	}
-	cmd.Flags().BoolVar(&keep, "keep", false, "keep the demo folder and print its path")
+	cmd.Flags().BoolVar(&keep, "keep", false, "keep the demo repository and print its path")
 	return cmd
 }

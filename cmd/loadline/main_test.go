@@ -126,12 +126,19 @@ func TestDemo(t *testing.T) {
 	if code := run([]string{"demo"}, &out, &errb); code != exitOK {
 		t.Fatalf("demo exit %d: %s", code, errb.String())
 	}
-	for _, want := range []string{"models/porch-cam/birdspot.onnx", "models/kitchen-timer/wakeword.onnx", "params"} {
-		if !strings.Contains(out.String(), want) {
-			t.Errorf("demo output lacks %q", want)
+	o := out.String()
+	// The retrain breaks the bird detector's ram limit (700 KiB deployed
+	// arena at 160×160 against 90 % of 512 KiB) and grows the wake-word
+	// spotter within budget.
+	for _, want := range []string{
+		"models/porch-cam/birdspot.onnx: ram 700.0 KiB > limit 460.8 KiB",
+		"1 model over budget, 1 within budget",
+		"<details>",
+		"What happened: the retrain broke 3 budget check(s)",
+		"models/kitchen-timer/wakeword.onnx grew but stayed within",
+	} {
+		if !strings.Contains(o, want) {
+			t.Errorf("demo output lacks %q:\n%s", want, o)
 		}
-	}
-	if strings.Contains(out.String(), "unresolved") {
-		t.Errorf("demo models have unresolved nodes:\n%s", out.String())
 	}
 }
