@@ -176,3 +176,61 @@ func FuzzInfer(f *testing.F) {
 		}
 	})
 }
+
+func TestHostileSplitToSequenceHugeAxis(t *testing.T) {
+	// SplitToSequence of a 2^40-long axis, into items of 1 (no split input,
+	// and a scalar split of 1): the sequence is too long to hold item by
+	// item, so it must stay of unknown length rather than allocate 2^40
+	// items.
+	huge := model.Known(1 << 40)
+	for _, tc := range []struct {
+		name string
+		ins  []string
+	}{{"no split", []string{"x"}}, {"scalar split", []string{"x", "one"}}} {
+		t.Run(tc.name, func(t *testing.T) {
+			g := &model.Graph{
+				Inputs:       []*model.ValueInfo{input("x", model.Float32, huge, model.Known(2))},
+				Initializers: []*model.Tensor{{Name: "one", DType: model.Int64, Dims: []int64{}, Data: rawInt64s(1)}},
+				Nodes:        []*model.Node{node("SplitToSequence", tc.ins, []string{"s"})},
+				Outputs:      []*model.ValueInfo{{Name: "s"}},
+			}
+			var res *Inference
+			var err error
+			n := allocDuring(func() { res, err = Infer(graphModel(g), InferOptions{}) })
+			if n > 16<<20 {
+				t.Fatalf("SplitToSequence of a 2^40 axis allocated %d bytes", n)
+			}
+			if err != nil {
+				t.Fatal(err)
+			}
+			if v := res.Values["s"]; v == nil || v.Type.Kind != model.KindSequence || v.SeqKnown {
+				t.Errorf("s: want a sequence of unknown length, got %+v", v)
+			}
+		})
+	}
+}
+
+func TestHostileSequenceMapUnequalLengths(t *testing.T) {
+	// SequenceMap over two sequences of 2 and 1 items: the spec requires
+	// equal lengths, so the node is an error (or left unresolved), never an
+	// index past the shorter sequence.
+	body := &model.Graph{
+		Name:    "body",
+		Inputs:  []*model.ValueInfo{input("a", model.Float32, model.Known(3)), input("b", model.Float32, model.Known(3))},
+		Nodes:   []*model.Node{node("Add", []string{"a", "b"}, []string{"c"})},
+		Outputs: []*model.ValueInfo{{Name: "c"}},
+	}
+	g := &model.Graph{
+		Inputs: []*model.ValueInfo{input("x", model.Float32, model.Known(3))},
+		Nodes: []*model.Node{
+			node("SequenceConstruct", []string{"x"}, []string{"short"}),
+			node("SequenceConstruct", []string{"x", "x"}, []string{"long"}),
+			node("SequenceMap", []string{"short", "long"}, []string{"out"}, &model.Attr{Name: "body", Kind: model.AttrGraph, Graph: body}),
+		},
+		Outputs: []*model.ValueInfo{{Name: "out"}},
+	}
+	res, err := Infer(graphModel(g), InferOptions{})
+	if err == nil && (res.Values["out"] == nil || res.Values["out"].SeqKnown) {
+		t.Errorf("out: want an error or a sequence of unknown length, got %+v", res.Values["out"])
+	}
+}

@@ -546,7 +546,9 @@ func inferSplitToSequence(c *ctx) ([]*Value, error) {
 		return tensor(in.Type.DType, o)
 	}
 	if !c.has(1) {
-		if !s[axis].IsKnown() {
+		if !s[axis].IsKnown() || s[axis].Value > maxUnroll {
+			// Too long to hold item by item (maxUnroll bounds what a
+			// SequenceMap over it would run): a sequence of unknown length.
 			return []*Value{seqValue(el(model.Known(1), !keep).Type, nil, false)}, nil
 		}
 		items := make([]*Value, s[axis].Value)
@@ -560,7 +562,7 @@ func inferSplitToSequence(c *ctx) ([]*Value, error) {
 		return nil, err
 	}
 	if sv := c.input(1); sv.Type.RankKnown && len(sv.Type.Shape) == 0 {
-		if !s[axis].IsKnown() || sizes[0] <= 0 {
+		if !s[axis].IsKnown() || sizes[0] <= 0 || (s[axis].Value-1)/sizes[0]+1 > maxUnroll {
 			return []*Value{seqValue(el(symbolic("split"), false).Type, nil, false)}, nil
 		}
 		d, k := s[axis].Value, sizes[0]
@@ -647,6 +649,9 @@ func inferSequenceMap(c *ctx) ([]*Value, error) {
 			if !v.SeqKnown {
 				length = -1
 				break
+			}
+			if length >= 0 && len(v.Seq) != length {
+				return nil, fmt.Errorf("input sequences have %d and %d items; SequenceMap needs equal lengths", length, len(v.Seq))
 			}
 			length = len(v.Seq)
 		}
