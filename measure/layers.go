@@ -43,10 +43,6 @@ func layersOf(inf *Inference, costs *Costs, plan *MemoryPlan) []Layer {
 	for _, p := range plan.Placements {
 		offsets[p.Name] = p
 	}
-	costOf := make(map[string]NodeCost, len(costs.Nodes))
-	for _, c := range costs.Nodes {
-		costOf[c.Node] = c
-	}
 	out := make([]Layer, 0, len(g.Nodes))
 	for i, n := range g.Nodes {
 		l := Layer{Step: i, Node: nodeName(n, i), Op: n.Op, Offset: -1}
@@ -64,8 +60,10 @@ func layersOf(inf *Inference, costs *Costs, plan *MemoryPlan) []Layer {
 				l.Bytes += p.Size
 			}
 		}
-		if c, ok := costOf[l.Node]; ok {
-			l.MACs, l.FLOPs = c.MACs, c.FLOPs
+		// costs.Nodes[i] is node i (CountCosts keeps the node order); by
+		// name it would not do, since node names need not be unique.
+		if i < len(costs.Nodes) {
+			l.MACs, l.FLOPs = costs.Nodes[i].MACs, costs.Nodes[i].FLOPs
 		}
 		if i < len(plan.LiveBytesByStep) {
 			l.LiveBytes = plan.LiveBytesByStep[i]
