@@ -259,12 +259,10 @@ func (r *Repo) readBlob(h plumbing.Hash, p, label string) ([]byte, error) {
 		return nil, &EnvError{Err: fmt.Errorf("%s at %s: %w", p, label, err)}
 	}
 	defer rd.Close()
-	data := make([]byte, 0, blob.Size)
-	buf := bytes.NewBuffer(data)
-	if _, err := io.Copy(buf, rd); err != nil {
+	data := make([]byte, blob.Size)
+	if _, err := io.ReadFull(rd, data); err != nil {
 		return nil, &EnvError{Err: fmt.Errorf("%s at %s: reading blob %s: %w", p, label, h, err)}
 	}
-	data = buf.Bytes()
 	if ptr, ok := parseLFSPointer(data); ok {
 		return r.readLFS(ptr, p, label)
 	}

@@ -14,9 +14,13 @@ import (
 // convolutional stem and followed by an exporter-style shape subgraph
 // (Shape → Gather → Concat → Reshape), so that decoding, folding and
 // inference all have work.
-func Build(mb int) (*model.Model, error) {
+func Build(mb int) (*model.Model, error) { return BuildSeeded(mb, 0) }
+
+// BuildSeeded is Build with the weights drawn from another seed, so that
+// several models of one size are different files.
+func BuildSeeded(mb int, seed uint64) (*model.Model, error) {
 	layers := max(1, mb*1000*1000/(1024*1024*4))
-	b := build.New(fmt.Sprintf("bench-%dmb", mb), 13)
+	b := build.New(fmt.Sprintf("bench-%dmb", mb), 13, build.Seed(seed))
 	x := b.InputShape("x", model.Float32, model.Shape{model.Sym("batch"), model.Known(4), model.Known(16), model.Known(16)})
 	x = b.Conv("stem", x, build.Conv2D(4, 3, 1, 1).WithBias())
 	x = b.Relu("stem_relu", x)
