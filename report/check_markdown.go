@@ -370,11 +370,12 @@ func footer(opt MarkdownOptions) string {
 		v = "loadline " + opt.Version
 	}
 	return "---\n<sub>" + html.EscapeString(v) + ". " +
-		"Every figure is a static estimate computed from the model file, not a measurement on the device. " +
-		"MACs are the multiply-accumulates of convolution, matrix-product and recurrent layers. " +
-		"FLOPs are 2 × MACs plus one per output element of elementwise, activation, pooling, normalisation and reduction layers. " +
-		"The arena is the activation memory an embedded runtime allocates, planned greedy-by-size over tensor lifetimes after the deployment rewrites (fused activations, folded batch norm, aliased reshapes). " +
-		"Headroom is the limit minus the head figure, with its share of the limit for an absolute limit; a growth check's limit is the largest head figure its allowed growth permits.</sub>\n"
+		"Figures are static estimates from the model file, not measurements on the device. " +
+		"MACs: multiply-accumulates of convolution, matrix-product and recurrent layers. " +
+		"FLOPs: 2 × MACs (a 1-GMAC model is a 2-GFLOP model), plus one per output element of elementwise, activation and normalisation layers, " +
+		"one per window element per output element of pooling, one per input element of reductions. " +
+		"Arena: activation memory as an embedded runtime allocates it, planned greedy-by-size over tensor lifetimes after fusing activations and batch norm, aliasing views and folding quantize/dequantize pairs. " +
+		"Headroom: limit minus head figure (with its share of an absolute limit); a growth check's limit is the largest head figure its growth allows.</sub>\n"
 }
 
 func daysLeft(now, until time.Time) string {

@@ -190,3 +190,24 @@ func TestDaysLeft(t *testing.T) {
 		}
 	}
 }
+
+// TestFooterFLOPsRule checks that the footer states the FLOPs rule as
+// measure/cost.go counts it (and DESIGN.md "Metric conventions" defines
+// it): one per window element per output for pooling and one per input
+// element for reductions, not one per output element.
+func TestFooterFLOPsRule(t *testing.T) {
+	f := footer(MarkdownOptions{})
+	for _, want := range []string{
+		"FLOPs: 2 × MACs",
+		"a 1-GMAC model is a 2-GFLOP model",
+		"one per window element per output element of pooling",
+		"one per input element of reductions",
+	} {
+		if !strings.Contains(f, want) {
+			t.Errorf("footer lacks %q:\n%s", want, f)
+		}
+	}
+	if strings.Contains(f, "pooling, normalisation and reduction layers") {
+		t.Errorf("footer counts pooling and reductions per output element:\n%s", f)
+	}
+}
