@@ -106,7 +106,8 @@ func noDevice(fig *Figures, why string) *Figures {
 // with both places named. Each limit gives a check: fail when the figure
 // is above the limit, warn when above warn_at of it, pass otherwise; each
 // growth allowance gives a check against the base figure. A waiver in
-// force for the model and metric turns a failure into waived. Removed
+// force for the model and metric turns a failure into waived, and a model
+// whose every failure is waived (and nothing warns) is waived. Removed
 // models pass with a note; models that could not be measured fail; models
 // no rule matches warn (fail when strict). Expired waivers are failing
 // findings. The verdict is the worst status of models and findings.
@@ -306,8 +307,15 @@ func (e *evaluation) model(in Input) ModelResult {
 			mr.Checks = append(mr.Checks, e.growth(p, metric, srcs, mr.Base, mr.Head))
 		}
 	}
+	waived := false
 	for _, c := range mr.Checks {
 		mr.Status = worse(mr.Status, c.Status)
+		waived = waived || c.Status == Waived
+	}
+	if mr.Status == Pass && waived {
+		// Over budget but excused: reports list it apart from the models
+		// within budget; the verdict still counts it as a pass.
+		mr.Status = Waived
 	}
 	return mr
 }

@@ -322,3 +322,39 @@ func TestDeploy(t *testing.T) {
 		t.Errorf("Deploy changed its input: %v", in.Unknown)
 	}
 }
+
+// TestEvaluateWaivedModelStatus: a model whose only failure is waived has
+// status waived (reports count it "over budget but waived" and list it,
+// not among the models within budget); a waived check next to a warning
+// leaves the model at warn; the verdict counts waived as pass.
+func TestEvaluateWaivedModelStatus(t *testing.T) {
+	// Without the expired waiver, which fails the verdict on its own.
+	src, _, _ := strings.Cut(evalBudget, "  - path: models/porch/old.onnx")
+	f := mustParse(t, src)
+	// parcel.onnx: ram 300 KiB > the 288 KiB limit, waived until 2027-01-31.
+	waivedOnly := Input{Path: "models/porch/parcel.onnx", Change: Added, Head: fig(300*1024, 1000, 1000, 1e6)}
+	// and MACs 58M: past warn_at (90% of 60M = 54M), under the limit.
+	waivedAndWarn := Input{Path: "models/porch/parcel.onnx", Change: Added, Head: fig(300*1024, 1000, 1000, 58e6)}
+	for _, tt := range []struct {
+		name    string
+		in      Input
+		status  Status
+		verdict Status
+	}{
+		{"waived only", waivedOnly, Waived, Pass},
+		{"waived and a warning", waivedAndWarn, Warn, Warn},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			res := f.Evaluate([]Input{tt.in}, EvalOptions{Today: today})
+			if c := checkOf(t, res.Models[0], MetricRAM, "limit"); c.Status != Waived {
+				t.Fatalf("ram check %s, want waived: %s", c.Status, c.Reason)
+			}
+			if got := res.Models[0].Status; got != tt.status {
+				t.Errorf("model status %s, want %s", got, tt.status)
+			}
+			if res.Verdict != tt.verdict {
+				t.Errorf("verdict %s, want %s", res.Verdict, tt.verdict)
+			}
+		})
+	}
+}
