@@ -42,7 +42,7 @@ func BenchmarkMeasureLarge(b *testing.B) {
 		if err != nil {
 			b.Fatal(err)
 		}
-		met, err := Measure(m, int64(len(data)), Options{})
+		met, err := Measure(m, int64(len(data)), Options{Dims: map[string]int64{"batch": 1}})
 		if err != nil {
 			b.Fatal(err)
 		}

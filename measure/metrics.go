@@ -97,10 +97,10 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	out.Unresolved = appendUnresolved(out.Unresolved, plan.Unresolved)
 	out.Unresolved = appendUnresolved(out.Unresolved, dep.Unresolved)
 	out.MemoryDetail = MemoryDetail{
-		PeakStep:        plan.PeakStep,
-		LiveAtPeak:      plan.LiveAtPeak,
-		ArenaRatio:      plan.Ratio(),
-		DeployedRatio:   dep.Ratio(),
+		PeakStep:      plan.PeakStep,
+		LiveAtPeak:    plan.LiveAtPeak,
+		ArenaRatio:    plan.Ratio(),
+		DeployedRatio: dep.Ratio(),
 	}
 	if out.MemoryDetail.LiveAtPeak == nil {
 		out.MemoryDetail.LiveAtPeak = []string{}

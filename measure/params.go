@@ -1,6 +1,7 @@
 package measure
 
 import (
+	"bytes"
 	"encoding/binary"
 	"sort"
 
@@ -87,11 +88,7 @@ func countZeros(t *model.Tensor) int64 {
 	var zeros int64
 	switch t.DType {
 	case model.Float32:
-		for i := 0; i+4 <= len(b); i += 4 {
-			if binary.LittleEndian.Uint32(b[i:])&0x7fffffff == 0 {
-				zeros++
-			}
-		}
+		zeros = zeros32(b, 0x7fffffff)
 	case model.Float64:
 		for i := 0; i+8 <= len(b); i += 8 {
 			if binary.LittleEndian.Uint64(b[i:])&0x7fffffffffffffff == 0 {
@@ -139,11 +136,7 @@ func countZeros(t *model.Tensor) int64 {
 		// (FNUZ: 0x80 is NaN): an element is zero when all its bytes are.
 		switch t.DType.Bits() {
 		case 8:
-			for _, x := range b {
-				if x == 0 {
-					zeros++
-				}
-			}
+			zeros = int64(bytes.Count(b, []byte{0}))
 		case 16:
 			for i := 0; i+2 <= len(b); i += 2 {
 				if binary.LittleEndian.Uint16(b[i:]) == 0 {
@@ -151,11 +144,7 @@ func countZeros(t *model.Tensor) int64 {
 				}
 			}
 		case 32:
-			for i := 0; i+4 <= len(b); i += 4 {
-				if binary.LittleEndian.Uint32(b[i:]) == 0 {
-					zeros++
-				}
-			}
+			zeros = zeros32(b, 0xffffffff)
 		case 64:
 			for i := 0; i+8 <= len(b); i += 8 {
 				if binary.LittleEndian.Uint64(b[i:]) == 0 {
@@ -258,4 +247,46 @@ type DTypeBytes struct {
 	DType  string `json:"dtype"`
 	Params int64  `json:"params"`
 	Bytes  int64  `json:"bytes"`
+}
+
+// zeros32 counts the 32-bit little-endian elements of b whose bits under
+// mask are all zero. The weights of a large model are scanned once per
+// measure, so it skips 32 bytes at a time when none of their elements can
+// be zero: within a 64-bit word of two masked lanes, (v − 1 per lane) &^ v
+// has a lane's top bit set when that lane is zero (and, through the borrow,
+// possibly the lane above it), so a clear result proves both lanes non-zero.
+func zeros32(b []byte, mask uint32) int64 {
+	const lanes1, high = 0x0000000100000001, 0x8000000080000000
+	m := uint64(mask) * lanes1
+	// With a mask keeping the sign bit (integers), a lane's own top bit
+	// would defeat the test: fall back to the simple loop.
+	var z int64
+	i := 0
+	if mask&(1<<31) == 0 {
+		for rest := b; len(rest) >= 32; rest = rest[32:] {
+			w := rest[:32:32]
+			w0 := binary.LittleEndian.Uint64(w[0:8]) & m
+			w1 := binary.LittleEndian.Uint64(w[8:16]) & m
+			w2 := binary.LittleEndian.Uint64(w[16:24]) & m
+			w3 := binary.LittleEndian.Uint64(w[24:32]) & m
+			i += 32
+			if ((w0-lanes1)&^w0|(w1-lanes1)&^w1|(w2-lanes1)&^w2|(w3-lanes1)&^w3)&high == 0 {
+				continue
+			}
+			for _, v := range [4]uint64{w0, w1, w2, w3} {
+				if uint32(v) == 0 {
+					z++
+				}
+				if v>>32 == 0 {
+					z++
+				}
+			}
+		}
+	}
+	for ; i+4 <= len(b); i += 4 {
+		if binary.LittleEndian.Uint32(b[i:])&mask == 0 {
+			z++
+		}
+	}
+	return z
 }

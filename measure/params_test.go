@@ -3,6 +3,7 @@ package measure
 import (
 	"encoding/binary"
 	"math"
+	"math/rand/v2"
 	"testing"
 
 	"github.com/loadline/loadline/model"
@@ -159,5 +160,35 @@ func TestSparsity(t *testing.T) {
 	}
 	if met, err = Measure(m, 0, Options{}); err != nil || met.Sparsity != -1 {
 		t.Errorf("declared weights: sparsity %g (err %v), want -1", met.Sparsity, err)
+	}
+}
+
+// TestZeros32MatchesSimpleCount compares the word-at-a-time scan with a
+// plain element loop on random data rich in zeros, negative zeros and
+// values near the lane boundaries (hand-made property test).
+func TestZeros32MatchesSimpleCount(t *testing.T) {
+	rng := rand.New(rand.NewPCG(7, 11))
+	special := []uint32{0, 0x80000000, 1, 0x7fffffff, 0xffffffff, 0x00000100, 0x80000001}
+	for trial := 0; trial < 500; trial++ {
+		n := rng.IntN(200)
+		b := make([]byte, 4*n+rng.IntN(4))
+		for i := 0; i < n; i++ {
+			v := rng.Uint32()
+			if rng.IntN(3) == 0 {
+				v = special[rng.IntN(len(special))]
+			}
+			binary.LittleEndian.PutUint32(b[4*i:], v)
+		}
+		for _, mask := range []uint32{0x7fffffff, 0xffffffff} {
+			var want int64
+			for i := 0; i+4 <= len(b); i += 4 {
+				if binary.LittleEndian.Uint32(b[i:])&mask == 0 {
+					want++
+				}
+			}
+			if got := zeros32(b, mask); got != want {
+				t.Fatalf("trial %d mask %#x: zeros32 = %d, simple loop = %d", trial, mask, got, want)
+			}
+		}
 	}
 }

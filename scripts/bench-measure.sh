@@ -23,7 +23,7 @@ t() { # prints the best wall time of 3 runs, in seconds
   echo "$best"
 }
 cat_s=$(t cat "$f")
-ll_s=$(t "$work/loadline" measure "$f")
+ll_s=$(t "$work/loadline" measure --dim batch=1 "$f")
 py_s=$(t /usr/bin/python3 -c "import onnx,sys; onnx.shape_inference.infer_shapes(onnx.load(sys.argv[1]))" "$f")
 printf 'file: %s bytes\n' "$(stat -c %s "$f")"
 printf 'cat >/dev/null        %8.3f s\n' "$cat_s"
