@@ -269,7 +269,11 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	want := func(p string) bool {
 		return p != bpath && (IsModelPath(p) || len(inForce.Match(p)) > 0)
 	}
-	changes, err := Diff(rg.Base, rg.Head, want)
+	all, err := Diff(rg.Base, rg.Head, func(p string) bool { return p != bpath })
+	if err != nil {
+		return nil, nil, err
+	}
+	changes, err := withDataChanges(rg, all, want)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -389,4 +393,44 @@ func commitOf(s *Snapshot) string {
 // isEnvMessage recognises measurement errors caused by missing objects.
 func isEnvMessage(msg string) bool {
 	return strings.Contains(msg, "is missing from the object store") || strings.Contains(msg, "not in the local LFS store")
+}
+
+// withDataChanges keeps the changes of model files and adds, as modified,
+// the unchanged models of a folder in which another file changed: a model
+// whose external data file (weights.bin beside model.onnx) changed, or was
+// removed, has changed too, though its own blob has not.
+func withDataChanges(rg *Range, all []FileChange, want func(string) bool) ([]FileChange, error) {
+	var out []FileChange
+	dataDirs := map[string]bool{}
+	listed := map[string]bool{}
+	for _, c := range all {
+		if want(c.Path) || (c.OldPath != "" && want(c.OldPath)) {
+			out = append(out, c)
+			listed[c.Path] = true
+			continue
+		}
+		dataDirs[path.Dir(c.Path)] = true
+		if c.OldPath != "" {
+			dataDirs[path.Dir(c.OldPath)] = true
+		}
+	}
+	if len(dataDirs) == 0 {
+		return out, nil
+	}
+	paths, err := rg.Head.Paths()
+	if err != nil {
+		return nil, err
+	}
+	for _, p := range paths {
+		if listed[p] || !want(p) || !dataDirs[path.Dir(p)] {
+			continue
+		}
+		oh, inBase := rg.Base.Hash(p)
+		nh, _ := rg.Head.Hash(p)
+		if inBase {
+			out = append(out, FileChange{Path: p, Kind: "modified", OldHash: oh, NewHash: nh})
+		}
+	}
+	sortChanges(out)
+	return out, nil
 }

@@ -76,7 +76,10 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	if out.Unresolved == nil {
 		out.Unresolved = []Unresolved{}
 	}
-	ws := weights(inf)
+	ws, err := weights(inf)
+	if err != nil {
+		return nil, err
+	}
 	for _, w := range ws {
 		out.Params += w.Elements
 		out.ParamBytes += w.Bytes

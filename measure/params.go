@@ -3,6 +3,7 @@ package measure
 import (
 	"bytes"
 	"encoding/binary"
+	"fmt"
 	"sort"
 
 	"github.com/loadline/loadline/model"
@@ -74,16 +75,21 @@ type ParamTensor struct {
 // tensors scanned.
 
 // countZeros counts the elements of t that are exactly zero, or returns -1
-// when t holds no readable values. It loops over the raw bytes at the
-// tensor's width, without converting elements.
-func countZeros(t *model.Tensor) int64 {
+// when t holds no values (declared only, strings). It loops over the raw
+// bytes at the tensor's width, without converting elements. A weight whose
+// stored values cannot be read (a missing or short external data file) is
+// an error: the model cannot be deployed as it is.
+func countZeros(t *model.Tensor) (int64, error) {
 	n := t.Elements()
 	if n < 0 || !t.HasData() || t.DType.Bits() == 0 {
-		return -1
+		return -1, nil
 	}
 	b, err := t.RawBytes()
-	if err != nil || t.DType.StorageBytes(n) != int64(len(b)) {
-		return -1
+	if err != nil {
+		return -1, fmt.Errorf("weight %q: %w", t.Name, err)
+	}
+	if t.DType.StorageBytes(n) != int64(len(b)) {
+		return -1, nil
 	}
 	var zeros int64
 	switch t.DType {
@@ -152,15 +158,15 @@ func countZeros(t *model.Tensor) int64 {
 				}
 			}
 		default:
-			return -1
+			return -1, nil
 		}
 	}
-	return zeros
+	return zeros, nil
 }
 
 // weights finds the constants of the main graph used as weights, in the
 // order their first consumer appears.
-func weights(inf *Inference) []ParamTensor {
+func weights(inf *Inference) ([]ParamTensor, error) {
 	g := inf.Model.Graph
 	consts := map[string]*model.Tensor{}
 	for _, t := range g.Initializers {
@@ -177,6 +183,7 @@ func weights(inf *Inference) []ParamTensor {
 	}
 	seen := map[string]bool{}
 	var out []ParamTensor
+	var readErr error
 	var visit func(nodes []*model.Node, vals map[string]*Value)
 	visit = func(nodes []*model.Node, vals map[string]*Value) {
 		for _, n := range nodes {
@@ -195,7 +202,11 @@ func weights(inf *Inference) []ParamTensor {
 					continue
 				}
 				seen[name] = true
-				out = append(out, ParamTensor{Name: name, DType: t.DType, Elements: t.Elements(), Bytes: t.StorageBytes(), Zeros: countZeros(t)})
+				zeros, err := countZeros(t)
+				if err != nil && readErr == nil {
+					readErr = err
+				}
+				out = append(out, ParamTensor{Name: name, DType: t.DType, Elements: t.Elements(), Bytes: t.StorageBytes(), Zeros: zeros})
 			}
 			// Subgraph bodies read outer constants too.
 			for _, a := range n.Attrs {
@@ -208,7 +219,7 @@ func weights(inf *Inference) []ParamTensor {
 		}
 	}
 	visit(g.Nodes, inf.Values)
-	return out
+	return out, readErr
 }
 
 func mergedVals(outer, inner map[string]*Value) map[string]*Value {

@@ -1,0 +1,156 @@
+package check
+
+import (
+	"errors"
+	"fmt"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/model"
+	"github.com/loadline/loadline/model/build"
+	"github.com/loadline/loadline/model/onnx"
+)
+
+// runBudget is an invented budget for the pipeline tests: small-model
+// params 260 (width 8) and 516 (width 16) pass, 6,404 (width 200) fails.
+const runBudget = `version: 1
+devices:
+  porch-cam: {ram: 4MiB, flash: 16MiB}
+models:
+  - path: "**/*.onnx"
+    device: porch-cam
+    limits: {params: 5k}
+`
+
+func TestPrePushChecksPushedCommits(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	g.write("m.onnx", smallModel(t, 8))
+	remoteTip := g.commit("base")
+	g.write("m.onnx", smallModel(t, 200))
+	local := g.commit("over budget")
+	// git's pre-push stdin: <local ref> <local sha> <remote ref> <remote sha>.
+	stdin := fmt.Sprintf("refs/heads/main %s refs/heads/main %s\n", local, remoteTip)
+	res, _, err := Run(Options{Dir: g.dir, PrePush: strings.NewReader(stdin), NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Verdict != budget.Fail || len(res.Models) != 1 {
+		t.Fatalf("verdict %s with %d models, want fail with 1", res.Verdict, len(res.Models))
+	}
+	// A deletion pushes nothing to judge.
+	zero := strings.Repeat("0", 40)
+	res, _, err = Run(Options{Dir: g.dir, PrePush: strings.NewReader(fmt.Sprintf("(delete) %s refs/heads/old %s\n", zero, remoteTip)), NoCache: true})
+	if err != nil || res.Verdict != budget.Pass || len(res.Models) != 0 {
+		t.Fatalf("deletion: %v, %+v", err, res)
+	}
+}
+
+// externalModel is a model whose Conv weight lives in weights.bin beside it.
+func externalModel(t *testing.T, width int64) (modelBytes, weightBytes []byte) {
+	t.Helper()
+	b := build.New("ext", 13)
+	x := b.Input("x", model.Float32, 1, 3, 8, 8)
+	x = b.Conv("conv", x, build.Conv2D(width, 3, 1, 1))
+	b.Output(x)
+	m, err := b.Model()
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := m.Graph.Initializers[0]
+	weightBytes, err = w.RawBytes()
+	if err != nil {
+		t.Fatal(err)
+	}
+	weightBytes = append([]byte{}, weightBytes...)
+	w.Data = model.TensorData{}
+	data, err := onnx.EncodeWithExternal(m, func(*model.Tensor) (string, int64) { return "weights.bin", 0 })
+	if err != nil {
+		t.Fatal(err)
+	}
+	return data, weightBytes
+}
+
+func TestExternalDataAtTheSameRevision(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	m8, w8 := externalModel(t, 8)
+	g.write("models/ext/model.onnx", m8)
+	g.write("models/ext/weights.bin", w8)
+	g.commit("base")
+	m16, w16 := externalModel(t, 16)
+	g.write("models/ext/model.onnx", m16)
+	g.write("models/ext/weights.bin", w16)
+	g.commit("wider")
+	// The working tree holds something else entirely: what is checked is
+	// what is committed.
+	g.write("models/ext/weights.bin", []byte("not weights"))
+	r, err := OpenRepo(g.dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Models) != 1 {
+		t.Fatalf("%d models", len(res.Models))
+	}
+	m := res.Models[0]
+	// Conv 3→w, 3×3, no bias: 27·w params; sparsity scan reads the external
+	// bytes, so a wrong or missing file would show as an error.
+	if m.Error != "" || m.Base.Params != 27*8 || m.Head.Params != 27*16 {
+		t.Fatalf("error %q, params %d → %d; want 216 → 432", m.Error, m.Base.Params, m.Head.Params)
+	}
+	_ = r
+	// A model whose external file is not committed fails with a message
+	// that names it.
+	g.git("rm", "-q", "--cached", "models/ext/weights.bin")
+	g.git("commit", "-q", "-m", "forgot the weights")
+	res, _, err = Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
+	if err == nil && (len(res.Models) == 0 || !strings.Contains(res.Models[0].Error, "weights.bin")) {
+		t.Fatalf("missing external data: want an error naming weights.bin, got %+v", res.Models)
+	}
+}
+
+func TestShallowCheckIsEnvironmentError(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	g.write("m.onnx", smallModel(t, 8))
+	base := g.commit("base")
+	g.write("m.onnx", smallModel(t, 12))
+	g.commit("change")
+	clone := filepath.Join(t.TempDir(), "clone")
+	if out, err := exec.Command("git", "clone", "-q", "--depth", "1", "file://"+g.dir, clone).CombinedOutput(); err != nil {
+		t.Fatalf("clone: %v %s", err, out)
+	}
+	_, _, err := Run(Options{Dir: clone, Base: base})
+	var env *EnvError
+	if !errors.As(err, &env) || !strings.Contains(err.Error(), "shallow") {
+		t.Fatalf("want an environment error about the shallow clone, got %v", err)
+	}
+}
+
+func TestGitHubBaseFromEnvironment(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	g.write("m.onnx", smallModel(t, 8))
+	g.commit("base")
+	g.git("branch", "release")
+	g.git("checkout", "-q", "-b", "feature")
+	g.write("m.onnx", smallModel(t, 200))
+	g.commit("change")
+	// GITHUB_BASE_REF names the branch; loadline looks it up on origin.
+	g.git("update-ref", "refs/remotes/origin/release", "release")
+	env := map[string]string{"GITHUB_BASE_REF": "release"}
+	res, _, err := Run(Options{Dir: g.dir, Getenv: func(k string) string { return env[k] }, NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Base.Ref != "origin/release" || res.Verdict != budget.Fail {
+		t.Fatalf("base %q verdict %s", res.Base.Ref, res.Verdict)
+	}
+}
