@@ -57,6 +57,13 @@ const conventions = `Figures (static estimates from the model file; measure on t
                Nodes whose shapes have unbound symbolic dims are listed as
                unresolved and left out; bind them with --dim batch=1.
   sparsity     share of weight elements exactly zero, read from the weight bytes.
+  activations  graph view: in the file's node order, each run-time tensor is live
+               from its producer's step through its last consumer's; peak live =
+               the largest sum at one step (a lower bound for any allocator); arena =
+               an offset plan, greedy by size (Pisarchyk & Lee 2020), ≥ peak.
+               Deployed view: the same after BatchNormalization folding, activation
+               fusion, view aliasing and QuantizeLinear/DequantizeLinear folding
+               (each switchable; in-place depthwise off unless asked).
   shapes       inferred for every tensor; symbolic dims stay symbols unless bound
                with --dim NAME=VALUE. Nodes whose shapes cannot be inferred are
                listed as unresolved, with the reason.
