@@ -34,8 +34,8 @@ var shapeOps = map[string]opRule{
 	"ConstantOfShape": {infer: inferConstantOfShape},
 	"Constant":        {infer: inferConstant},
 	"Pad":             {infer: inferPad},
-	"DepthToSpace":    {infer: inferDepthToSpace},
-	"SpaceToDepth":    {infer: inferSpaceToDepth},
+	"DepthToSpace":    {infer: blockRearrange(true)},
+	"SpaceToDepth":    {infer: blockRearrange(false)},
 	"EyeLike":         {infer: inferEyeLike},
 	"OneHot":          {infer: inferOneHot},
 	"NonZero":         {infer: inferNonZero},
@@ -974,36 +974,26 @@ func inferPad(c *ctx) ([]*Value, error) {
 	return []*Value{tensor(in.Type.DType, out)}, nil
 }
 
-func inferDepthToSpace(c *ctx) ([]*Value, error) {
-	s, err := c.shape(0)
-	if err != nil {
-		return nil, err
+// blockRearrange is DepthToSpace (toSpace) and SpaceToDepth: channels
+// divided or multiplied by blocksize², height and width the other way.
+func blockRearrange(toSpace bool) func(c *ctx) ([]*Value, error) {
+	return func(c *ctx) ([]*Value, error) {
+		s, err := c.shape(0)
+		if err != nil {
+			return nil, err
+		}
+		if len(s) != 4 {
+			return nil, fmt.Errorf("input must be 4-D, has rank %d", len(s))
+		}
+		b := model.Known(c.attrInt("blocksize", 0))
+		if b.Value <= 0 {
+			return nil, fmt.Errorf("blocksize must be positive")
+		}
+		if toSpace {
+			return []*Value{tensor(c.dtype(0), model.Shape{s[0], dimDiv(s[1], dimMul(b, b)), dimMul(s[2], b), dimMul(s[3], b)})}, nil
+		}
+		return []*Value{tensor(c.dtype(0), model.Shape{s[0], dimMul(s[1], dimMul(b, b)), dimDiv(s[2], b), dimDiv(s[3], b)})}, nil
 	}
-	if len(s) != 4 {
-		return nil, fmt.Errorf("input must be 4-D, has rank %d", len(s))
-	}
-	b := model.Known(c.attrInt("blocksize", 0))
-	if b.Value <= 0 {
-		return nil, fmt.Errorf("blocksize must be positive")
-	}
-	out := model.Shape{s[0], dimDiv(s[1], dimMul(b, b)), dimMul(s[2], b), dimMul(s[3], b)}
-	return []*Value{tensor(c.dtype(0), out)}, nil
-}
-
-func inferSpaceToDepth(c *ctx) ([]*Value, error) {
-	s, err := c.shape(0)
-	if err != nil {
-		return nil, err
-	}
-	if len(s) != 4 {
-		return nil, fmt.Errorf("input must be 4-D, has rank %d", len(s))
-	}
-	b := model.Known(c.attrInt("blocksize", 0))
-	if b.Value <= 0 {
-		return nil, fmt.Errorf("blocksize must be positive")
-	}
-	out := model.Shape{s[0], dimMul(s[1], dimMul(b, b)), dimDiv(s[2], b), dimDiv(s[3], b)}
-	return []*Value{tensor(c.dtype(0), out)}, nil
 }
 
 func inferEyeLike(c *ctx) ([]*Value, error) {
