@@ -2,10 +2,12 @@ package check
 
 import (
 	"errors"
+	"fmt"
 	"os"
 	"os/exec"
 	"path/filepath"
 	"strings"
+	"sync"
 	"testing"
 
 	"github.com/loadline/loadline/measure"
@@ -369,5 +371,42 @@ func TestCacheWarmAndCorrupt(t *testing.T) {
 	measureBlobs(jobs, measure.Options{}, cache, &healed)
 	if healed.CacheHits.Load() != 2 {
 		t.Errorf("corrupt entries were not rewritten: hits %d", healed.CacheHits.Load())
+	}
+}
+
+// TestCacheConcurrentRuns: two checks of the same change at once share the
+// cache without corrupting it; a third finds every entry.
+func TestCacheConcurrentRuns(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte("version: 1\ndevices:\n  d: {ram: 64MiB}\nmodels:\n  - path: \"*.onnx\"\n    device: d\n    limits: {params: 1M}\n"))
+	for i := 0; i < 6; i++ {
+		g.write(fmt.Sprintf("m%d.onnx", i), smallModel(t, int64(4+i)))
+	}
+	g.commit("base")
+	for i := 0; i < 6; i++ {
+		g.write(fmt.Sprintf("m%d.onnx", i), smallModel(t, int64(10+i)))
+	}
+	g.commit("change")
+	var wg sync.WaitGroup
+	errs := make([]error, 4)
+	for k := range errs {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			_, _, errs[k] = Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD"})
+		}()
+	}
+	wg.Wait()
+	for _, err := range errs {
+		if err != nil {
+			t.Fatal(err)
+		}
+	}
+	res, st, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if st.Measured.Load() != 0 || st.CacheHits.Load() != 12 || len(res.Models) != 6 {
+		t.Errorf("after concurrent runs: measured %d, hits %d, models %d; want 0, 12, 6", st.Measured.Load(), st.CacheHits.Load(), len(res.Models))
 	}
 }

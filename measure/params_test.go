@@ -196,3 +196,30 @@ func TestZeros32MatchesSimpleCount(t *testing.T) {
 		}
 	}
 }
+
+// TestDeployedArenaQuantized: the int8 QDQ twin's deployed arena is a
+// quarter of the float model's (common practice: int8 activations take a
+// quarter of float32's bytes; the QDQ pairs fold away in the deployed view).
+func TestDeployedArenaQuantized(t *testing.T) {
+	f, err := build.MobileNetV2(build.Options{Declared: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	q, err := build.MobileNetV2QDQ(build.Options{Declared: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	mf, err := Measure(f, 0, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	mq, err := Measure(q, 0, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ratio := float64(mq.Memory.Deployed.ArenaBytes) / float64(mf.Memory.Deployed.ArenaBytes)
+	t.Logf("deployed arena float32 %d, int8 %d, ratio %.3f", mf.Memory.Deployed.ArenaBytes, mq.Memory.Deployed.ArenaBytes, ratio)
+	if ratio < 0.24 || ratio > 0.26 {
+		t.Errorf("int8/float32 deployed arena ratio %.3f, want about 0.25", ratio)
+	}
+}
