@@ -199,8 +199,9 @@ func cells(m *budget.ModelResult, c *budget.Check) row {
 	case c.Base != nil:
 		base, hasBase = *c.Base, true
 	case m.Base != nil:
-		// Evaluation sets Base on growth checks only; a limit check's base
-		// figure is the model's.
+		// Evaluation sets Base on every check of a model with a base
+		// figure; a result built elsewhere may not, and then the model's
+		// base figure stands in.
 		base, hasBase = m.Base.Value(c.Metric)
 	}
 	if !hasBase && m.Change == budget.Added {
