@@ -36,6 +36,11 @@ func (e *DecodeError) Error() string {
 		b.WriteString("decoding failed")
 	}
 	fmt.Fprintf(&b, " at byte %d", e.Offset)
+	if e.Field == "" && e.Offset < 16 && !strings.Contains(b.String(), "truncated") {
+		// A failure in the first bytes of the top-level message usually
+		// means the file is not an ONNX model at all.
+		b.WriteString(" (the file does not start like an ONNX ModelProto: is it an ONNX model?)")
+	}
 	return b.String()
 }
 
