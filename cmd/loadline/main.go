@@ -101,8 +101,9 @@ func newRoot(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 	root := &cobra.Command{
 		Use:   "loadline",
 		Short: "Keep neural-network models inside the resource budgets of their devices",
-		Long: "loadline measures models (file size, parameters, shapes of every tensor) and keeps\n" +
-			"them inside the budgets of the devices they ship on.\n\n" + conventions,
+		Long: "loadline measures neural-network models (size, parameters, MACs, activation memory)\n" +
+			"and keeps them inside the budgets of the devices they ship on: at every commit, on\n" +
+			"every pull request, and for the release sign-off.\n\n" + conventions + "\n\n" + checkConventions,
 		SilenceUsage:  true,
 		SilenceErrors: true,
 	}
