@@ -13,8 +13,9 @@ import (
 // params are the elements of every constant tensor (initializer or Constant
 // output) that is used as a weight; param_bytes is their storage at their own
 // dtype (int4 packs two to a byte). A constant is used as a weight when some
-// node reads it at a data position and that node's result is not itself
-// folded statically. Constants read only at shape or index positions
+// node reads it at a data position and that node is computed at run time,
+// or is folded statically (a Transpose, Cast or Identity of the constant)
+// and its result is used as a weight in turn. Constants read only at shape or index positions
 // (Reshape's shape, Slice's starts, Resize's scales, …), constants consumed
 // only by shape arithmetic, and scalars (one element or fewer) are not
 // parameters. Nor are BatchNormalization's running mean and variance
@@ -181,11 +182,15 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 			}
 		}
 	}
-	seen := map[string]bool{}
-	var out []ParamTensor
-	var readErr error
-	var visit func(nodes []*model.Node, vals map[string]*Value)
-	visit = func(nodes []*model.Node, vals map[string]*Value) {
+	// The nodes of the main graph and of its subgraphs, each subgraph's
+	// after the node that holds it, with the values they see.
+	type step struct {
+		n      *model.Node
+		folded bool // inference knows every output's values
+	}
+	var steps []step
+	var walk func(nodes []*model.Node, vals map[string]*Value)
+	walk = func(nodes []*model.Node, vals map[string]*Value) {
 		for _, n := range nodes {
 			folded := len(n.Outputs) > 0
 			for _, o := range n.Outputs {
@@ -193,32 +198,62 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 					folded = false
 				}
 			}
-			for i, name := range n.Inputs {
-				t, ok := consts[name]
-				if !ok || seen[name] || folded || isShapeOperand(n, i) {
-					continue
-				}
-				if t.Elements() <= 1 {
-					continue
-				}
-				seen[name] = true
-				zeros, err := countZeros(t)
-				if err != nil && readErr == nil {
-					readErr = err
-				}
-				out = append(out, ParamTensor{Name: name, DType: t.DType, Elements: t.Elements(), Bytes: t.StorageBytes(), Zeros: zeros})
-			}
+			steps = append(steps, step{n, folded})
 			// Subgraph bodies read outer constants too.
 			for _, a := range n.Attrs {
 				for _, sg := range append([]*model.Graph{a.Graph}, a.Graphs...) {
 					if sg != nil {
-						visit(sg.Nodes, mergedVals(vals, inf.Subgraphs[sg]))
+						walk(sg.Nodes, mergedVals(vals, inf.Subgraphs[sg]))
 					}
 				}
 			}
 		}
 	}
-	visit(g.Nodes, inf.Values)
+	walk(g.Nodes, inf.Values)
+
+	// A node's data inputs feed a weight when the node is computed at run
+	// time, or when it is folded (a Transpose, Cast or Identity of a
+	// constant) and one of its outputs feeds a weight in turn; consumers
+	// come after producers, so one backward pass settles it. Constants
+	// that only feed shape arithmetic stay out.
+	feeds := make([]bool, len(steps))
+	used := map[string]bool{}
+	for k := len(steps) - 1; k >= 0; k-- {
+		st := steps[k]
+		feeds[k] = !st.folded
+		for _, o := range st.n.Outputs {
+			feeds[k] = feeds[k] || (o != "" && used[o])
+		}
+		if !feeds[k] {
+			continue
+		}
+		for i, name := range st.n.Inputs {
+			if name != "" && !isShapeOperand(st.n, i) {
+				used[name] = true
+			}
+		}
+	}
+
+	seen := map[string]bool{}
+	var out []ParamTensor
+	var readErr error
+	for k, st := range steps {
+		if !feeds[k] {
+			continue
+		}
+		for i, name := range st.n.Inputs {
+			t, ok := consts[name]
+			if !ok || seen[name] || isShapeOperand(st.n, i) || t.Elements() <= 1 {
+				continue
+			}
+			seen[name] = true
+			zeros, err := countZeros(t)
+			if err != nil && readErr == nil {
+				readErr = err
+			}
+			out = append(out, ParamTensor{Name: name, DType: t.DType, Elements: t.Elements(), Bytes: t.StorageBytes(), Zeros: zeros})
+		}
+	}
 	return out, readErr
 }
 

@@ -1,0 +1,66 @@
+package measure
+
+import (
+	"fmt"
+	"testing"
+
+	"github.com/loadline/loadline/model"
+)
+
+// TestParamsThroughFoldedNodes: a weight that reaches its consumer through
+// a node inference folds (Transpose, Cast, Identity of a constant: exporters
+// write them for transposed, half-precision and shared weights) is still a
+// parameter, whether it is small enough for inference to hold its values
+// (64×64 = 4,096 elements, under maxFoldElements) or not (512×512 =
+// 262,144). Hand-worked: params = n², param_bytes = 4n² (float32).
+func TestParamsThroughFoldedNodes(t *testing.T) {
+	for _, op := range []string{"Transpose", "Cast", "Identity"} {
+		for _, n := range []int64{64, 512} {
+			t.Run(fmt.Sprintf("%s/%d", op, n), func(t *testing.T) {
+				w := &model.Tensor{Name: "w", DType: model.Float32, Dims: []int64{n, n},
+					Data: model.TensorData{Encoding: model.EncodingRaw, Segments: [][]byte{make([]byte, 4*n*n)}}}
+				var attrs []*model.Attr
+				if op == "Cast" {
+					attrs = append(attrs, atI("to", int64(model.Float32)))
+				}
+				g := &model.Graph{
+					Inputs:       []*model.ValueInfo{input("x", model.Float32, model.Known(1), model.Known(n))},
+					Initializers: []*model.Tensor{w},
+					Nodes:        []*model.Node{node(op, []string{"w"}, []string{"wt"}, attrs...), node("MatMul", []string{"x", "wt"}, []string{"y"})},
+					Outputs:      []*model.ValueInfo{{Name: "y"}},
+				}
+				m, err := Measure(graphModel(g), 0, Options{})
+				if err != nil {
+					t.Fatal(err)
+				}
+				if m.Params != n*n || m.ParamBytes != 4*n*n {
+					t.Errorf("params %d, param_bytes %d; want %d and %d", m.Params, m.ParamBytes, n*n, 4*n*n)
+				}
+			})
+		}
+	}
+}
+
+// TestParamsShapeChainNotWeights: constants that only feed shape arithmetic
+// (here Concat of two constant pieces of a shape, into Reshape's shape) are
+// not parameters, folded or not.
+func TestParamsShapeChainNotWeights(t *testing.T) {
+	a := nnI64("a", []int64{1, 2}, 2).tensor()
+	b := nnI64("b", []int64{3, 4}, 2).tensor()
+	g := &model.Graph{
+		Inputs:       []*model.ValueInfo{input("x", model.Float32, model.Known(24))},
+		Initializers: []*model.Tensor{a, b},
+		Nodes: []*model.Node{
+			node("Concat", []string{"a", "b"}, []string{"shape"}, atI("axis", 0)),
+			node("Reshape", []string{"x", "shape"}, []string{"y"}),
+		},
+		Outputs: []*model.ValueInfo{{Name: "y"}},
+	}
+	m, err := Measure(graphModel(g), 0, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if m.Params != 0 {
+		t.Errorf("params %d, want 0: the constants only make a shape", m.Params)
+	}
+}
