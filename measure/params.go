@@ -165,23 +165,28 @@ func countZeros(t *model.Tensor) (int64, error) {
 	return zeros, nil
 }
 
-// weights finds the constants of the main graph used as weights, in the
-// order their first consumer appears.
+// weights finds the constants of the model (main graph and subgraphs) used
+// as weights, in the order their first consumer appears.
 func weights(inf *Inference) ([]ParamTensor, error) {
 	g := inf.Model.Graph
+	// The constants: initializers and Constant outputs of the main graph
+	// and of every subgraph (a branch or loop body may hold its own).
 	consts := map[string]*model.Tensor{}
-	for _, t := range g.Initializers {
-		consts[t.Name] = t
-	}
-	for _, n := range g.Nodes {
-		if n.Op == "Constant" && len(n.Outputs) == 1 {
-			if a := n.Attr("value"); a != nil && a.Tensor != nil {
-				t := *a.Tensor
-				t.Name = n.Outputs[0]
-				consts[n.Outputs[0]] = &t
+	addConsts := func(g *model.Graph) {
+		for _, t := range g.Initializers {
+			consts[t.Name] = t
+		}
+		for _, n := range g.Nodes {
+			if n.Op == "Constant" && len(n.Outputs) == 1 {
+				if a := n.Attr("value"); a != nil && a.Tensor != nil {
+					t := *a.Tensor
+					t.Name = n.Outputs[0]
+					consts[n.Outputs[0]] = &t
+				}
 			}
 		}
 	}
+	addConsts(g)
 	// The nodes of the main graph and of its subgraphs, each subgraph's
 	// after the node that holds it, with the values they see.
 	type step struct {
@@ -203,6 +208,7 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 			for _, a := range n.Attrs {
 				for _, sg := range append([]*model.Graph{a.Graph}, a.Graphs...) {
 					if sg != nil {
+						addConsts(sg)
 						walk(sg.Nodes, mergedVals(vals, inf.Subgraphs[sg]))
 					}
 				}

@@ -64,3 +64,35 @@ func TestParamsShapeChainNotWeights(t *testing.T) {
 		t.Errorf("params %d, want 0: the constants only make a shape", m.Params)
 	}
 }
+
+// TestParamsInSubgraphs: weights a branch holds itself, as an initializer
+// of the branch (then) or a Constant node in it (else), are parameters of
+// the model: both branches are stored. Hand-worked: two 8×8 weights,
+// params = 128.
+func TestParamsInSubgraphs(t *testing.T) {
+	w := nnF32("w", make([]float64, 64), 8, 8).tensor()
+	cw := nnF32("cw", make([]float64, 64), 8, 8).tensor()
+	thenG := &model.Graph{Name: "then", Initializers: []*model.Tensor{w},
+		Nodes:   []*model.Node{node("MatMul", []string{"x", "w"}, []string{"y1"})},
+		Outputs: []*model.ValueInfo{{Name: "y1"}}}
+	elseG := &model.Graph{Name: "else",
+		Nodes: []*model.Node{
+			{Op: "Constant", Name: "k", Outputs: []string{"cw"}, Attrs: []*model.Attr{{Name: "value", Kind: model.AttrTensor, Tensor: cw}}},
+			node("MatMul", []string{"x", "cw"}, []string{"y2"}),
+		},
+		Outputs: []*model.ValueInfo{{Name: "y2"}}}
+	g := &model.Graph{
+		Inputs: []*model.ValueInfo{input("x", model.Float32, model.Known(1), model.Known(8)), input("c", model.Bool)},
+		Nodes: []*model.Node{node("If", []string{"c"}, []string{"y"},
+			&model.Attr{Name: "then_branch", Kind: model.AttrGraph, Graph: thenG},
+			&model.Attr{Name: "else_branch", Kind: model.AttrGraph, Graph: elseG})},
+		Outputs: []*model.ValueInfo{{Name: "y"}},
+	}
+	m, err := Measure(graphModel(g), 0, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if m.Params != 128 {
+		t.Errorf("params %d, want 2 × 64 = 128", m.Params)
+	}
+}
