@@ -234,3 +234,70 @@ func TestHostileSequenceMapUnequalLengths(t *testing.T) {
 		t.Errorf("out: want an error or a sequence of unknown length, got %+v", res.Values["out"])
 	}
 }
+
+func TestHostileGatherFoldBlowup(t *testing.T) {
+	// Gather of two small constants, data [1, 4096] and 4096 indices (64
+	// KiB of int64 between them), makes a [4096, 4096] output: 16.7 M
+	// elements, too many to fold. The shape is inferred; the values are
+	// not held (a 65536-wide pair would ask for 4.3 G elements).
+	const n = 4096
+	data := &model.Tensor{Name: "data", DType: model.Int64, Dims: []int64{1, n}, Data: rawInt64s(make([]int64, n)...)}
+	idx := &model.Tensor{Name: "idx", DType: model.Int64, Dims: []int64{n}, Data: rawInt64s(make([]int64, n)...)}
+	g := &model.Graph{
+		Initializers: []*model.Tensor{data, idx},
+		Nodes:        []*model.Node{node("Gather", []string{"data", "idx"}, []string{"y"})},
+		Outputs:      []*model.ValueInfo{{Name: "y"}},
+	}
+	var res *Inference
+	var err error
+	alloc := allocDuring(func() { res, err = Infer(graphModel(g), InferOptions{}) })
+	if err != nil {
+		t.Fatal(err)
+	}
+	if alloc > 16<<20 {
+		t.Errorf("Gather folding allocated %d bytes", alloc)
+	}
+	v := res.Values["y"]
+	if !v.Type.Shape.Equal(model.KnownShape(n, n)) {
+		t.Errorf("y: shape %v, want [%d,%d]", v.Type.Shape, n, n)
+	}
+	if v.Const != nil {
+		t.Errorf("y: %d elements folded, more than maxFoldElements", v.Const.Len())
+	}
+}
+
+func TestHostileConcatFoldDoubling(t *testing.T) {
+	// Thirty Concats, each of the previous result with itself, starting
+	// from 1,024 constant int64s: a file of a few KiB whose last tensor has
+	// 1024·2^30 elements. Shapes are inferred; values are folded only up to
+	// maxFoldElements, so memory stays small.
+	const steps = 30
+	nodes := []*model.Node{}
+	prev := "c0"
+	for i := 1; i <= steps; i++ {
+		cur := "c" + string(rune('0'+i/10)) + string(rune('0'+i%10))
+		nodes = append(nodes, node("Concat", []string{prev, prev}, []string{cur}, &model.Attr{Name: "axis", Kind: model.AttrInt, Int: 0}))
+		prev = cur
+	}
+	g := &model.Graph{
+		Initializers: []*model.Tensor{{Name: "c0", DType: model.Int64, Dims: []int64{1024}, Data: rawInt64s(make([]int64, 1024)...)}},
+		Nodes:        nodes,
+		Outputs:      []*model.ValueInfo{{Name: prev}},
+	}
+	var res *Inference
+	var err error
+	alloc := allocDuring(func() { res, err = Infer(graphModel(g), InferOptions{}) })
+	if err != nil {
+		t.Fatal(err)
+	}
+	if alloc > 64<<20 {
+		t.Errorf("Concat folding allocated %d bytes", alloc)
+	}
+	v := res.Values[prev]
+	if !v.Type.Shape.Equal(model.KnownShape(1024 << steps)) {
+		t.Errorf("%s: shape %v, want [%d]", prev, v.Type.Shape, int64(1024)<<steps)
+	}
+	if v.Const != nil {
+		t.Errorf("%s: %d elements folded, more than maxFoldElements", prev, v.Const.Len())
+	}
+}

@@ -426,6 +426,11 @@ func inferConcat(c *ctx) ([]*Value, error) {
 		}
 	}
 	v := tensor(c.dtype(0), out)
+	// Each part is within the folding limit, the whole need not be (a
+	// chain of Concats of a tensor with itself doubles it every node).
+	if _, fits := knownElems(out); !fits {
+		foldable = false
+	}
 	if foldable && r == 1 {
 		v.Const = concatData(parts)
 	} else if foldable {
@@ -690,8 +695,10 @@ func inferGather(c *ctx) ([]*Value, error) {
 	dims, ok1 := s.Ints()
 	od, ok2 := out.Ints()
 	ind, ok3 := idxV.Const.KnownInts()
-	if ok1 && ok2 && ok3 && data.Const != nil {
-		n, _ := out.Elements()
+	// Small data and small indices can still make a large output (data
+	// [1, 65536] gathered by 65536 indices): fold within the limit only.
+	n, fits := knownElems(out)
+	if ok1 && ok2 && ok3 && fits && data.Const != nil {
 		idx := make([]int, n)
 		ist, ost := strides(dims), strides(od)
 		co := make([]int64, len(od))
