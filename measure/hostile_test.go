@@ -1,6 +1,7 @@
 package measure
 
 import (
+	"fmt"
 	"os"
 	"runtime"
 	"strings"
@@ -299,5 +300,36 @@ func TestHostileConcatFoldDoubling(t *testing.T) {
 	}
 	if v.Const != nil {
 		t.Errorf("%s: %d elements folded, more than maxFoldElements", prev, v.Const.Len())
+	}
+}
+
+func TestHostileRuntimeShapeLength(t *testing.T) {
+	// A shape computed at run time whose own length is declared absurd
+	// (2^40 entries) or negative: the output's rank is that length, so it
+	// is refused with an error, not allocated or passed to make.
+	for _, tc := range []struct {
+		op  string
+		len int64
+	}{{"ConstantOfShape", 1 << 40}, {"ConstantOfShape", -1}, {"Reshape", -1}} {
+		t.Run(fmt.Sprintf("%s/%d", tc.op, tc.len), func(t *testing.T) {
+			ins := []string{"s"}
+			if tc.op == "Reshape" {
+				ins = []string{"x", "s"}
+			}
+			g := &model.Graph{
+				Inputs:  []*model.ValueInfo{input("x", model.Float32, model.Known(4)), input("s", model.Int64, model.Known(tc.len))},
+				Nodes:   []*model.Node{node(tc.op, ins, []string{"y"})},
+				Outputs: []*model.ValueInfo{{Name: "y"}},
+			}
+			var res *Inference
+			var err error
+			alloc := allocDuring(func() { res, err = Infer(graphModel(g), InferOptions{}) })
+			if alloc > 16<<20 {
+				t.Errorf("allocated %d bytes", alloc)
+			}
+			if err == nil && len(res.Unresolved) == 0 {
+				t.Errorf("y: %v, want the node unresolved", res.Values["y"].Type)
+			}
+		})
 	}
 }

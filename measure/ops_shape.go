@@ -199,8 +199,8 @@ func inferReshape(c *ctx) ([]*Value, error) {
 		if sv.Const == nil || sv.Const.Ints == nil {
 			if r, ok := sv.rank(); ok && r == 1 && sv.Type.Shape[0].IsKnown() {
 				n := sv.Type.Shape[0].Value
-				if n > 64 {
-					return nil, fmt.Errorf("shape input has %d elements", n)
+				if err := checkRuntimeRank(n); err != nil {
+					return nil, err
 				}
 				return []*Value{unknownRankN(in.Type.DType, int(n), c.node.Outputs[0])}, nil
 			}
@@ -215,6 +215,19 @@ func inferReshape(c *ctx) ([]*Value, error) {
 	v := tensor(in.Type.DType, out)
 	v.Const = in.Const
 	return []*Value{v}, nil
+}
+
+// maxRuntimeRank bounds the rank unknownRankN gives a tensor whose shape is
+// computed at run time from a shape input of known length; no model needs
+// more, and a hostile length must not reach make.
+const maxRuntimeRank = 64
+
+// checkRuntimeRank refuses a shape input length that cannot be a rank.
+func checkRuntimeRank(n int64) error {
+	if n < 0 || n > maxRuntimeRank {
+		return fmt.Errorf("shape input has %d elements; a rank is 0 to %d", n, maxRuntimeRank)
+	}
+	return nil
 }
 
 // unknownRankN is a tensor of known rank whose dims are fresh symbols.
@@ -882,6 +895,9 @@ func inferConstantOfShape(c *ctx) ([]*Value, error) {
 	}
 	if sv.Const == nil || sv.Const.Ints == nil {
 		if r, ok := sv.rank(); ok && r == 1 && sv.Type.Shape[0].IsKnown() {
+			if err := checkRuntimeRank(sv.Type.Shape[0].Value); err != nil {
+				return nil, err
+			}
 			return []*Value{unknownRankN(dt, int(sv.Type.Shape[0].Value), c.node.Outputs[0])}, nil
 		}
 		return nil, fmt.Errorf("shape input (%q) is computed at run time", c.node.Inputs[0])
