@@ -333,3 +333,37 @@ func TestHostileRuntimeShapeLength(t *testing.T) {
 		})
 	}
 }
+
+func TestHostileGatherNDNegativeBatchDims(t *testing.T) {
+	// batch_dims is a count from the file; a negative one is an error for
+	// the node, not a slice bound.
+	g := &model.Graph{
+		Inputs:  []*model.ValueInfo{input("d", model.Float32, model.Known(8)), input("i", model.Int64, model.Known(2), model.Known(1))},
+		Nodes:   []*model.Node{node("GatherND", []string{"d", "i"}, []string{"y"}, &model.Attr{Name: "batch_dims", Kind: model.AttrInt, Int: -3})},
+		Outputs: []*model.ValueInfo{{Name: "y"}},
+	}
+	res, err := Infer(graphModel(g), InferOptions{})
+	if err == nil && len(res.Unresolved) == 0 {
+		t.Errorf("y: %v, want GatherND unresolved", res.Values["y"].Type)
+	}
+}
+
+func TestHostileNodeWithoutOutputs(t *testing.T) {
+	// A node that declares no outputs computes nothing anyone reads; rules
+	// that name their results after the first output must not index it.
+	for _, op := range []string{"Range", "Reshape", "Compress", "NonZero", "Unique", "ConstantOfShape", "Split"} {
+		t.Run(op, func(t *testing.T) {
+			g := &model.Graph{
+				Inputs: []*model.ValueInfo{input("x", model.Int64, model.Known(4)), input("s", model.Int64, model.Known(1))},
+				Nodes: []*model.Node{
+					{Op: op, Name: "n", Inputs: []string{"x", "s", "s"}},
+					node("Identity", []string{"x"}, []string{"y"}),
+				},
+				Outputs: []*model.ValueInfo{{Name: "y"}},
+			}
+			if _, err := Infer(graphModel(g), InferOptions{}); err != nil {
+				t.Logf("error (fine): %v", err)
+			}
+		})
+	}
+}

@@ -314,6 +314,10 @@ func (e *engine) inferNode(n *model.Node, ins []*Value, sc *scope, path string) 
 			return nil, fmt.Errorf("input %d (%q) has unknown shape", j, n.Inputs[j])
 		}
 	}
+	if len(n.Outputs) == 0 {
+		// Rules name what they make after the first output.
+		return nil, fmt.Errorf("the node declares no outputs")
+	}
 	c := &ctx{e: e, node: n, in: ins, sc: sc, path: path, opset: e.opsetFor(domain)}
 	outs, err := rule.infer(c)
 	if err != nil {

@@ -767,11 +767,19 @@ func inferGatherND(c *ctx) ([]*Value, error) {
 	if err != nil {
 		return nil, err
 	}
-	b := int(c.attrInt("batch_dims", 0))
+	b64 := c.attrInt("batch_dims", 0)
+	if b64 < 0 || b64 > int64(len(is)) {
+		return nil, fmt.Errorf("batch_dims %d is out of range for indices of rank %d", b64, len(is))
+	}
+	b := int(b64)
 	if len(is) == 0 || !is[len(is)-1].IsKnown() {
 		return nil, fmt.Errorf("the last dim of indices must be known")
 	}
-	k := int(is[len(is)-1].Value)
+	k64 := is[len(is)-1].Value
+	if k64 < 0 || k64 > int64(len(ds)) {
+		return nil, fmt.Errorf("indices tuples of %d exceed data rank %d", k64, len(ds))
+	}
+	k := int(k64)
 	if b+k > len(ds) || b > len(is)-1 {
 		return nil, fmt.Errorf("indices tuples of %d with batch_dims %d exceed data rank %d", k, b, len(ds))
 	}
