@@ -34,6 +34,12 @@ func allocDuring(f func()) uint64 {
 	return b.TotalAlloc - a.TotalAlloc
 }
 
+// inferAllocs infers g and reports the bytes allocated meanwhile.
+func inferAllocs(g *model.Graph) (res *Inference, alloc uint64, err error) {
+	alloc = allocDuring(func() { res, err = Infer(graphModel(g), InferOptions{}) })
+	return res, alloc, err
+}
+
 func TestHostileCycle(t *testing.T) {
 	// Two nodes that read each other's outputs: not a DAG.
 	g := &model.Graph{
@@ -69,9 +75,7 @@ func TestHostileHugeDims(t *testing.T) {
 		},
 		Outputs: []*model.ValueInfo{{Name: "y"}, {Name: "flat"}},
 	}
-	var res *Inference
-	var err error
-	n := allocDuring(func() { res, err = Infer(graphModel(g), InferOptions{}) })
+	res, n, err := inferAllocs(g)
 	if n > 16<<20 {
 		t.Errorf("inference of a graph with 2^62 dims allocated %d bytes", n)
 	}
@@ -195,9 +199,7 @@ func TestHostileSplitToSequenceHugeAxis(t *testing.T) {
 				Nodes:        []*model.Node{node("SplitToSequence", tc.ins, []string{"s"})},
 				Outputs:      []*model.ValueInfo{{Name: "s"}},
 			}
-			var res *Inference
-			var err error
-			n := allocDuring(func() { res, err = Infer(graphModel(g), InferOptions{}) })
+			res, n, err := inferAllocs(g)
 			if n > 16<<20 {
 				t.Fatalf("SplitToSequence of a 2^40 axis allocated %d bytes", n)
 			}
@@ -249,9 +251,7 @@ func TestHostileGatherFoldBlowup(t *testing.T) {
 		Nodes:        []*model.Node{node("Gather", []string{"data", "idx"}, []string{"y"})},
 		Outputs:      []*model.ValueInfo{{Name: "y"}},
 	}
-	var res *Inference
-	var err error
-	alloc := allocDuring(func() { res, err = Infer(graphModel(g), InferOptions{}) })
+	res, alloc, err := inferAllocs(g)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -285,9 +285,7 @@ func TestHostileConcatFoldDoubling(t *testing.T) {
 		Nodes:        nodes,
 		Outputs:      []*model.ValueInfo{{Name: prev}},
 	}
-	var res *Inference
-	var err error
-	alloc := allocDuring(func() { res, err = Infer(graphModel(g), InferOptions{}) })
+	res, alloc, err := inferAllocs(g)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -321,9 +319,7 @@ func TestHostileRuntimeShapeLength(t *testing.T) {
 				Nodes:   []*model.Node{node(tc.op, ins, []string{"y"})},
 				Outputs: []*model.ValueInfo{{Name: "y"}},
 			}
-			var res *Inference
-			var err error
-			alloc := allocDuring(func() { res, err = Infer(graphModel(g), InferOptions{}) })
+			res, alloc, err := inferAllocs(g)
 			if alloc > 16<<20 {
 				t.Errorf("allocated %d bytes", alloc)
 			}
