@@ -96,3 +96,40 @@ func TestParamsInSubgraphs(t *testing.T) {
 		t.Errorf("params %d, want 2 × 64 = 128", m.Params)
 	}
 }
+
+// TestParamsShapeOnlyOperands: constants read only for their shape, type or
+// as indices are not parameters: EyeLike's input and the *Like random
+// generators' (only the shape and type count), CastLike's target_type (only
+// its type), AffineGrid's size, OneHot's indices and MaxUnpool's indices.
+// Each constant here has 8 elements; params must stay 0.
+func TestParamsShapeOnlyOperands(t *testing.T) {
+	c := func(name string) *model.Tensor { return nnI64(name, make([]int64, 8), 8).tensor() }
+	for _, tc := range []struct {
+		op  string
+		ins []string
+	}{
+		{"EyeLike", []string{"k"}},
+		{"RandomNormalLike", []string{"k"}},
+		{"RandomUniformLike", []string{"k"}},
+		{"CastLike", []string{"x", "k"}},
+		{"AffineGrid", []string{"x", "k"}},
+		{"OneHot", []string{"k", "x", "x"}},
+		{"MaxUnpool", []string{"x", "k"}},
+	} {
+		t.Run(tc.op, func(t *testing.T) {
+			g := &model.Graph{
+				Inputs:       []*model.ValueInfo{input("x", model.Int64, model.Known(8))},
+				Initializers: []*model.Tensor{c("k")},
+				Nodes:        []*model.Node{node(tc.op, tc.ins, []string{"y"})},
+				Outputs:      []*model.ValueInfo{{Name: "y"}},
+			}
+			m, err := Measure(graphModel(g), 0, Options{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if m.Params != 0 {
+				t.Errorf("params %d, want 0", m.Params)
+			}
+		})
+	}
+}
