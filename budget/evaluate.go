@@ -37,9 +37,11 @@ type EvalOptions struct {
 //     as the runtime copies them there before it runs; when weights live in
 //     flash (weights: flash, the default) they are read in place and ram is
 //     the arena alone.
-//   - flash = FileBytes, the model as stored (weights plus graph), wherever
-//     weights live: with weights: flash they are read from it at run time,
-//     and with weights: ram the model must still be stored to be loaded.
+//   - flash = FileBytes + ExternalBytes, the model as stored (the model
+//     file, weights plus graph, and any external data files its weights
+//     live in), wherever weights live: with weights: flash they are read
+//     from it at run time, and with weights: ram the model must still be
+//     stored to be loaded.
 //
 // A figure that these depend on and that is listed in fig.Unknown makes
 // the device figure unknown too, with the reason passed on.
@@ -59,7 +61,7 @@ func (d *Device) Deploy(fig *Figures) *Figures {
 			setUnknown(&out, MetricRAM, "weights: "+why)
 		}
 	}
-	out.Flash = fig.FileBytes
+	out.Flash = addSat(fig.FileBytes, fig.ExternalBytes)
 	if why, ok := fig.Unknown[MetricFile]; ok {
 		setUnknown(&out, MetricFlash, "file: "+why)
 	}

@@ -24,14 +24,17 @@ var Metrics = []string{MetricRAM, MetricFlash, MetricArena, MetricWeights, Metri
 // JSON keys are those of a loadline.measure/v1 entry, plus ram and flash as
 // the budget computed them for the model's device.
 type Figures struct {
-	FileBytes  int64         `json:"file_bytes"`
-	Params     int64         `json:"params"`
-	ParamBytes int64         `json:"param_bytes"`
-	MACs       int64         `json:"macs"`
-	FLOPs      int64         `json:"flops"`
-	Memory     MemoryFigures `json:"memory"`
-	RAM        int64         `json:"ram"`
-	Flash      int64         `json:"flash"`
+	FileBytes int64 `json:"file_bytes"`
+	// ExternalBytes is the weight data kept in external data files, which
+	// FileBytes leaves out.
+	ExternalBytes int64         `json:"external_bytes"`
+	Params        int64         `json:"params"`
+	ParamBytes    int64         `json:"param_bytes"`
+	MACs          int64         `json:"macs"`
+	FLOPs         int64         `json:"flops"`
+	Memory        MemoryFigures `json:"memory"`
+	RAM           int64         `json:"ram"`
+	Flash         int64         `json:"flash"`
 	// Unknown lists metric keys whose value could not be computed
 	// (unresolved shapes), with the reason; such a metric is not judged as
 	// a number but reported.

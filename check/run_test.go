@@ -106,6 +106,11 @@ func TestExternalDataAtTheSameRevision(t *testing.T) {
 		t.Fatalf("error %q, params %d → %d; want 216 → 432", m.Error, m.Base.Params, m.Head.Params)
 	}
 	_ = r
+	// flash counts the external weights too: 27·16 float32 = 1,728 bytes
+	// beside the model file (hand-worked).
+	if m.Head.ExternalBytes != 27*16*4 || m.Head.Flash != m.Head.FileBytes+27*16*4 {
+		t.Errorf("external %d, flash %d, file %d: flash must be file + external data", m.Head.ExternalBytes, m.Head.Flash, m.Head.FileBytes)
+	}
 	// A model whose external file is not committed fails with a message
 	// that names it.
 	g.git("rm", "-q", "--cached", "models/ext/weights.bin")

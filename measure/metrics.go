@@ -9,18 +9,21 @@ import (
 // that computes it; the README's "Conventions" section repeats the
 // definitions.
 type Metrics struct {
-	Path       string       `json:"path"`
-	Format     string       `json:"format"`
-	FileBytes  int64        `json:"file_bytes"`
-	Params     int64        `json:"params"`
-	ParamBytes int64        `json:"param_bytes"`
-	MACs       int64        `json:"macs"`
-	FLOPs      int64        `json:"flops"`
-	Sparsity   float64      `json:"sparsity"` // share of weight elements exactly zero (params.go); -1 when no weight has stored values
-	Inputs     []IOInfo     `json:"inputs"`
-	Outputs    []IOInfo     `json:"outputs"`
-	Unresolved []Unresolved `json:"unresolved"`
-	Error      string       `json:"error"`
+	Path      string `json:"path"`
+	Format    string `json:"format"`
+	FileBytes int64  `json:"file_bytes"`
+	// ExternalBytes is the size of the weight data the model keeps in
+	// external data files (ONNX external_data), which file_bytes leaves out.
+	ExternalBytes int64        `json:"external_bytes"`
+	Params        int64        `json:"params"`
+	ParamBytes    int64        `json:"param_bytes"`
+	MACs          int64        `json:"macs"`
+	FLOPs         int64        `json:"flops"`
+	Sparsity      float64      `json:"sparsity"` // share of weight elements exactly zero (params.go); -1 when no weight has stored values
+	Inputs        []IOInfo     `json:"inputs"`
+	Outputs       []IOInfo     `json:"outputs"`
+	Unresolved    []Unresolved `json:"unresolved"`
+	Error         string       `json:"error"`
 
 	// ParamsByDType breaks param_bytes down by dtype.
 	ParamsByDType []DTypeBytes `json:"params_by_dtype"`
@@ -80,6 +83,7 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	if err != nil {
 		return nil, err
 	}
+	out.ExternalBytes = externalBytes(m.Graph, 0)
 	for _, w := range ws {
 		out.Params += w.Elements
 		out.ParamBytes += w.Bytes
@@ -169,4 +173,29 @@ func appendUnresolved(list, more []Unresolved) []Unresolved {
 		}
 	}
 	return list
+}
+
+// externalBytes sums the stored size of the initializers a graph and its
+// subgraphs keep in external data files.
+func externalBytes(g *model.Graph, depth int) int64 {
+	if g == nil || depth > maxGraphDepth {
+		return 0
+	}
+	var n int64
+	for _, t := range g.Initializers {
+		if t.Data.Encoding == model.EncodingExternal {
+			if b := t.StorageBytes(); b > 0 {
+				n += b
+			}
+		}
+	}
+	for _, node := range g.Nodes {
+		for _, a := range node.Attrs {
+			n += externalBytes(a.Graph, depth+1)
+			for _, sg := range a.Graphs {
+				n += externalBytes(sg, depth+1)
+			}
+		}
+	}
+	return n
 }

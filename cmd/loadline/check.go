@@ -25,7 +25,7 @@ const checkConventions = `Verdicts: each limit in the budget file is a check of 
 (fail above the limit, warn above warn_at of it); each growth rule a check
 against the base's figure. A waiver turns a failure into "waived" until its
 date. ram = deployed activation arena (+ weight bytes when the device keeps
-weights in RAM); flash = the model file's bytes.
+weights in RAM); flash = the model file's bytes plus its external data.
 Exit codes: 0 within budget (warnings allowed), 1 a budget is broken or a
 changed model cannot be measured, 2 usage or budget-file error, 3
 environment error (missing git objects, unreachable API when --post-required).`
