@@ -742,6 +742,11 @@ func (k *coster) control(n *model.Node, i int, c *costCtx, sc scopes) *tally {
 func (k *coster) tripCount(n *model.Node, c *costCtx) (int64, string) {
 	switch n.Op {
 	case "Loop":
+		if cond := c.in(1); cond != nil {
+			if v, ok := cond.Const.KnownInts(); ok && len(v) == 1 && v[0] == 0 {
+				return 0, "" // the condition is false before the first iteration
+			}
+		}
 		m := c.in(0)
 		if m == nil {
 			return -1, "M is not given; the loop ends on its condition"

@@ -367,6 +367,19 @@ func TestCostsLoop(t *testing.T) {
 		!strings.Contains(got.Unresolved[0].Reason, "trip count unknown") {
 		t.Errorf("M=INT64_MAX with a condition: MACs %d, unresolved %+v; want 16 and trip count unknown", got.MACs, got.Unresolved)
 	}
+	// derived: a condition that is false before the first iteration runs the
+	// body 0 times (ONNX Loop spec: the loop runs while cond and i < M).
+	falseCond := loopModel(3, false)
+	falseCond.Graph.Initializers = append(falseCond.Graph.Initializers, &model.Tensor{Name: "stop", DType: model.Bool, Dims: []int64{},
+		Data: model.TensorData{Encoding: model.EncodingRaw, Segments: [][]byte{{0}}}})
+	for _, n := range falseCond.Graph.Nodes {
+		if n.Op == "Loop" {
+			n.Inputs[1] = "stop"
+		}
+	}
+	if got = costsOf(t, falseCond, nil); got.MACs != 0 || len(got.Unresolved) != 0 {
+		t.Errorf("cond false: MACs %d, unresolved %+v; want 0, none", got.MACs, got.Unresolved)
+	}
 	got = costsOf(t, loopModel(-1, false), nil)
 	// derived: M is a runtime input, so the body counts once: 16 MACs
 	if got.MACs != 16 || len(got.Unresolved) != 1 || got.Unresolved[0].Node != "loop" ||
