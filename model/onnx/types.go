@@ -202,7 +202,9 @@ func (d *decoder) dim(lo, hi int) (dim model.Dim, set bool, err error) {
 		case 1:
 			var v int64
 			v, err = d.int64(&f, "dim_value")
-			dim, set = model.Known(v), true
+			// A negative size (some exporters write -1 for "unknown") is no size:
+			// the dim becomes a fresh symbol, as an unset one does.
+			dim, set = model.Known(v), v >= 0
 		case 2:
 			var s string
 			s, err = d.str(&f, "dim_param")
