@@ -95,11 +95,11 @@ func TestEvaluateChecks(t *testing.T) {
 			MetricRAM, "limit", Fail,
 			"ram 301.5 KiB > limit 288.0 KiB (90% of porch-cam's 320.0 KiB) by 13.5 KiB; its waiver expired on 2026-01-31", 308736, 294912},
 		{"absolute limit", Input{Path: "models/porch/bird.onnx", Change: Added, Head: fig(0, 0, mib, 61e6)},
-			MetricMACs, "limit", Fail, "macs 61.0 M > limit 60.0 M by 1.0 M", 61e6, 60e6},
+			MetricMACs, "limit", Fail, "macs 61.0 M > limit 60.0 M by 1.00 M", 61e6, 60e6},
 		// flash: 50% of 2 MiB = 1 MiB; a 1 MiB file is at the limit, past 90%.
 		{"% flash limit", Input{Path: "models/porch/bird.onnx", Change: Added, Head: fig(0, 0, mib, 1)},
 			MetricFlash, "limit", Warn,
-			"flash 1.0 MiB is 100.0% of limit 1.0 MiB (50% of porch-cam's 2.0 MiB), past warn_at 90%; 0 B left", mib, mib},
+			"flash 1.00 MiB is 100.0% of limit 1.00 MiB (50% of porch-cam's 2.00 MiB), past warn_at 90%; 0 B left", mib, mib},
 		// 48.1 M → 53.872 M is exactly +12%; allowed 48.1 M × 1.1 = 52.91 M.
 		{"growth % with base", Input{Path: "models/porch/bird.onnx", Change: Modified, Base: fig(0, 0, mib, 48_100_000), Head: fig(0, 0, mib, 53_872_000)},
 			MetricMACs, "growth", Fail, "macs grew 12.0% (48.1 M → 53.9 M), allowed 10%", 53_872_000, 52_910_000},
@@ -109,13 +109,13 @@ func TestEvaluateChecks(t *testing.T) {
 			MetricMACs, "growth", Pass, "macs fell 10.0% (50.0 M → 45.0 M), allowed 10%", 45e6, 55e6},
 		// 1 MiB + 70 KiB = 1 120 256 B; allowed 1 MiB + 64 KiB = 1 114 112 B.
 		{"growth absolute", Input{Path: "models/porch/bird.onnx", Change: Modified, Base: fig(0, 0, mib, 1), Head: fig(0, 0, mib+70*1024, 1)},
-			MetricFile, "growth", Fail, "file grew 70.0 KiB (1.0 MiB → 1.1 MiB), allowed 64.0 KiB", mib + 70*1024, mib + 64*1024},
+			MetricFile, "growth", Fail, "file grew 70.0 KiB (1.00 MiB → 1.07 MiB), allowed 64.0 KiB", mib + 70*1024, mib + 64*1024},
 		{"growth without base", Input{Path: "models/porch/bird.onnx", Change: Added, Head: fig(0, 0, mib, 50e6)},
 			MetricMACs, "growth", Pass, "macs growth not judged: no base figure (new model)", 50e6, -1},
 		// kitchen-timer keeps weights in RAM: ram = 40 KiB arena + 30 KiB
 		// weights = 70 KiB > 64 KiB.
 		{"weights in RAM", Input{Path: "models/kitchen/stop.onnx", Change: Added, Head: fig(40*1024, 30*1024, 200*1024, 1)},
-			MetricRAM, "limit", Fail, "ram 70.0 KiB > limit 64.0 KiB by 6.0 KiB", 70 * 1024, 64 * 1024},
+			MetricRAM, "limit", Fail, "ram 70.0 KiB > limit 64.0 KiB by 6.00 KiB", 70 * 1024, 64 * 1024},
 		// flash is the file in both placements: 200 KiB ≤ 256 KiB.
 		{"flash with weights in RAM", Input{Path: "models/kitchen/stop.onnx", Change: Added, Head: fig(40*1024, 30*1024, 200*1024, 1)},
 			MetricFlash, "limit", Pass, "flash 200.0 KiB ≤ limit 256.0 KiB, 56.0 KiB left", 200 * 1024, 256 * 1024},

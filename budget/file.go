@@ -135,7 +135,7 @@ func Load(path string) (*File, error) {
 }
 
 func tooLarge(name string, size int64) *Error {
-	return &Error{File: name, Msg: fmt.Sprintf("file is %s; a budget file may be at most %s", formatBytes(size), formatBytes(MaxFileSize)),
+	return &Error{File: name, Msg: fmt.Sprintf("file is %s; a budget file may be at most %s", FormatBytes(size), FormatBytes(MaxFileSize)),
 		Hint: "is this the right file?"}
 }
 

@@ -290,7 +290,7 @@ func TestParseHostile(t *testing.T) {
 	t.Run("too large", func(t *testing.T) {
 		data := []byte("version: 1\n# " + strings.Repeat("x", MaxFileSize) + "\n")
 		_, err := Parse("loadline.yaml", data)
-		want := "loadline.yaml: file is 1.0 MiB; a budget file may be at most 1.0 MiB (is this the right file?)"
+		want := "loadline.yaml: file is 1.00 MiB; a budget file may be at most 1.00 MiB (is this the right file?)"
 		if err == nil || err.Error() != want {
 			t.Errorf("got %v, want %s", err, want)
 		}
@@ -298,7 +298,7 @@ func TestParseHostile(t *testing.T) {
 		if err := os.WriteFile(path, append(data, make([]byte, 2<<20)...), 0o644); err != nil {
 			t.Fatal(err)
 		}
-		if _, err := Load(path); err == nil || !strings.Contains(err.Error(), "file is 3.0 MiB") {
+		if _, err := Load(path); err == nil || !strings.Contains(err.Error(), "file is 3.00 MiB") {
 			t.Errorf("Load: %v", err)
 		}
 	})

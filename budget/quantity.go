@@ -192,20 +192,25 @@ var byteMetrics = map[string]bool{
 func IsBytes(metric string) bool { return byteMetrics[metric] }
 
 // FormatValue prints a metric's value as reports show it: bytes in binary
-// units with one decimal ("301.5 KiB", "512 B"), counts with decimal
-// suffixes ("48.1 M", "950").
+// units ("301.5 KiB", "1.18 MiB", "512 B"), counts with decimal suffixes
+// ("48.1 M", "6.40 k", "950"); one decimal, two below 10.
 func FormatValue(metric string, v int64) string {
 	if IsBytes(metric) {
-		return formatBytes(v)
+		return FormatBytes(v)
 	}
-	return formatCount(v)
+	return FormatCount(v)
 }
 
-func formatBytes(v int64) string {
+// FormatBytes prints bytes in binary units: "301.5 KiB", "1.18 MiB",
+// "512 B". It is loadline's one byte formatter: reasons, tables and the
+// measure view all print with it.
+func FormatBytes(v int64) string {
 	return formatScaled(v, 1024, " B", []string{" KiB", " MiB", " GiB", " TiB", " PiB", " EiB"})
 }
 
-func formatCount(v int64) string {
+// FormatCount prints a count with decimal suffixes: "48.1 M", "6.40 k",
+// "950". It is loadline's one count formatter.
+func FormatCount(v int64) string {
 	return formatScaled(v, 1000, "", []string{" k", " M", " G", " T", " P", " E"})
 }
 
@@ -224,7 +229,12 @@ func formatScaled(v, base int64, unit string, units []string) string {
 		a /= float64(base)
 		i++
 	}
-	return sign + strconv.FormatFloat(a, 'f', 1, 64) + units[i]
+	// Three significant digits at least: "1.18 MiB", "50.8 KiB", "460.8 KiB".
+	decimals := 1
+	if a < 9.995 {
+		decimals = 2
+	}
+	return sign + strconv.FormatFloat(a, 'f', decimals, 64) + units[i]
 }
 
 // formatPercent prints millionths as a percent without trailing zeros:

@@ -95,12 +95,12 @@ func TestFormatValue(t *testing.T) {
 	}{
 		{MetricRAM, 512, "512 B"},
 		{MetricRAM, 308736, "301.5 KiB"}, // 301.5 × 1024
-		{MetricRAM, 1048575, "1.0 MiB"},  // rounds into the next unit rather than "1024.0 KiB"
+		{MetricRAM, 1048575, "1.00 MiB"}, // rounds into the next unit rather than "1024.0 KiB"
 		{MetricFlash, -20378, "-19.9 KiB"},
 		{MetricMACs, 950, "950"},
 		{MetricMACs, 48100000, "48.1 M"},
 		{MetricParams, 300000, "300.0 k"},
-		{MetricFLOPs, 1200000000, "1.2 G"},
+		{MetricFLOPs, 1200000000, "1.20 G"},
 	}
 	for _, tt := range tests {
 		if got := FormatValue(tt.metric, tt.v); got != tt.want {

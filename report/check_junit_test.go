@@ -135,13 +135,13 @@ func TestCheckJUnitParses(t *testing.T) {
 	}
 	const detector = "models/birdcam/detector.onnx"
 	ram := test(detector, "ram")
-	if ram.Status != junit.StatusFailed || ram.Message != "ram 498 KiB > limit 461 KiB (90% of porch-cam's 512 KiB) by 37.2 KiB" {
+	if ram.Status != junit.StatusFailed || ram.Message != "ram 498.0 KiB > limit 460.8 KiB (90% of porch-cam's 512 KiB) by 37.2 KiB" {
 		t.Errorf("detector ram: %s %q", ram.Status, ram.Message)
 	}
-	if ram.Error == nil || !strings.Contains(ram.Error.Error(), "head 498 KiB, base 401 KiB") {
+	if ram.Error == nil || !strings.Contains(ram.Error.Error(), "head 498.0 KiB, base 401.0 KiB") {
 		t.Errorf("detector ram failure body: %v", ram.Error)
 	}
-	if g := test(detector, "ram growth"); g.Status != junit.StatusFailed || g.Message != "ram grew 24.2% (401 KiB → 498 KiB), allowed 5%" {
+	if g := test(detector, "ram growth"); g.Status != junit.StatusFailed || g.Message != "ram grew 24.2% (401.0 KiB → 498.0 KiB), allowed 5%" {
 		t.Errorf("detector ram growth: %s %q", g.Status, g.Message)
 	}
 	if m := test(detector, "macs"); m.Status != junit.StatusPassed {

@@ -13,12 +13,12 @@ func TestFigure(t *testing.T) {
 		v      int64
 		want   string
 	}{
-		{budget.MetricRAM, 471859, "461 KiB"},
+		{budget.MetricRAM, 471859, "460.8 KiB"},
 		{budget.MetricFlash, 1572864, "1.50 MiB"},
 		{budget.MetricArena, 512, "512 B"},
 		{budget.MetricWeights, 2048, "2.00 KiB"},
 		{budget.MetricFile, 1236000, "1.18 MiB"},
-		{budget.MetricParams, 300000, "300 k"},
+		{budget.MetricParams, 300000, "300.0 k"},
 		{budget.MetricMACs, 60000000, "60.0 M"},
 		{budget.MetricFLOPs, 2000000000, "2.00 G"},
 		{budget.MetricMACs, 950, "950"},
@@ -38,7 +38,7 @@ func TestSignedFigure(t *testing.T) {
 	}{
 		{budget.MetricRAM, 99328, "+97.0 KiB"},
 		{budget.MetricRAM, -4096, "-4.00 KiB"},
-		{budget.MetricMACs, -250000, "-250 k"},
+		{budget.MetricMACs, -250000, "-250.0 k"},
 		{budget.MetricMACs, 0, "±0"},
 		{budget.MetricFile, math.MinInt64, "-8.00 EiB"}, // no overflow on negation
 	} {
