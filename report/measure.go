@@ -51,7 +51,7 @@ func MeasureText(w io.Writer, entries []*measure.Metrics) error {
 		if len(m.Unresolved) > 0 {
 			atLeast = "≥ "
 		}
-		fmt.Fprintf(tw, "  MACs\t%s%s\t(FLOPs %s%s = 2×MACs + elementwise)\n", atLeast, Count(m.MACs), atLeast, Count(m.FLOPs))
+		fmt.Fprintf(tw, "  MACs\t%s%s\t(FLOPs %s%s = 2×MACs + per-element, pooling, normalisation and reduction ops)\n", atLeast, Count(m.MACs), atLeast, Count(m.FLOPs))
 		g, d := m.Memory.Graph, m.Memory.Deployed
 		fmt.Fprintf(tw, "  activations, graph\t%s%s\tpeak live %s%s, arena/peak %.2f\n", atLeast, Bytes(g.ArenaBytes), atLeast, Bytes(g.PeakLiveBytes), m.MemoryDetail.ArenaRatio)
 		fmt.Fprintf(tw, "  activations, deployed\t%s%s\tpeak live %s%s, arena/peak %.2f\n", atLeast, Bytes(d.ArenaBytes), atLeast, Bytes(d.PeakLiveBytes), m.MemoryDetail.DeployedRatio)
