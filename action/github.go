@@ -198,7 +198,7 @@ func (g *GitHub) findComment(ctx context.Context, c *github.Client, owner, repo 
 			return 0, err
 		}
 		for _, cm := range comments {
-			if hasMarker(cm.GetBody()) {
+			if hasMarker(cm.GetBody()) && trustedAuthor(cm) {
 				return cm.GetID(), nil
 			}
 		}
@@ -207,6 +207,25 @@ func (g *GitHub) findComment(ctx context.Context, c *github.Client, owner, repo 
 		}
 		opts.Page = resp.NextPage
 	}
+}
+
+// trustedAuthor reports whether a marked comment may be the one loadline
+// edits: written by a bot (the job's token posts as one), or by someone with
+// write access to the repository (a personal token's owner). Anyone else
+// could otherwise post the marker first and keep the report from updating.
+func trustedAuthor(cm *github.IssueComment) bool {
+	u := cm.GetUser()
+	if u == nil {
+		return true // no author given: nothing to judge by
+	}
+	if u.GetType() == "Bot" {
+		return true
+	}
+	switch cm.GetAuthorAssociation() {
+	case "OWNER", "MEMBER", "COLLABORATOR":
+		return true
+	}
+	return false
 }
 
 // refused tells a 403 that is a refusal (the token lacks the permission,

@@ -6,6 +6,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"github.com/google/go-github/v75/github"
 	"net/http"
 	"net/http/httptest"
 	"os"
@@ -687,5 +688,23 @@ func TestDetect(t *testing.T) {
 	}
 	if _, ok := Detect(func(string) string { return "" }); ok {
 		t.Fatal("detected a CI in an empty environment")
+	}
+}
+
+// TestGitHubIgnoresMarkerFromOutsider: a participant without write access
+// who posts a comment starting with the marker does not capture the report;
+// loadline creates its own comment.
+func TestGitHubIgnoresMarkerFromOutsider(t *testing.T) {
+	c := &github.IssueComment{User: &github.User{Type: github.Ptr("User")}, AuthorAssociation: github.Ptr("CONTRIBUTOR")}
+	if trustedAuthor(c) {
+		t.Error("a contributor without write access was trusted")
+	}
+	for _, ok := range []*github.IssueComment{
+		{User: &github.User{Type: github.Ptr("Bot")}, AuthorAssociation: github.Ptr("NONE")},
+		{User: &github.User{Type: github.Ptr("User")}, AuthorAssociation: github.Ptr("MEMBER")},
+	} {
+		if !trustedAuthor(ok) {
+			t.Errorf("%s %s not trusted", ok.GetUser().GetType(), ok.GetAuthorAssociation())
+		}
 	}
 }
