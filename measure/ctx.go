@@ -259,3 +259,12 @@ func knownElems(s model.Shape) (int64, bool) {
 	}
 	return n, true
 }
+
+// outName returns the name of output i, for naming fresh symbols; a node
+// that declares fewer outputs (a hostile file) gets a stand-in.
+func (c *ctx) outName(i int) string {
+	if i < len(c.node.Outputs) && c.node.Outputs[i] != "" {
+		return c.node.Outputs[i]
+	}
+	return fmt.Sprintf("%s_out%d", c.node.Op, i)
+}

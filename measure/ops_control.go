@@ -227,7 +227,7 @@ func inferLoop(c *ctx) ([]*Value, error) {
 	case trip >= 0:
 		n = symbolic(fmt.Sprintf("min(%d,loop)", trip))
 	default:
-		n = symbolic("trip_" + c.node.Outputs[0])
+		n = symbolic("trip_" + c.outName(0))
 	}
 	for j := 0; j < nScan; j++ {
 		outs = append(outs, stackShape(n, first[1+nCarried+j], 0))
@@ -435,6 +435,11 @@ func inferSequenceConstruct(c *ctx) ([]*Value, error) {
 	if len(c.in) == 0 {
 		return nil, fmt.Errorf("SequenceConstruct needs inputs")
 	}
+	for i := range c.in {
+		if c.in[i] == nil {
+			return nil, fmt.Errorf("input %d is empty; every element of a sequence must be given", i)
+		}
+	}
 	items := append([]*Value{}, c.in...)
 	return []*Value{seqValue(seqElemType(items, c.in[0].Type), items, true)}, nil
 }
@@ -602,7 +607,7 @@ func inferConcatFromSequence(c *ctx) ([]*Value, error) {
 		if newAxis {
 			out = append(append(out[:axis:axis], symbolic("seq_len")), el.Shape[axis:]...)
 		} else {
-			out[axis] = symbolic("concat_" + c.node.Outputs[0])
+			out[axis] = symbolic("concat_" + c.outName(0))
 		}
 		return []*Value{tensor(el.DType, out)}, nil
 	}
@@ -777,7 +782,7 @@ func inferStringNormalizer(c *ctx) ([]*Value, error) {
 	} else if len(stop) == 0 {
 		return []*Value{tensor(model.String, s.Clone())}, nil
 	} else {
-		kept = symbolic("kept_" + c.node.Outputs[0])
+		kept = symbolic("kept_" + c.outName(0))
 	}
 	out := s.Clone()
 	if len(out) == 0 {

@@ -202,7 +202,7 @@ func inferReshape(c *ctx) ([]*Value, error) {
 				if err := checkRuntimeRank(n); err != nil {
 					return nil, err
 				}
-				return []*Value{unknownRankN(in.Type.DType, int(n), c.node.Outputs[0])}, nil
+				return []*Value{unknownRankN(in.Type.DType, int(n), c.outName(0))}, nil
 			}
 			return nil, fmt.Errorf("shape input (%q) is computed at run time and its length is unknown", c.node.Inputs[1])
 		}
@@ -458,9 +458,11 @@ func concatAxis(c *ctx, axis int, out model.Shape) *Data {
 	if !ok {
 		return nil
 	}
-	outer := int64(1)
-	for _, d := range od[:axis] {
-		outer *= d
+	outer, ok := model.KnownShape(od[:axis]...).Elements()
+	if !ok || outer > maxFoldElements {
+		// Many empty slices (a zero dim further in) fold to nothing worth
+		// the loop.
+		return nil
 	}
 	var parts []*Data
 	for o := int64(0); o < outer; o++ {
@@ -498,6 +500,9 @@ func inferSplit(c *ctx) ([]*Value, error) {
 		return nil, err
 	}
 	n := len(c.node.Outputs)
+	if n == 0 {
+		return nil, fmt.Errorf("Split has no outputs")
+	}
 	var sizes []int64
 	switch {
 	case c.opset >= 13 && c.has(1):
@@ -865,7 +870,7 @@ func inferRange(c *ctx) ([]*Value, error) {
 				return []*Value{tensor(dt, model.Shape{dimMax(dimSub(b[0], a[0]), model.Known(0))})}, nil
 			}
 		}
-		return []*Value{tensor(dt, model.Shape{symbolic("range_" + c.node.Outputs[0])})}, nil
+		return []*Value{tensor(dt, model.Shape{symbolic("range_" + c.outName(0))})}, nil
 	}
 	if delta[0] == 0 {
 		return nil, fmt.Errorf("delta is 0")
@@ -906,7 +911,7 @@ func inferConstantOfShape(c *ctx) ([]*Value, error) {
 			if err := checkRuntimeRank(sv.Type.Shape[0].Value); err != nil {
 				return nil, err
 			}
-			return []*Value{unknownRankN(dt, int(sv.Type.Shape[0].Value), c.node.Outputs[0])}, nil
+			return []*Value{unknownRankN(dt, int(sv.Type.Shape[0].Value), c.outName(0))}, nil
 		}
 		return nil, fmt.Errorf("shape input (%q) is computed at run time", c.node.Inputs[0])
 	}
@@ -1066,7 +1071,7 @@ func inferNonZero(c *ctx) ([]*Value, error) {
 	vals, ok := in.Const.AsFloats()
 	dims, ok2 := in.Type.Shape.Ints()
 	if !ok || !ok2 {
-		return []*Value{tensor(model.Int64, model.Shape{model.Known(r), symbolic("nonzero_" + c.node.Outputs[0])})}, nil
+		return []*Value{tensor(model.Int64, model.Shape{model.Known(r), symbolic("nonzero_" + c.outName(0))})}, nil
 	}
 	st := strides(dims)
 	var hits [][]int64
@@ -1104,7 +1109,7 @@ func inferCompress(c *ctx) ([]*Value, error) {
 		}
 		count = model.Known(n)
 	} else {
-		count = symbolic("compress_" + c.node.Outputs[0])
+		count = symbolic("compress_" + c.outName(0))
 	}
 	a := c.attr("axis")
 	if a == nil {
@@ -1156,14 +1161,20 @@ func inferUnique(c *ctx) ([]*Value, error) {
 				coords(k, st, co)
 				groups[co[axis]] = append(groups[co[axis]], int(k))
 			}
-			for i := int64(0); i < dims[axis]; i++ {
-				seen[fmt.Sprint(in.Const.take(groups[i]))] = true
+			if dims[axis] > int64(in.Const.Len()) {
+				// The other dims hold a zero: every slice is empty, so all
+				// are one value (none when the axis is empty too).
+				count = model.Known(min(1, dims[axis]))
+			} else {
+				for i := int64(0); i < dims[axis]; i++ {
+					seen[fmt.Sprint(in.Const.take(groups[i]))] = true
+				}
+				count = model.Known(int64(len(seen)))
 			}
-			count = model.Known(int64(len(seen)))
 		}
 	}
 	if count == (model.Dim{}) {
-		count = symbolic("unique_" + c.node.Outputs[0])
+		count = symbolic("unique_" + c.outName(0))
 	}
 	var y model.Shape
 	if a == nil {

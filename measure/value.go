@@ -112,7 +112,7 @@ func concatData(parts []*Data) *Data {
 
 // KnownInts returns the contents as int64s when every element is known.
 func (d *Data) KnownInts() ([]int64, bool) {
-	if d == nil {
+	if d == nil || d.Strings != nil {
 		return nil, false
 	}
 	if d.Floats != nil {
