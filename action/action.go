@@ -11,6 +11,7 @@ package action
 
 import (
 	"context"
+	"io"
 	"os"
 	"strings"
 	"time"
@@ -58,6 +59,12 @@ type Poster interface {
 // On GitHub the annotations go to standard output, where the runner reads
 // workflow commands.
 func Detect(getenv func(string) string) (Poster, bool) {
+	return DetectTo(getenv, os.Stdout)
+}
+
+// DetectTo is Detect with the annotations written to w (the command's
+// standard output, as the caller holds it).
+func DetectTo(getenv func(string) string, w io.Writer) (Poster, bool) {
 	retry := Retry{}
 	if d, err := time.ParseDuration(getenv("LOADLINE_API_TIMEOUT")); err == nil && d > 0 {
 		retry.Timeout = d
@@ -69,7 +76,7 @@ func Detect(getenv func(string) string) (Poster, bool) {
 	switch {
 	case getenv("GITHUB_ACTIONS") == "true":
 		env, err := GitHubEnvFrom(getenv)
-		g := NewGitHub(env, os.Stdout)
+		g := NewGitHub(env, w)
 		g.EnvErr = err
 		g.Retry = retry
 		g.Comment = comment

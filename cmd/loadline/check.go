@@ -145,7 +145,7 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 			}
 			fmt.Fprintf(stderr, "loadline: %d model(s) changed, %d measured, %d from cache\n", len(res.Models), stats.Measured.Load(), stats.CacheHits.Load())
 			if post {
-				if err := postResult(res, stderr); err != nil && postRequired {
+				if err := postResult(res, stdout, stderr); err != nil && postRequired {
 					return &exitError{exitEnviron, err}
 				}
 			}
@@ -170,8 +170,8 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 // postResult publishes the markdown report on the platform the environment
 // names. Posting never changes the verdict; failures are returned for the
 // caller to report.
-func postResult(res *budget.Result, stderr io.Writer) error {
-	poster, ok := action.Detect(os.Getenv)
+func postResult(res *budget.Result, stdout, stderr io.Writer) error {
+	poster, ok := action.DetectTo(os.Getenv, stdout)
 	if !ok {
 		fmt.Fprintln(stderr, "loadline: --post: no supported CI platform in the environment (GITHUB_ACTIONS or GITLAB_CI); nothing posted")
 		return nil
