@@ -31,7 +31,7 @@ type Cache struct {
 // used when they are unchanged too.
 type cacheEntry struct {
 	Version string            `json:"version"`
-	Deps    map[string]string `json:"deps"` // repository path → blob id
+	Deps    map[string]string `json:"deps"` // path from the model's folder → blob id
 	Metrics *measure.Metrics  `json:"metrics"`
 }
 

@@ -9,6 +9,7 @@ import (
 	"testing"
 
 	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/measure"
 	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/model/build"
 	"github.com/loadline/loadline/model/onnx"
@@ -157,5 +158,34 @@ func TestGitHubBaseFromEnvironment(t *testing.T) {
 	}
 	if res.Base.Ref != "origin/release" || res.Verdict != budget.Fail {
 		t.Fatalf("base %q verdict %s", res.Base.Ref, res.Verdict)
+	}
+}
+
+// TestCacheExternalDataOfEachCopy: the same model blob in two folders
+// reads the external data beside each copy; a cached entry of one copy
+// must not answer for the other.
+func TestCacheExternalDataOfEachCopy(t *testing.T) {
+	g := newGitRepo(t)
+	m8, w8 := externalModel(t, 8)
+	g.write("models/a/model.onnx", m8)
+	g.write("models/a/weights.bin", w8)
+	g.write("models/b/model.onnx", m8) // a copy whose weights were not committed
+	g.commit("two copies")
+	r, err := OpenRepo(g.dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := r.Resolve("HEAD")
+	if err != nil {
+		t.Fatal(err)
+	}
+	cache := NewCache(r)
+	var st Stats
+	if m := measureBlobs([]blobJob{{s, "models/a/model.onnx"}}, measure.Options{}, cache, &st)[0]; m.Error != "" {
+		t.Fatalf("models/a: %s", m.Error)
+	}
+	m := measureBlobs([]blobJob{{s, "models/b/model.onnx"}}, measure.Options{}, cache, &st)[0]
+	if !strings.Contains(m.Error, "models/b/weights.bin") {
+		t.Fatalf("models/b has no weights.bin beside it, yet measured without error (cache hits %d): %q", st.CacheHits.Load(), m.Error)
 	}
 }

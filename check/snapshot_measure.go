@@ -5,6 +5,7 @@ import (
 	"path"
 	"path/filepath"
 	"runtime"
+	"strings"
 	"sync"
 	"sync/atomic"
 
@@ -56,8 +57,13 @@ func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stat
 		return fail(fmt.Errorf("%s: not in %s", p, s.Label))
 	}
 	key := cacheKey(h.String(), opts.Dims)
+	// External data is resolved against the model's own folder, and the
+	// same blob may sit in two folders with different data beside it: the
+	// cache records dependencies relative to the folder and checks them
+	// against this copy's folder.
+	dir := path.Dir(p)
 	if m := cache.Get(key, func(dep, blob string) bool {
-		dh, ok := s.Hash(dep)
+		dh, ok := s.Hash(path.Join(dir, dep))
 		return ok && dh.String() == blob
 	}); m != nil {
 		stats.CacheHits.Add(1)
@@ -75,15 +81,19 @@ func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stat
 	var mu sync.Mutex
 	m, err := onnx.Decode(data, onnx.Options{
 		Path: p,
-		Dir:  path.Dir(p),
+		Dir:  dir,
 		ReadFile: func(name string) ([]byte, error) {
 			rel := filepath.ToSlash(name)
 			dh, ok := s.Hash(rel)
 			if !ok {
-				return nil, fmt.Errorf("external data file %s is not in %s", rel, s.Label)
+				return nil, fmt.Errorf("external data file %s is not in %s (commit it beside the model)", rel, s.Label)
+			}
+			local := rel
+			if dir != "." {
+				local = strings.TrimPrefix(rel, dir+"/")
 			}
 			mu.Lock()
-			deps[rel] = dh.String()
+			deps[local] = dh.String()
 			mu.Unlock()
 			return s.Read(rel)
 		},
