@@ -417,8 +417,8 @@ func diffTrees(base, head *Snapshot, want func(p string) bool) ([]FileChange, er
 				out = append(out, FileChange{Path: from, Kind: "removed", OldHash: c.From.TreeEntry.Hash})
 			}
 		case from != to:
-			if want(to) || want(from) {
-				out = append(out, FileChange{Path: to, OldPath: from, Kind: "renamed", OldHash: c.From.TreeEntry.Hash, NewHash: c.To.TreeEntry.Hash})
+			if n, ok := narrowRename(FileChange{Path: to, OldPath: from, Kind: "renamed", OldHash: c.From.TreeEntry.Hash, NewHash: c.To.TreeEntry.Hash}, want); ok {
+				out = append(out, n)
 			}
 		default:
 			if want(to) && c.From.TreeEntry.Hash != c.To.TreeEntry.Hash {
@@ -428,6 +428,22 @@ func diffTrees(base, head *Snapshot, want func(p string) bool) ([]FileChange, er
 	}
 	sortChanges(out)
 	return out, nil
+}
+
+// narrowRename returns a rename as the paths want selects see it: a model
+// renamed to a path that is no model (m.onnx to m.onnx.bak) is removed, a
+// file renamed into a model path is an added model; ok is false when
+// neither side is wanted.
+func narrowRename(c FileChange, want func(string) bool) (FileChange, bool) {
+	switch to, from := want(c.Path), want(c.OldPath); {
+	case to && from:
+		return c, true
+	case to:
+		return FileChange{Path: c.Path, Kind: "added", NewHash: c.NewHash}, true
+	case from:
+		return FileChange{Path: c.OldPath, Kind: "removed", OldHash: c.OldHash}, true
+	}
+	return FileChange{}, false
 }
 
 func sortChanges(cs []FileChange) {

@@ -410,3 +410,36 @@ func TestCacheConcurrentRuns(t *testing.T) {
 		t.Errorf("after concurrent runs: measured %d, hits %d, models %d; want 0, 12, 6", st.Measured.Load(), st.CacheHits.Load(), len(res.Models))
 	}
 }
+
+// TestDiffRenameAcrossModelPaths: a rename that leaves or enters the set
+// of model paths is a removal or an addition, not a rename whose other
+// side cannot be measured.
+func TestDiffRenameAcrossModelPaths(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("models/a.onnx", smallModel(t, 8))
+	g.write("models/b.bin", smallModel(t, 9))
+	base := g.commit("baseline")
+	g.git("mv", "models/a.onnx", "models/a.onnx.bak")
+	g.git("mv", "models/b.bin", "models/b.onnx")
+	head := g.commit("swap")
+	r, err := OpenRepo(g.dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	bs, err := r.Resolve(base)
+	if err != nil {
+		t.Fatal(err)
+	}
+	hs, err := r.Resolve(head)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cs, err := Diff(bs, hs, isModel)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := "removed models/a.onnx; added models/b.onnx"
+	if got := changesText(cs); got != want {
+		t.Errorf("changes:\n got %s\nwant %s", got, want)
+	}
+}

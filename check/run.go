@@ -404,7 +404,15 @@ func withDataChanges(rg *Range, all []FileChange, want func(string) bool) ([]Fil
 	dataDirs := map[string]bool{}
 	listed := map[string]bool{}
 	for _, c := range all {
-		if want(c.Path) || (c.OldPath != "" && want(c.OldPath)) {
+		if c.OldPath != "" {
+			if n, ok := narrowRename(c, want); ok {
+				out = append(out, n)
+				listed[n.Path] = true
+				if n.Kind == "renamed" {
+					continue
+				}
+			}
+		} else if want(c.Path) {
 			out = append(out, c)
 			listed[c.Path] = true
 			continue

@@ -189,3 +189,22 @@ func TestCacheExternalDataOfEachCopy(t *testing.T) {
 		t.Fatalf("models/b has no weights.bin beside it, yet measured without error (cache hits %d): %q", st.CacheHits.Load(), m.Error)
 	}
 }
+
+// TestRunModelRenamedAway: a model renamed to a path that is no model is
+// judged as removed; it used to be measured at the new path and fail as an
+// unsupported format.
+func TestRunModelRenamedAway(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	g.write("m.onnx", smallModel(t, 8))
+	g.commit("base")
+	g.git("mv", "m.onnx", "m.onnx.bak")
+	g.commit("retire the model")
+	res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Models) != 1 || res.Models[0].Path != "m.onnx" || res.Models[0].Change != budget.Removed || res.Models[0].Error != "" || res.Verdict == budget.Fail {
+		t.Fatalf("verdict %s, models %+v; want m.onnx removed, no error", res.Verdict, res.Models)
+	}
+}
