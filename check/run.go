@@ -396,9 +396,10 @@ func isEnvMessage(msg string) bool {
 }
 
 // withDataChanges keeps the changes of model files and adds, as modified,
-// the unchanged models of a folder in which another file changed: a model
-// whose external data file (weights.bin beside model.onnx) changed, or was
-// removed, has changed too, though its own blob has not.
+// the unchanged models of a folder in or below which another file changed:
+// a model whose external data file (weights.bin beside model.onnx, or
+// data/weights.bin under it) changed, or was removed, has changed too,
+// though its own blob has not.
 func withDataChanges(rg *Range, all []FileChange, want func(string) bool) ([]FileChange, error) {
 	var out []FileChange
 	dataDirs := map[string]bool{}
@@ -417,9 +418,16 @@ func withDataChanges(rg *Range, all []FileChange, want func(string) bool) ([]Fil
 			listed[c.Path] = true
 			continue
 		}
-		dataDirs[path.Dir(c.Path)] = true
-		if c.OldPath != "" {
-			dataDirs[path.Dir(c.OldPath)] = true
+		// External data lies in the model's folder or below it, so a
+		// changed file concerns the models of its folder and of every
+		// folder above.
+		for _, p := range []string{c.Path, c.OldPath} {
+			for d := path.Dir(p); p != "" && !dataDirs[d]; d = path.Dir(d) {
+				dataDirs[d] = true
+				if d == "." || d == "/" {
+					break
+				}
+			}
 		}
 	}
 	if len(dataDirs) == 0 {

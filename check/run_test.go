@@ -53,6 +53,13 @@ func TestPrePushChecksPushedCommits(t *testing.T) {
 // externalModel is a model whose Conv weight lives in weights.bin beside it.
 func externalModel(t *testing.T, width int64) (modelBytes, weightBytes []byte) {
 	t.Helper()
+	return externalModelAt(t, width, "weights.bin")
+}
+
+// externalModelAt is externalModel with the weights at location, a path
+// from the model's folder.
+func externalModelAt(t *testing.T, width int64, location string) (modelBytes, weightBytes []byte) {
+	t.Helper()
 	b := build.New("ext", 13)
 	x := b.Input("x", model.Float32, 1, 3, 8, 8)
 	x = b.Conv("conv", x, build.Conv2D(width, 3, 1, 1))
@@ -68,7 +75,7 @@ func externalModel(t *testing.T, width int64) (modelBytes, weightBytes []byte) {
 	}
 	weightBytes = append([]byte{}, weightBytes...)
 	w.Data = model.TensorData{}
-	data, err := onnx.EncodeWithExternal(m, func(*model.Tensor) (string, int64) { return "weights.bin", 0 })
+	data, err := onnx.EncodeWithExternal(m, func(*model.Tensor) (string, int64) { return location, 0 })
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -206,5 +213,25 @@ func TestRunModelRenamedAway(t *testing.T) {
 	}
 	if len(res.Models) != 1 || res.Models[0].Path != "m.onnx" || res.Models[0].Change != budget.Removed || res.Models[0].Error != "" || res.Verdict == budget.Fail {
 		t.Fatalf("verdict %s, models %+v; want m.onnx removed, no error", res.Verdict, res.Models)
+	}
+}
+
+// TestExternalDataInASubfolder: external data may sit in a folder below
+// the model's; a change to it alone changes the model.
+func TestExternalDataInASubfolder(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	m, w := externalModelAt(t, 8, "data/weights.bin")
+	g.write("models/ext/model.onnx", m)
+	g.write("models/ext/data/weights.bin", w)
+	g.commit("base")
+	g.write("models/ext/data/weights.bin", make([]byte, len(w))) // pruned to zeros
+	g.commit("new weights, same graph")
+	res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Models) != 1 || res.Models[0].Path != "models/ext/model.onnx" || res.Models[0].Error != "" {
+		t.Fatalf("models %+v; want models/ext/model.onnx modified, measured", res.Models)
 	}
 }
