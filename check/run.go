@@ -266,8 +266,11 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	if inForce == nil {
 		return nil, nil, &BudgetFileError{Err: fmt.Errorf("no budget file: %s is in neither %s nor %s (write one with loadline init, or name it with --budget)", bpath, rg.BaseRef, rg.HeadRef)}
 	}
+	// A model is a file with a model extension; a rule's glob chooses
+	// among them. A folder glob ("models/**") also matches the notes and
+	// external data beside the models, which are no models to measure.
 	want := func(p string) bool {
-		return p != bpath && (IsModelPath(p) || len(inForce.Match(p)) > 0)
+		return p != bpath && IsModelPath(p)
 	}
 	all, err := Diff(rg.Base, rg.Head, func(p string) bool { return p != bpath })
 	if err != nil {

@@ -235,3 +235,24 @@ func TestExternalDataInASubfolder(t *testing.T) {
 		t.Fatalf("models %+v; want models/ext/model.onnx modified, measured", res.Models)
 	}
 }
+
+// TestRuleGlobSelectsOnlyModelFiles: a rule written as a folder glob
+// ("models/**") covers the models in it; the notes and data files beside
+// them are no models, and must not be measured as ones.
+func TestRuleGlobSelectsOnlyModelFiles(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte("version: 1\ndevices:\n  d: {ram: 64MiB}\nmodels:\n  - path: \"models/**\"\n    device: d\n    limits: {params: 1M}\n"))
+	g.write("models/kws/m.onnx", smallModel(t, 8))
+	g.write("models/kws/README.md", []byte("trained on the May set"))
+	g.commit("base")
+	g.write("models/kws/m.onnx", smallModel(t, 12))
+	g.write("models/kws/README.md", []byte("trained on the June set"))
+	g.commit("retrain")
+	res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Models) != 1 || res.Models[0].Path != "models/kws/m.onnx" || res.Verdict != budget.Pass {
+		t.Fatalf("verdict %s, models %+v; want models/kws/m.onnx alone, passing", res.Verdict, res.Models)
+	}
+}
