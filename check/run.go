@@ -7,6 +7,7 @@ import (
 	"io"
 	"os"
 	"path"
+	"path/filepath"
 	"strings"
 	"time"
 
@@ -238,10 +239,31 @@ func loadBudget(s *Snapshot, p, ref string) (*budget.File, error) {
 	return f, nil
 }
 
+// budgetPath turns --budget into a path from the repository root, as the
+// git trees name files: "./loadline.yaml" and an absolute path inside the
+// working tree are accepted, a path outside the repository is refused.
+func budgetPath(r *Repo, p string) (string, error) {
+	if p == "" {
+		return DefaultBudgetFile, nil
+	}
+	rel := p
+	if filepath.IsAbs(p) {
+		var err error
+		if rel, err = filepath.Rel(r.Root, p); err != nil {
+			rel = ".."
+		}
+	}
+	rel = path.Clean(filepath.ToSlash(rel))
+	if rel == "." || rel == ".." || strings.HasPrefix(rel, "../") || path.IsAbs(rel) {
+		return "", &BudgetFileError{Err: fmt.Errorf("--budget %q: give the budget file's path from the repository root (%s), e.g. loadline.yaml; it is read from git objects, not the working tree", p, r.Root)}
+	}
+	return rel, nil
+}
+
 func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
-	bpath := o.BudgetFile
-	if bpath == "" {
-		bpath = DefaultBudgetFile
+	bpath, err := budgetPath(r, o.BudgetFile)
+	if err != nil {
+		return nil, nil, err
 	}
 	baseBudget, err := loadBudget(rg.Base, bpath, rg.BaseRef)
 	if err != nil {

@@ -256,3 +256,31 @@ func TestRuleGlobSelectsOnlyModelFiles(t *testing.T) {
 		t.Fatalf("verdict %s, models %+v; want models/kws/m.onnx alone, passing", res.Verdict, res.Models)
 	}
 }
+
+// TestBudgetPathSpellings: --budget names the file from the repository
+// root; "./loadline.yaml" and an absolute path into the working tree are
+// the same file, and a path that leaves the repository is a budget-file
+// error that says what to give.
+func TestBudgetPathSpellings(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("ci/budget.yaml", []byte(runBudget))
+	g.write("m.onnx", smallModel(t, 8))
+	g.commit("base")
+	g.write("m.onnx", smallModel(t, 200))
+	g.commit("over budget")
+	for _, p := range []string{"ci/budget.yaml", "./ci/budget.yaml", "ci//budget.yaml", filepath.Join(g.dir, "ci", "budget.yaml")} {
+		res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", BudgetFile: p, NoCache: true})
+		if err != nil {
+			t.Errorf("--budget %s: %v", p, err)
+			continue
+		}
+		if res.Verdict != budget.Fail {
+			t.Errorf("--budget %s: verdict %s, want fail", p, res.Verdict)
+		}
+	}
+	_, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", BudgetFile: "../budget.yaml", NoCache: true})
+	var bf *BudgetFileError
+	if !errors.As(err, &bf) || !strings.Contains(err.Error(), "from the repository root") {
+		t.Errorf("--budget ../budget.yaml: %v; want a budget-file error naming the repository root", err)
+	}
+}
