@@ -16,7 +16,7 @@ import (
 type InitOptions struct {
 	Dir string // the folder to search for models; its budget file is written there
 	// Headroom is the share added to today's figures to make the starter
-	// limits, e.g. 0.10 for 10 %.
+	// limits, e.g. 0.10 for 10 %; 0 sets the limits at today's figures.
 	Headroom float64
 }
 
@@ -25,8 +25,8 @@ type InitOptions struct {
 // models, limits at today's figures plus the headroom, and comments that
 // explain each key. It returns the figures too, for the caller's summary.
 func StarterBudget(o InitOptions) (string, []*measure.Metrics, error) {
-	if o.Headroom <= 0 {
-		o.Headroom = 0.10
+	if o.Headroom < 0 || math.IsNaN(o.Headroom) {
+		return "", nil, fmt.Errorf("headroom %g: give a share of 0 or more, e.g. 0.10 for 10 %%", o.Headroom)
 	}
 	var paths []string
 	err := filepath.WalkDir(o.Dir, func(p string, d fs.DirEntry, err error) error {

@@ -273,6 +273,10 @@ func TestInitWritesAParsableBudget(t *testing.T) {
 			t.Errorf("starter budget lacks %q:\n%s", want, text)
 		}
 	}
+	// --headroom 0 sets the limits at today's figures: 260 params.
+	if code, out, errs := inDir(t, dir, "init", "--headroom", "0", "--stdout"); code != exitOK || !strings.Contains(out, "params: 260\n") {
+		t.Errorf("init --headroom 0: exit %d, want the limits at today's params (260):\n%s%s", code, out, errs)
+	}
 	if code, _, _ := inDir(t, dir, "init"); code != exitUsage {
 		t.Errorf("init over an existing file: exit %d, want %d", code, exitUsage)
 	}
