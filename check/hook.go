@@ -6,6 +6,8 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+
+	"github.com/go-git/go-git/v5/config"
 )
 
 // hookMarker is on the second line of every hook loadline writes; a hook
@@ -28,11 +30,11 @@ type HookOptions struct {
 // HooksDir returns the folder git runs hooks from: core.hooksPath when set
 // (relative to the top of the working tree), else <git dir>/hooks.
 func (r *Repo) HooksDir() (string, error) {
-	cfg, err := r.r.Config()
+	p, err := r.hooksPath()
 	if err != nil {
-		return "", &EnvError{Err: fmt.Errorf("reading git config: %w", err)}
+		return "", err
 	}
-	if p := cfg.Raw.Section("core").Option("hooksPath"); p != "" {
+	if p != "" {
 		if strings.HasPrefix(p, "~/") {
 			if home, err := os.UserHomeDir(); err == nil {
 				p = filepath.Join(home, p[2:])
@@ -44,6 +46,48 @@ func (r *Repo) HooksDir() (string, error) {
 		return p, nil
 	}
 	return filepath.Join(r.CommonDir, "hooks"), nil
+}
+
+// hooksPath returns core.hooksPath as git reads it: the repository's own
+// config first, then the user's global config (GIT_CONFIG_GLOBAL, else
+// $XDG_CONFIG_HOME/git/config or ~/.gitconfig), then the system's unless
+// GIT_CONFIG_NOSYSTEM is set. A hook written to .git/hooks while a global
+// core.hooksPath is in force would never run.
+func (r *Repo) hooksPath() (string, error) {
+	cfg, err := r.r.Config()
+	if err != nil {
+		return "", &EnvError{Err: fmt.Errorf("reading %s: %w", filepath.Join(r.CommonDir, "config"), err), Hint: "fix the repository's git config (git config --list --local shows what git makes of it)"}
+	}
+	if p := cfg.Raw.Section("core").Option("hooksPath"); p != "" {
+		return p, nil
+	}
+	var global *config.Config
+	if f := os.Getenv("GIT_CONFIG_GLOBAL"); f != "" {
+		b, rerr := os.ReadFile(f)
+		if rerr == nil {
+			global = config.NewConfig()
+			rerr = global.Unmarshal(b)
+		}
+		err = rerr
+	} else {
+		global, err = config.LoadConfig(config.GlobalScope)
+	}
+	if err != nil && !os.IsNotExist(err) {
+		return "", &EnvError{Err: fmt.Errorf("reading your global git config: %w", err), Hint: "fix it (git config --list --global shows what git makes of it)"}
+	}
+	if global != nil {
+		if p := global.Raw.Section("core").Option("hooksPath"); p != "" {
+			return p, nil
+		}
+	}
+	if os.Getenv("GIT_CONFIG_NOSYSTEM") != "" {
+		return "", nil
+	}
+	system, err := config.LoadConfig(config.SystemScope)
+	if err != nil {
+		return "", &EnvError{Err: fmt.Errorf("reading the system git config: %w", err), Hint: "fix it (git config --list --system shows what git makes of it)"}
+	}
+	return system.Raw.Section("core").Option("hooksPath"), nil
 }
 
 func hookScript(o HookOptions, chained string) string {

@@ -63,3 +63,32 @@ func TestHookHonoursHooksPath(t *testing.T) {
 		t.Error("an unknown stage must be refused")
 	}
 }
+
+// TestHookHonoursGlobalHooksPath: a core.hooksPath in the user's global git
+// config is where git looks for hooks; a hook written to .git/hooks instead
+// would never run.
+func TestHookHonoursGlobalHooksPath(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("m.onnx", smallModel(t, 8))
+	g.commit("base")
+	home := t.TempDir()
+	hooks := filepath.Join(home, "team-hooks")
+	t.Setenv("HOME", home)
+	t.Setenv("XDG_CONFIG_HOME", "")
+	t.Setenv("GIT_CONFIG_GLOBAL", "")
+	t.Setenv("GIT_CONFIG_NOSYSTEM", "1")
+	if err := os.WriteFile(filepath.Join(home, ".gitconfig"), []byte("[core]\n\thooksPath = "+hooks+"\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	r, err := OpenRepo(g.dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := r.InstallHook(HookOptions{Binary: "/usr/bin/loadline"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if want := filepath.Join(hooks, "pre-commit"); p != want {
+		t.Errorf("hook at %s, want %s (the global core.hooksPath)", p, want)
+	}
+}
