@@ -143,7 +143,7 @@ func (r *Repo) InstallHook(o HookOptions) (string, error) {
 		return "", err
 	}
 	if err := os.MkdirAll(dir, 0o755); err != nil {
-		return "", &EnvError{Err: err}
+		return "", &EnvError{Err: fmt.Errorf("making the hooks folder: %w", err), Hint: "git runs hooks from " + dir + " (core.hooksPath when set): make it a writable folder, or change core.hooksPath"}
 	}
 	p := filepath.Join(dir, stage)
 	chained := ""

@@ -258,6 +258,17 @@ func newInitCmd(stdout, stderr io.Writer) *cobra.Command {
 	return cmd
 }
 
+// hookExit maps hook install and uninstall errors to exit codes: the
+// environment's (a hooks folder that cannot be made or written) exit 3,
+// the rest (a foreign hook in the way, an unknown stage) are usage errors.
+func hookExit(err error) error {
+	var env *check.EnvError
+	if errors.As(err, &env) {
+		return &exitError{exitEnviron, err}
+	}
+	return &exitError{exitUsage, err}
+}
+
 func newHookCmd(stdout io.Writer) *cobra.Command {
 	hook := &cobra.Command{
 		Use:   "hook install|uninstall [--stage pre-commit|pre-push]",
@@ -278,7 +289,7 @@ func newHookCmd(stdout io.Writer) *cobra.Command {
 			}
 			p, err := r.InstallHook(o)
 			if err != nil {
-				return &exitError{exitUsage, err}
+				return hookExit(err)
 			}
 			fmt.Fprintln(stdout, "installed", p)
 			return nil
@@ -299,7 +310,7 @@ func newHookCmd(stdout io.Writer) *cobra.Command {
 			}
 			p, err := r.UninstallHook(stage)
 			if err != nil {
-				return &exitError{exitUsage, err}
+				return hookExit(err)
 			}
 			fmt.Fprintln(stdout, "removed", p)
 			return nil

@@ -286,3 +286,17 @@ func TestInitWritesAParsableBudget(t *testing.T) {
 		t.Errorf("today's model against the starter budget: exit %d\n%s\n%s", code, out, errs)
 	}
 }
+
+// TestHookInstallEnvironmentError: a core.hooksPath that names a file is
+// the environment's problem (exit 3), with a message that names the path
+// and says what to change.
+func TestHookInstallEnvironmentError(t *testing.T) {
+	dir := newRepo(t)
+	writeFile(t, dir, "hooks", []byte("not a folder"))
+	git(t, dir, "config", "core.hooksPath", "hooks")
+	t.Setenv("GIT_CONFIG_NOSYSTEM", "1")
+	code, _, errs := inDir(t, dir, "hook", "install")
+	if code != exitEnviron || !strings.Contains(errs, "core.hooksPath") {
+		t.Errorf("exit %d, want %d with a hint about core.hooksPath:\n%s", code, exitEnviron, errs)
+	}
+}
