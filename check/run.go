@@ -67,9 +67,11 @@ type Range struct {
 
 // ResolveRange picks base and head. Head: --head, else the index with
 // --staged, else HEAD. Base: --base (its merge-base with head on a branch),
-// else the pull request's base from the CI environment (GitHub's
-// GITHUB_BASE_REF, GitLab's CI_MERGE_REQUEST_DIFF_BASE_SHA), else HEAD for
-// --staged, else the merge-base of HEAD with the default branch.
+// else HEAD for --staged (what git commit would add to it, even when a
+// pre-commit hook runs on CI), else the pull request's base from the CI
+// environment (GitHub's GITHUB_BASE_REF, GitLab's
+// CI_MERGE_REQUEST_DIFF_BASE_SHA), else the merge-base of HEAD with the
+// default branch.
 func ResolveRange(r *Repo, o Options) (*Range, error) {
 	getenv := o.Getenv
 	if getenv == nil {
@@ -94,7 +96,7 @@ func ResolveRange(r *Repo, o Options) (*Range, error) {
 	}
 	base := o.Base
 	mergeBase := true
-	if base == "" {
+	if base == "" && !o.Staged {
 		if ref := getenv("GITHUB_BASE_REF"); ref != "" {
 			base = "origin/" + ref
 		} else if sha := getenv("CI_MERGE_REQUEST_DIFF_BASE_SHA"); sha != "" {

@@ -284,3 +284,26 @@ func TestBudgetPathSpellings(t *testing.T) {
 		t.Errorf("--budget ../budget.yaml: %v; want a budget-file error naming the repository root", err)
 	}
 }
+
+// TestStagedIgnoresPullRequestBase: --staged compares the index with HEAD
+// also when a pre-commit hook runs inside a pull-request job; the pull
+// request's base used to replace HEAD, and without a merge-base, so the
+// commits already on the branch were judged as staged changes.
+func TestStagedIgnoresPullRequestBase(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	g.write("m.onnx", smallModel(t, 8))
+	g.commit("base")
+	g.git("update-ref", "refs/remotes/origin/main", "HEAD")
+	g.git("checkout", "-q", "-b", "feature")
+	g.write("m.onnx", smallModel(t, 200))
+	g.commit("over budget, already committed")
+	env := map[string]string{"GITHUB_BASE_REF": "main"}
+	res, _, err := Run(Options{Dir: g.dir, Staged: true, Getenv: func(k string) string { return env[k] }, NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Base.Ref != "HEAD" || len(res.Models) != 0 {
+		t.Fatalf("base %q, %d model(s); want HEAD and nothing staged", res.Base.Ref, len(res.Models))
+	}
+}
