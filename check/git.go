@@ -147,7 +147,10 @@ func (r *Repo) Index() (*Snapshot, error) {
 	}
 	files := make(map[string]plumbing.Hash, len(idx.Entries))
 	for _, e := range idx.Entries {
-		if e.Mode == filemode.Submodule || e.Stage != 0 {
+		// Submodules are no files; an unmerged path has no staged content
+		// yet; an intent-to-add entry (git add -N) names the empty blob
+		// and git commit leaves it out.
+		if e.Mode == filemode.Submodule || e.Stage != 0 || e.IntentToAdd {
 			continue
 		}
 		files[e.Name] = e.Hash

@@ -307,3 +307,22 @@ func TestStagedIgnoresPullRequestBase(t *testing.T) {
 		t.Fatalf("base %q, %d model(s); want HEAD and nothing staged", res.Base.Ref, len(res.Models))
 	}
 }
+
+// TestStagedIntentToAdd: a file added with git add -N is not staged
+// content (git commit leaves it out); its index entry names a blob git
+// never wrote, which failed the check as a missing object (exit 3).
+func TestStagedIntentToAdd(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	g.write("m.onnx", smallModel(t, 8))
+	g.commit("base")
+	g.write("later.onnx", smallModel(t, 200))
+	g.git("add", "-N", "later.onnx")
+	res, _, err := Run(Options{Dir: g.dir, Staged: true, NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Models) != 0 || res.Verdict != budget.Pass {
+		t.Fatalf("verdict %s, models %+v; want nothing staged", res.Verdict, res.Models)
+	}
+}
