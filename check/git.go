@@ -19,7 +19,6 @@ import (
 	"github.com/go-git/go-git/v5/plumbing"
 	"github.com/go-git/go-git/v5/plumbing/filemode"
 	"github.com/go-git/go-git/v5/plumbing/object"
-	"github.com/go-git/go-git/v5/plumbing/storer"
 )
 
 // EnvError is an error of the environment rather than of the change:
@@ -224,13 +223,23 @@ func (s *Snapshot) Paths() ([]string, error) {
 		sort.Strings(out)
 		return out, nil
 	}
+	// Walk the trees only: tree.Files() would load every blob of the
+	// revision, all the models' bytes included, and fail in a blobless
+	// clone on a blob nobody asked for.
 	var out []string
-	err := s.tree.Files().ForEach(func(f *object.File) error {
-		out = append(out, f.Name)
-		return nil
-	})
-	if err != nil && !errors.Is(err, storer.ErrStop) {
-		return nil, &EnvError{Err: fmt.Errorf("listing %s: %w", s.Label, err)}
+	w := object.NewTreeWalker(s.tree, true, nil)
+	defer w.Close()
+	for {
+		name, e, err := w.Next()
+		if errors.Is(err, io.EOF) {
+			break
+		}
+		if err != nil {
+			return nil, &EnvError{Err: fmt.Errorf("listing the files of %s: %w", s.Label, err), Hint: "fetch the revision's trees (git fetch)"}
+		}
+		if e.Mode.IsFile() {
+			out = append(out, name)
+		}
 	}
 	sort.Strings(out)
 	return out, nil

@@ -3,6 +3,7 @@ package check
 import (
 	"errors"
 	"fmt"
+	"os"
 	"os/exec"
 	"path/filepath"
 	"strings"
@@ -324,5 +325,31 @@ func TestStagedIntentToAdd(t *testing.T) {
 	}
 	if len(res.Models) != 0 || res.Verdict != budget.Pass {
 		t.Fatalf("verdict %s, models %+v; want nothing staged", res.Verdict, res.Models)
+	}
+}
+
+// TestRunDoesNotReadUnrelatedBlobs: listing a revision's files reads its
+// trees, not its blobs. A blobless clone lacks the blobs of files nobody
+// changed; loading them all (tree.Files) failed the check as a missing
+// object and read every model's bytes besides.
+func TestRunDoesNotReadUnrelatedBlobs(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	g.write("m.onnx", smallModel(t, 8))
+	g.write("docs/manual.txt", []byte("a blob this clone does not have"))
+	g.commit("base")
+	g.write("m.onnx", smallModel(t, 12))
+	g.write("notes.txt", []byte("retrained"))
+	g.commit("retrain")
+	blob := g.git("rev-parse", "HEAD:docs/manual.txt")
+	if err := os.Remove(filepath.Join(g.dir, ".git", "objects", blob[:2], blob[2:])); err != nil {
+		t.Fatal(err)
+	}
+	res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Models) != 1 || res.Models[0].Error != "" {
+		t.Fatalf("models %+v; want m.onnx measured", res.Models)
 	}
 }
