@@ -379,10 +379,10 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 			}
 		}
 		if pairs[i].base >= 0 {
-			m := metrics[pairs[i].base]
-			if m.Error == "" {
-				in.Base = Figures(m)
-			}
+			// A base that cannot be measured is passed on with every
+			// figure unknown and the reason, so a growth rule says why it
+			// was not judged instead of taking the model for a new one.
+			in.Base = Figures(metrics[pairs[i].base])
 		}
 		inputs[i] = in
 	}

@@ -353,3 +353,28 @@ func TestRunDoesNotReadUnrelatedBlobs(t *testing.T) {
 		t.Fatalf("models %+v; want m.onnx measured", res.Models)
 	}
 }
+
+// TestUnmeasurableBaseIsNotANewModel: when the base side of a modified
+// model cannot be measured, a growth rule says so, with the reason; it
+// used to call the model new.
+func TestUnmeasurableBaseIsNotANewModel(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte("version: 1\ndevices:\n  d: {ram: 64MiB}\nmodels:\n  - path: \"*.onnx\"\n    device: d\n    limits: {params: 1M}\n    growth: {params: 1%}\n"))
+	g.write("m.onnx", []byte("a half-written export"))
+	g.commit("base")
+	g.write("m.onnx", smallModel(t, 200))
+	g.commit("head")
+	res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var growth string
+	for _, c := range res.Models[0].Checks {
+		if c.Kind == "growth" {
+			growth = c.Reason
+		}
+	}
+	if strings.Contains(growth, "new model") || !strings.Contains(growth, "cannot be computed: m.onnx") {
+		t.Errorf("growth reason %q; want the base's measuring error, not a new model", growth)
+	}
+}
