@@ -255,10 +255,19 @@ func (s *Snapshot) Read(p string) ([]byte, error) {
 	if !ok {
 		return nil, fmt.Errorf("%s: not in %s", p, s.Label)
 	}
-	return s.repo.readBlob(h, p, s.Label)
+	return s.repo.readBlob(h, p, s.Label, s.fetchRef())
 }
 
-func (r *Repo) readBlob(h plumbing.Hash, p, label string) ([]byte, error) {
+// fetchRef is what to name to git lfs fetch for the snapshot's objects:
+// its commit, or HEAD for the index (whose LFS objects git add stored).
+func (s *Snapshot) fetchRef() string {
+	if s.tree == nil {
+		return "HEAD"
+	}
+	return s.Commit.String()
+}
+
+func (r *Repo) readBlob(h plumbing.Hash, p, label, fetchRef string) ([]byte, error) {
 	blob, err := r.r.BlobObject(h)
 	if err != nil {
 		return nil, &EnvError{Err: fmt.Errorf("%s at %s: blob %s is missing from the object store: %w", p, label, h, err), Hint: "fetch the revision's objects (git fetch)"}
@@ -276,10 +285,20 @@ func (r *Repo) readBlob(h plumbing.Hash, p, label string) ([]byte, error) {
 		return nil, &EnvError{Err: fmt.Errorf("%s at %s: reading blob %s: %w", p, label, h, err)}
 	}
 	if ptr, ok := parseLFSPointer(data); ok {
-		return r.readLFS(ptr, p, label)
+		return r.readLFS(ptr, p, label, fetchRef)
+	}
+	if len(data) <= maxLFSPointer && bytes.HasPrefix(data, []byte(lfsVersionPrefix)) {
+		return nil, fmt.Errorf("%s at %s is a Git LFS pointer that does not parse (it needs an \"oid sha256:<64 hex digits>\" line and a \"size <bytes>\" line): commit the model again with Git LFS installed (git lfs install, then git add --renormalize %s)", p, label, p)
 	}
 	return data, nil
 }
+
+// lfsVersionPrefix starts every Git LFS pointer file; maxLFSPointer is the
+// largest pointer the specification allows.
+const (
+	lfsVersionPrefix = "version https://git-lfs.github.com/spec/"
+	maxLFSPointer    = 1024
+)
 
 // lfsPointer is a Git LFS pointer file's content.
 type lfsPointer struct {
@@ -290,7 +309,7 @@ type lfsPointer struct {
 // parseLFSPointer recognises the pointer format of the Git LFS
 // specification: a version line, an "oid sha256:" line and a size line.
 func parseLFSPointer(b []byte) (lfsPointer, bool) {
-	if len(b) > 1024 || !bytes.HasPrefix(b, []byte("version https://git-lfs.github.com/spec/")) {
+	if len(b) > maxLFSPointer || !bytes.HasPrefix(b, []byte(lfsVersionPrefix)) {
 		return lfsPointer{}, false
 	}
 	var p lfsPointer
@@ -316,13 +335,13 @@ func parseLFSPointer(b []byte) (lfsPointer, bool) {
 	return p, true
 }
 
-func (r *Repo) readLFS(ptr lfsPointer, p, label string) ([]byte, error) {
+func (r *Repo) readLFS(ptr lfsPointer, p, label, fetchRef string) ([]byte, error) {
 	obj := filepath.Join(r.CommonDir, "lfs", "objects", ptr.OID[0:2], ptr.OID[2:4], ptr.OID)
 	st, err := os.Stat(obj)
 	if err != nil {
 		return nil, &EnvError{
 			Err:  fmt.Errorf("%s at %s is a Git LFS pointer (oid %s…, %d bytes) and the object is not in the local LFS store", p, label, ptr.OID[:12], ptr.Size),
-			Hint: "fetch it: git lfs fetch origin " + label + " (on CI, check out with lfs: true)",
+			Hint: "fetch it: git lfs fetch origin " + fetchRef + " (on CI, check out with lfs: true)",
 		}
 	}
 	if st.Size() != ptr.Size || ptr.Size > maxBlob {

@@ -316,7 +316,7 @@ func TestLFS(t *testing.T) {
 	}
 	_, err = s.Read("m.onnx")
 	var env *EnvError
-	if !errors.As(err, &env) || !strings.Contains(err.Error(), "LFS") || !strings.Contains(env.Hint, "git lfs fetch") {
+	if !errors.As(err, &env) || !strings.Contains(err.Error(), "LFS") || !strings.Contains(env.Hint, "git lfs fetch origin "+s.Commit.String()) {
 		t.Fatalf("object missing: want an LFS environment error with a fetch hint, got %v", err)
 	}
 }
@@ -441,5 +441,26 @@ func TestDiffRenameAcrossModelPaths(t *testing.T) {
 	want := "removed models/a.onnx; added models/b.onnx"
 	if got := changesText(cs); got != want {
 		t.Errorf("changes:\n got %s\nwant %s", got, want)
+	}
+}
+
+// TestLFSPointerThatDoesNotParse: a blob that starts like an LFS pointer
+// but lacks its oid is reported as a broken pointer with what to do, not
+// measured as a model that is "not an ONNX model".
+func TestLFSPointerThatDoesNotParse(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("m.onnx", []byte("version https://git-lfs.github.com/spec/v1\noid sha256:12ab\nsize 1234\n"))
+	g.commit("a truncated pointer")
+	r, err := OpenRepo(g.dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := r.Resolve("HEAD")
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = s.Read("m.onnx")
+	if err == nil || !strings.Contains(err.Error(), "LFS pointer that does not parse") || !strings.Contains(err.Error(), "git add --renormalize m.onnx") {
+		t.Fatalf("want a broken-pointer error saying how to recommit, got %v", err)
 	}
 }
