@@ -94,6 +94,26 @@ func smallModel(t *testing.T, width int64) []byte {
 	return data
 }
 
+// snapshotAt opens the repository containing dir and resolves rev in it.
+func snapshotAt(t *testing.T, dir, rev string) (*Repo, *Snapshot) {
+	t.Helper()
+	r, err := OpenRepo(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return r, resolve(t, r, rev)
+}
+
+// resolve resolves rev in r.
+func resolve(t *testing.T, r *Repo, rev string) *Snapshot {
+	t.Helper()
+	s, err := r.Resolve(rev)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
+}
+
 func isModel(p string) bool { return strings.HasSuffix(p, ".onnx") }
 
 func changesText(cs []FileChange) string {
@@ -123,18 +143,8 @@ func TestDiffKinds(t *testing.T) {
 	g.write("README.txt", []byte("more notes"))      // not a model
 	head := g.commit("change")                       // d.onnx unchanged
 
-	r, err := OpenRepo(filepath.Join(g.dir, "models"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	bs, err := r.Resolve(base)
-	if err != nil {
-		t.Fatal(err)
-	}
-	hs, err := r.Resolve(head)
-	if err != nil {
-		t.Fatal(err)
-	}
+	r, bs := snapshotAt(t, filepath.Join(g.dir, "models"), base)
+	hs := resolve(t, r, head)
 	cs, err := Diff(bs, hs, isModel)
 	if err != nil {
 		t.Fatal(err)
@@ -244,14 +254,7 @@ func TestStagedOnly(t *testing.T) {
 	g.write("staged.onnx", smallModel(t, 16))
 	g.git("add", "staged.onnx")
 	g.write("unstaged.onnx", smallModel(t, 16)) // changed in the working tree only
-	r, err := OpenRepo(g.dir)
-	if err != nil {
-		t.Fatal(err)
-	}
-	head, err := r.Resolve("HEAD")
-	if err != nil {
-		t.Fatal(err)
-	}
+	r, head := snapshotAt(t, g.dir, "HEAD")
 	idx, err := r.Index()
 	if err != nil {
 		t.Fatal(err)
@@ -286,14 +289,7 @@ func TestLFS(t *testing.T) {
 	want := smallModel(t, 8)
 	g.write("m.onnx", want)
 	g.commit("lfs model")
-	r, err := OpenRepo(g.dir)
-	if err != nil {
-		t.Fatal(err)
-	}
-	s, err := r.Resolve("HEAD")
-	if err != nil {
-		t.Fatal(err)
-	}
+	r, s := snapshotAt(t, g.dir, "HEAD")
 	// The blob itself is a pointer.
 	h, _ := s.Hash("m.onnx")
 	raw, err := r.readRawBlob(h)
@@ -326,14 +322,7 @@ func TestCacheWarmAndCorrupt(t *testing.T) {
 	g.write("a.onnx", smallModel(t, 8))
 	g.write("b.onnx", smallModel(t, 12))
 	g.commit("base")
-	r, err := OpenRepo(g.dir)
-	if err != nil {
-		t.Fatal(err)
-	}
-	s, err := r.Resolve("HEAD")
-	if err != nil {
-		t.Fatal(err)
-	}
+	r, s := snapshotAt(t, g.dir, "HEAD")
 	cache := NewCache(r)
 	jobs := []blobJob{{s, "a.onnx"}, {s, "b.onnx"}}
 	var cold Stats
@@ -422,18 +411,8 @@ func TestDiffRenameAcrossModelPaths(t *testing.T) {
 	g.git("mv", "models/a.onnx", "models/a.onnx.bak")
 	g.git("mv", "models/b.bin", "models/b.onnx")
 	head := g.commit("swap")
-	r, err := OpenRepo(g.dir)
-	if err != nil {
-		t.Fatal(err)
-	}
-	bs, err := r.Resolve(base)
-	if err != nil {
-		t.Fatal(err)
-	}
-	hs, err := r.Resolve(head)
-	if err != nil {
-		t.Fatal(err)
-	}
+	r, bs := snapshotAt(t, g.dir, base)
+	hs := resolve(t, r, head)
 	cs, err := Diff(bs, hs, isModel)
 	if err != nil {
 		t.Fatal(err)
@@ -451,15 +430,8 @@ func TestLFSPointerThatDoesNotParse(t *testing.T) {
 	g := newGitRepo(t)
 	g.write("m.onnx", []byte("version https://git-lfs.github.com/spec/v1\noid sha256:12ab\nsize 1234\n"))
 	g.commit("a truncated pointer")
-	r, err := OpenRepo(g.dir)
-	if err != nil {
-		t.Fatal(err)
-	}
-	s, err := r.Resolve("HEAD")
-	if err != nil {
-		t.Fatal(err)
-	}
-	_, err = s.Read("m.onnx")
+	_, s := snapshotAt(t, g.dir, "HEAD")
+	_, err := s.Read("m.onnx")
 	if err == nil || !strings.Contains(err.Error(), "LFS pointer that does not parse") || !strings.Contains(err.Error(), "git add --renormalize m.onnx") {
 		t.Fatalf("want a broken-pointer error saying how to recommit, got %v", err)
 	}

@@ -179,14 +179,7 @@ func TestCacheExternalDataOfEachCopy(t *testing.T) {
 	g.write("models/a/weights.bin", w8)
 	g.write("models/b/model.onnx", m8) // a copy whose weights were not committed
 	g.commit("two copies")
-	r, err := OpenRepo(g.dir)
-	if err != nil {
-		t.Fatal(err)
-	}
-	s, err := r.Resolve("HEAD")
-	if err != nil {
-		t.Fatal(err)
-	}
+	r, s := snapshotAt(t, g.dir, "HEAD")
 	cache := NewCache(r)
 	var st Stats
 	if m := measureBlobs([]blobJob{{s, "models/a/model.onnx"}}, measure.Options{}, cache, &st)[0]; m.Error != "" {
