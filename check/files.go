@@ -36,27 +36,44 @@ func MeasureFiles(paths []string, opts measure.Options) []*measure.Metrics {
 
 // MeasureFile decodes and measures one model file.
 func MeasureFile(path string, opts measure.Options) *measure.Metrics {
-	fail := func(err error) *measure.Metrics {
-		return &measure.Metrics{Path: path, Format: formatOf(path), Error: err.Error(),
-			Inputs: []measure.IOInfo{}, Outputs: []measure.IOInfo{}, Unresolved: []measure.Unresolved{}}
-	}
-	if formatOf(path) != "onnx" {
-		return fail(fmt.Errorf("%s: unsupported model format (loadline reads .onnx files)", path))
+	if err := supported(path); err != nil {
+		return failed(path, err)
 	}
 	data, release, err := mapFile(path)
 	if err != nil {
-		return fail(err)
+		return failed(path, err)
 	}
 	defer release()
-	m, err := onnx.Decode(data, onnx.Options{Path: path})
+	return decodeAndMeasure(data, onnx.Options{Path: path}, opts)
+}
+
+// failed is the entry of a model that could not be measured: every list
+// empty, not null, as the JSON contract has them.
+func failed(path string, err error) *measure.Metrics {
+	return &measure.Metrics{Path: path, Format: formatOf(path), Error: err.Error(),
+		Inputs: []measure.IOInfo{}, Outputs: []measure.IOInfo{}, Unresolved: []measure.Unresolved{}}
+}
+
+// supported refuses the model formats loadline cannot read yet.
+func supported(path string) error {
+	if formatOf(path) != "onnx" {
+		return fmt.Errorf("%s: unsupported model format (loadline reads .onnx files)", path)
+	}
+	return nil
+}
+
+// decodeAndMeasure decodes an ONNX model held in data and measures it;
+// errors come back as a failed entry named dec.Path.
+func decodeAndMeasure(data []byte, dec onnx.Options, opts measure.Options) *measure.Metrics {
+	m, err := onnx.Decode(data, dec)
 	if err != nil {
-		return fail(err)
+		return failed(dec.Path, err)
 	}
 	met, err := measure.Measure(m, int64(len(data)), opts)
 	if err != nil {
-		return fail(fmt.Errorf("%s: %w", path, err))
+		return failed(dec.Path, fmt.Errorf("%s: %w", dec.Path, err))
 	}
-	met.Path = path
+	met.Path = dec.Path
 	return met
 }
 

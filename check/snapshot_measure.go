@@ -48,13 +48,9 @@ func measureBlobs(jobs []blobJob, opts measure.Options, cache *Cache, stats *Sta
 // (never from the working tree: what is checked is what is committed) and
 // measures it, using the cache when it can.
 func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stats *Stats) *measure.Metrics {
-	fail := func(err error) *measure.Metrics {
-		return &measure.Metrics{Path: p, Format: formatOf(p), Error: err.Error(),
-			Inputs: []measure.IOInfo{}, Outputs: []measure.IOInfo{}, Unresolved: []measure.Unresolved{}}
-	}
 	h, ok := s.Hash(p)
 	if !ok {
-		return fail(fmt.Errorf("%s: not in %s", p, s.Label))
+		return failed(p, fmt.Errorf("%s: not in %s", p, s.Label))
 	}
 	key := cacheKey(h.String(), opts.Dims)
 	// External data is resolved against the model's own folder, and the
@@ -70,16 +66,16 @@ func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stat
 		m.Path = p
 		return m
 	}
-	if formatOf(p) != "onnx" {
-		return fail(fmt.Errorf("%s: unsupported model format (loadline reads .onnx files)", p))
+	if err := supported(p); err != nil {
+		return failed(p, err)
 	}
 	data, err := s.Read(p)
 	if err != nil {
-		return fail(err)
+		return failed(p, err)
 	}
 	deps := map[string]string{}
 	var mu sync.Mutex
-	m, err := onnx.Decode(data, onnx.Options{
+	met := decodeAndMeasure(data, onnx.Options{
 		Path: p,
 		Dir:  dir,
 		ReadFile: func(name string) ([]byte, error) {
@@ -97,15 +93,10 @@ func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stat
 			mu.Unlock()
 			return s.Read(rel)
 		},
-	})
-	if err != nil {
-		return fail(err)
+	}, opts)
+	if met.Error != "" {
+		return met
 	}
-	met, err := measure.Measure(m, int64(len(data)), opts)
-	if err != nil {
-		return fail(fmt.Errorf("%s: %w", p, err))
-	}
-	met.Path = p
 	stats.Measured.Add(1)
 	cache.Put(key, met, deps)
 	return met
