@@ -58,26 +58,27 @@ func (c *Cache) file(key string) string {
 	return filepath.Join(c.Dir, key[:2], key+".json")
 }
 
-// Get returns the cached figures, or nil. depOK reports whether a
-// dependency's recorded blob id is still the one at the revision.
-func (c *Cache) Get(key string, depOK func(path, blob string) bool) *measure.Metrics {
+// Get returns the cached figures and the dependencies they were read with
+// (paths from the model's folder → blob id), or nil. depOK reports whether
+// a dependency's recorded blob id is still the one at the revision.
+func (c *Cache) Get(key string, depOK func(path, blob string) bool) (*measure.Metrics, map[string]string) {
 	if c == nil {
-		return nil
+		return nil, nil
 	}
 	b, err := os.ReadFile(c.file(key))
 	if err != nil {
-		return nil
+		return nil, nil
 	}
 	var e cacheEntry
 	if json.Unmarshal(b, &e) != nil || e.Version != AnalyzerVersion || e.Metrics == nil {
-		return nil // corrupt or stale: measured again and rewritten
+		return nil, nil // corrupt or stale: measured again and rewritten
 	}
 	for p, blob := range e.Deps {
 		if !depOK(p, blob) {
-			return nil
+			return nil, nil
 		}
 	}
-	return e.Metrics
+	return e.Metrics, e.Deps
 }
 
 // Put stores figures; errors are ignored because the cache only saves time.

@@ -365,6 +365,10 @@ type FileChange struct {
 	Kind    string // "added", "modified", "removed", "renamed"
 	OldHash plumbing.Hash
 	NewHash plumbing.Hash
+	// viaData marks a model whose own blob did not change, listed because
+	// a file in or below its folder did: it has changed only if it reads
+	// that file as external data.
+	viaData bool
 }
 
 // Diff lists the files whose path satisfies want and whose content differs

@@ -312,7 +312,6 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 		cache = NewCache(r)
 	}
 	stats := &Stats{}
-	type pair struct{ base, head int }
 	var jobs []blobJob
 	var dims []map[string]int64
 	pairs := make([]pair, len(changes))
@@ -346,6 +345,7 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 		}
 	}
 	metrics := make([]*measure.Metrics, len(jobs))
+	deps := make([][]string, len(jobs))
 	// Group jobs by dims so each group shares one pool.
 	groups := map[string][]int{}
 	for i, d := range dims {
@@ -359,9 +359,10 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 		}
 		out := measureBlobs(sub, measure.Options{Dims: dims[idx[0]], Layers: true}, cache, stats)
 		for j, i := range idx {
-			metrics[i] = out[j]
+			metrics[i], deps[i] = out[j].Metrics, out[j].deps
 		}
 	}
+	changes, pairs = dropUnreadData(changes, pairs, all, metrics, deps)
 	// A missing object is the environment's fault, not the model's.
 	for _, m := range metrics {
 		if m != nil && m.Error != "" && isEnvMessage(m.Error) {
@@ -408,6 +409,48 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	}
 	res.Problems = append(problems, res.Problems...)
 	return res, stats, nil
+}
+
+// pair indexes a change's head and base jobs; -1 when the side is absent.
+type pair struct{ base, head int }
+
+// dropUnreadData removes the models listed only because a file near them
+// changed (viaData) whose measurement read none of the changed files: a
+// README edited beside a model does not change the model. A side that
+// could not be measured keeps the model listed, since what it would have
+// read is unknown.
+func dropUnreadData(changes []FileChange, pairs []pair, all []FileChange, metrics []*measure.Metrics, deps [][]string) ([]FileChange, []pair) {
+	touched := map[string]bool{}
+	for _, c := range all {
+		touched[c.Path] = true
+		if c.OldPath != "" {
+			touched[c.OldPath] = true
+		}
+	}
+	reads := func(job int) bool {
+		if job < 0 {
+			return false
+		}
+		if metrics[job].Error != "" {
+			return true
+		}
+		for _, d := range deps[job] {
+			if touched[d] {
+				return true
+			}
+		}
+		return false
+	}
+	var keptChanges []FileChange
+	var keptPairs []pair
+	for i, c := range changes {
+		if c.viaData && !reads(pairs[i].head) && !reads(pairs[i].base) {
+			continue
+		}
+		keptChanges = append(keptChanges, c)
+		keptPairs = append(keptPairs, pairs[i])
+	}
+	return keptChanges, keptPairs
 }
 
 func commitOf(s *Snapshot) string {
@@ -471,7 +514,7 @@ func withDataChanges(rg *Range, all []FileChange, want func(string) bool) ([]Fil
 		oh, inBase := rg.Base.Hash(p)
 		nh, _ := rg.Head.Hash(p)
 		if inBase {
-			out = append(out, FileChange{Path: p, Kind: "modified", OldHash: oh, NewHash: nh})
+			out = append(out, FileChange{Path: p, Kind: "modified", OldHash: oh, NewHash: nh, viaData: true})
 		}
 	}
 	sortChanges(out)

@@ -221,12 +221,14 @@ func TestExternalDataInASubfolder(t *testing.T) {
 	g.commit("base")
 	g.write("models/ext/data/weights.bin", make([]byte, len(w))) // pruned to zeros
 	g.commit("new weights, same graph")
-	res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
-	if err != nil {
-		t.Fatal(err)
-	}
-	if len(res.Models) != 1 || res.Models[0].Path != "models/ext/model.onnx" || res.Models[0].Error != "" {
-		t.Fatalf("models %+v; want models/ext/model.onnx modified, measured", res.Models)
+	for _, cache := range []bool{false, true, true} { // uncached, cold, warm
+		res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: !cache})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(res.Models) != 1 || res.Models[0].Path != "models/ext/model.onnx" || res.Models[0].Error != "" {
+			t.Fatalf("cache %v: models %+v; want models/ext/model.onnx modified, measured", cache, res.Models)
+		}
 	}
 }
 
@@ -369,5 +371,32 @@ func TestUnmeasurableBaseIsNotANewModel(t *testing.T) {
 	}
 	if strings.Contains(growth, "new model") || !strings.Contains(growth, "cannot be computed: m.onnx") {
 		t.Errorf("growth reason %q; want the base's measuring error, not a new model", growth)
+	}
+}
+
+// TestNotesBesideAModelDoNotChangeIt: a model is listed for a change
+// near it only when it reads the changed file as external data; a README
+// edited beside it used to list it as modified in every report.
+func TestNotesBesideAModelDoNotChangeIt(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	g.write("models/kws/m.onnx", smallModel(t, 8))
+	m, w := externalModel(t, 8)
+	g.write("models/ext/model.onnx", m)
+	g.write("models/ext/weights.bin", w)
+	g.write("models/kws/README.md", []byte("May set"))
+	g.write("models/ext/README.md", []byte("May set"))
+	g.commit("base")
+	g.write("models/kws/README.md", []byte("June set"))
+	g.write("models/ext/README.md", []byte("June set"))
+	g.commit("notes only")
+	for _, cache := range []bool{false, true, true} { // uncached, cold, warm
+		res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: !cache})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(res.Models) != 0 {
+			t.Fatalf("cache %v: %d model(s) listed, first %s; notes changed, no model did", cache, len(res.Models), res.Models[0].Path)
+		}
 	}
 }

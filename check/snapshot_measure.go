@@ -5,6 +5,7 @@ import (
 	"path"
 	"path/filepath"
 	"runtime"
+	"sort"
 	"strings"
 	"sync"
 	"sync/atomic"
@@ -25,10 +26,17 @@ type blobJob struct {
 	path string
 }
 
+// measured is one job's figures and the repository paths of the external
+// data files they were read with.
+type measured struct {
+	*measure.Metrics
+	deps []string
+}
+
 // measureBlobs measures each job in a pool bounded by the number of CPUs;
 // each worker holds one model in memory at a time.
-func measureBlobs(jobs []blobJob, opts measure.Options, cache *Cache, stats *Stats) []*measure.Metrics {
-	out := make([]*measure.Metrics, len(jobs))
+func measureBlobs(jobs []blobJob, opts measure.Options, cache *Cache, stats *Stats) []measured {
+	out := make([]measured, len(jobs))
 	var wg sync.WaitGroup
 	sem := make(chan struct{}, max(1, runtime.NumCPU()))
 	for i, j := range jobs {
@@ -47,10 +55,10 @@ func measureBlobs(jobs []blobJob, opts measure.Options, cache *Cache, stats *Sta
 // measureBlob reads one model from the git object store at a snapshot
 // (never from the working tree: what is checked is what is committed) and
 // measures it, using the cache when it can.
-func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stats *Stats) *measure.Metrics {
+func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stats *Stats) measured {
 	h, ok := s.Hash(p)
 	if !ok {
-		return failed(p, fmt.Errorf("%s: not in %s", p, s.Label))
+		return measured{Metrics: failed(p, fmt.Errorf("%s: not in %s", p, s.Label))}
 	}
 	key := cacheKey(h.String(), opts.Dims)
 	// External data is resolved against the model's own folder, and the
@@ -58,20 +66,20 @@ func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stat
 	// cache records dependencies relative to the folder and checks them
 	// against this copy's folder.
 	dir := path.Dir(p)
-	if m := cache.Get(key, func(dep, blob string) bool {
+	if m, deps := cache.Get(key, func(dep, blob string) bool {
 		dh, ok := s.Hash(path.Join(dir, dep))
 		return ok && dh.String() == blob
 	}); m != nil {
 		stats.CacheHits.Add(1)
 		m.Path = p
-		return m
+		return measured{m, repoPaths(dir, deps)}
 	}
 	if err := supported(p); err != nil {
-		return failed(p, err)
+		return measured{Metrics: failed(p, err)}
 	}
 	data, err := s.Read(p)
 	if err != nil {
-		return failed(p, err)
+		return measured{Metrics: failed(p, err)}
 	}
 	deps := map[string]string{}
 	var mu sync.Mutex
@@ -95,9 +103,20 @@ func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stat
 		},
 	}, opts)
 	if met.Error != "" {
-		return met
+		return measured{Metrics: met}
 	}
 	stats.Measured.Add(1)
 	cache.Put(key, met, deps)
-	return met
+	return measured{met, repoPaths(dir, deps)}
+}
+
+// repoPaths turns dependencies named from a model's folder into
+// repository paths, sorted.
+func repoPaths(dir string, deps map[string]string) []string {
+	out := make([]string, 0, len(deps))
+	for d := range deps {
+		out = append(out, path.Join(dir, d))
+	}
+	sort.Strings(out)
+	return out
 }
