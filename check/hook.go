@@ -98,9 +98,9 @@ func hookScript(o HookOptions, chained string) string {
 		// hook reads the pushed refs on stdin, so save them for both.
 		if o.Stage == "pre-push" {
 			b.WriteString("input=$(cat)\n")
-			fmt.Fprintf(&b, "printf '%%s\\n' \"$input\" | %q \"$@\" || exit $?\n", chained)
+			fmt.Fprintf(&b, "printf '%%s\\n' \"$input\" | %s \"$@\" || exit $?\n", shellQuote(chained))
 		} else {
-			fmt.Fprintf(&b, "%q \"$@\" || exit $?\n", chained)
+			fmt.Fprintf(&b, "%s \"$@\" || exit $?\n", shellQuote(chained))
 		}
 	}
 	mode := "--staged"
@@ -110,15 +110,21 @@ func hookScript(o HookOptions, chained string) string {
 	args := append([]string{"check", mode}, o.Args...)
 	quoted := make([]string, len(args))
 	for i, a := range args {
-		quoted[i] = fmt.Sprintf("%q", a)
+		quoted[i] = shellQuote(a)
 	}
 	// The report goes to stderr, where git shows a hook's messages.
 	if o.Stage == "pre-push" && chained != "" {
-		fmt.Fprintf(&b, "printf '%%s\\n' \"$input\" | exec %q %s 1>&2\n", o.Binary, strings.Join(quoted, " "))
+		fmt.Fprintf(&b, "printf '%%s\\n' \"$input\" | exec %s %s 1>&2\n", shellQuote(o.Binary), strings.Join(quoted, " "))
 	} else {
-		fmt.Fprintf(&b, "exec %q %s 1>&2\n", o.Binary, strings.Join(quoted, " "))
+		fmt.Fprintf(&b, "exec %s %s 1>&2\n", shellQuote(o.Binary), strings.Join(quoted, " "))
 	}
 	return b.String()
+}
+
+// shellQuote quotes a word for sh: single quotes keep $, ` and \ as
+// they are (Go's %q left $HOME and `…` to the shell to expand).
+func shellQuote(w string) string {
+	return "'" + strings.ReplaceAll(w, "'", `'\''`) + "'"
 }
 
 func validStage(s string) (string, error) {

@@ -2,6 +2,7 @@ package check
 
 import (
 	"os"
+	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -28,7 +29,7 @@ func TestHookInstallRefusesForeignAndChains(t *testing.T) {
 		t.Fatal(err)
 	}
 	body, _ := os.ReadFile(p)
-	if !strings.Contains(string(body), foreign+chainedSuffix) || !strings.Contains(string(body), "check\" \"--staged") {
+	if !strings.Contains(string(body), foreign+chainedSuffix) || !strings.Contains(string(body), "'check' '--staged'") {
 		t.Errorf("hook does not chain and check staged changes:\n%s", body)
 	}
 	if _, err := r.UninstallHook("pre-commit"); err != nil {
@@ -90,5 +91,39 @@ func TestHookHonoursGlobalHooksPath(t *testing.T) {
 	}
 	if want := filepath.Join(hooks, "pre-commit"); p != want {
 		t.Errorf("hook at %s, want %s (the global core.hooksPath)", p, want)
+	}
+}
+
+// TestHookScriptQuotesForTheShell: the hook runs the binary it names
+// even when the path holds $, a backquote or a quote; Go's %q quoting let
+// the shell expand $HOME in it.
+func TestHookScriptQuotesForTheShell(t *testing.T) {
+	g := newGitRepo(t)
+	dir := filepath.Join(t.TempDir(), "it's $HOME `x`")
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	bin := filepath.Join(dir, "loadline")
+	ran := filepath.Join(t.TempDir(), "ran")
+	if err := os.WriteFile(bin, []byte("#!/bin/sh\nprintf '%s ' \"$@\" > '"+ran+"'\n"), 0o755); err != nil {
+		t.Fatal(err)
+	}
+	r, err := OpenRepo(g.dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := r.InstallHook(HookOptions{Binary: bin, Args: []string{"--budget", "ci/$budget.yaml"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if out, err := exec.Command("sh", p).CombinedOutput(); err != nil {
+		t.Fatalf("running the hook: %v\n%s", err, out)
+	}
+	got, err := os.ReadFile(ran)
+	if err != nil {
+		t.Fatalf("the hook did not run %s: %v", bin, err)
+	}
+	if want := "check --staged --budget ci/$budget.yaml "; string(got) != want {
+		t.Errorf("the hook passed %q, want %q", got, want)
 	}
 }
