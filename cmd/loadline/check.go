@@ -135,6 +135,9 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 			if o.Staged && (prePush || o.Head != "") {
 				return &exitError{exitUsage, errors.New("--staged compares the index with HEAD; it does not combine with --head or --pre-push")}
 			}
+			if prePush && (o.Base != "" || o.Head != "") {
+				return &exitError{exitUsage, errors.New("--pre-push takes base and head from git's pre-push input; it does not combine with --base or --head")}
+			}
 			if prePush {
 				o.PrePush = stdin
 			}

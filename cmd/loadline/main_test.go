@@ -110,6 +110,9 @@ func TestUsageErrors(t *testing.T) {
 		{"measure", "--dim", "batch", "x.onnx"},
 		{"measure", "--dim", "batch=-1", "x.onnx"},
 		{"frobnicate"},
+		{"check", "--pre-push", "--base", "main"},
+		{"check", "--staged", "--head", "HEAD"},
+		{"check", "--format", "html"},
 	} {
 		var out, errb bytes.Buffer
 		if code := run(args, &out, &errb); code != exitUsage {
