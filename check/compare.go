@@ -35,12 +35,8 @@ func Compare(o CompareOptions) (*budget.Result, error) {
 	if as == "" {
 		as = filepath.ToSlash(filepath.Clean(o.New))
 	}
-	dims := map[string]int64{}
-	for _, r := range f.Match(as) {
-		for k, v := range r.Dims {
-			dims[k] = v
-		}
-	}
+	// Rules that disagree on a dim are reported by Evaluate.
+	dims, _ := f.Dims(as)
 	ms := MeasureFiles([]string{o.Old, o.New}, measure.Options{Dims: dims, Layers: true})
 	in := budget.Input{Path: as, Change: budget.Modified}
 	if ms[0].Error != "" {

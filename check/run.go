@@ -316,13 +316,10 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	var dims []map[string]int64
 	pairs := make([]pair, len(changes))
 	dimsFor := func(p string) map[string]int64 {
-		out := map[string]int64{}
-		for _, rule := range inForce.Match(p) {
-			for k, v := range rule.Dims {
-				out[k] = v
-			}
-		}
-		return out
+		// Rules that disagree on a dim are reported by Evaluate, which
+		// fails the model; measure it with what the rules give meanwhile.
+		d, _ := inForce.Dims(p)
+		return d
 	}
 	for i, c := range changes {
 		pairs[i] = pair{-1, -1}
