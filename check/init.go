@@ -95,7 +95,7 @@ devices:
 models:
 `, pct)
 	for _, g := range groups {
-		glob := g.folder + "/*.onnx"
+		glob := escapeGlob(g.folder) + "/*.onnx"
 		if g.folder == "." {
 			glob = "*.onnx"
 		}
@@ -146,6 +146,23 @@ models:
 waivers: []
 `)
 	return b.String(), ms, nil
+}
+
+// escapeGlob makes a folder name match only itself in a budget glob: a
+// folder such as "cam[v2]" or "kws{a,b}" would otherwise be a pattern.
+// The budget file refuses backslashes in paths, so each special character
+// becomes a one-character class ("[[]v2]"); a "]" outside a class is
+// literal already.
+func escapeGlob(p string) string {
+	var b strings.Builder
+	for _, r := range p {
+		if strings.ContainsRune(`*?[{}`, r) {
+			b.WriteString("[" + string(r) + "]")
+			continue
+		}
+		b.WriteRune(r)
+	}
+	return b.String()
 }
 
 // yamlBytes writes a byte figure in the largest binary unit that keeps it
