@@ -109,6 +109,7 @@ type Snapshot struct {
 	Commit plumbing.Hash
 	tree   *object.Tree
 	files  map[string]plumbing.Hash // for the index
+	links  map[string]bool          // the index's symbolic links
 }
 
 // Resolve returns the snapshot of a revision ("HEAD", "origin/main", a hash).
@@ -145,6 +146,7 @@ func (r *Repo) Index() (*Snapshot, error) {
 		return nil, &EnvError{Err: fmt.Errorf("reading the git index: %w", err)}
 	}
 	files := make(map[string]plumbing.Hash, len(idx.Entries))
+	links := map[string]bool{}
 	for _, e := range idx.Entries {
 		// Submodules are no files; an unmerged path has no staged content
 		// yet; an intent-to-add entry (git add -N) names the empty blob
@@ -153,8 +155,11 @@ func (r *Repo) Index() (*Snapshot, error) {
 			continue
 		}
 		files[e.Name] = e.Hash
+		if e.Mode == filemode.Symlink {
+			links[e.Name] = true
+		}
 	}
-	return &Snapshot{repo: r, Label: "index", files: files}, nil
+	return &Snapshot{repo: r, Label: "index", files: files, links: links}, nil
 }
 
 // MergeBase returns the best common ancestor of two revisions.
@@ -199,18 +204,46 @@ func (r *Repo) DefaultBranch() (string, error) {
 	return "", &EnvError{Err: errors.New("cannot tell the default branch: no origin/HEAD, main or master"), Hint: "name the base with --base"}
 }
 
-// Hash returns the blob id of path in the snapshot; ok is false when the
-// file does not exist there.
+// maxLinkHops bounds how many symbolic links Hash follows for one path
+// (a cycle of links ends there); maxLinkTarget bounds a link's blob.
+const (
+	maxLinkHops   = 8
+	maxLinkTarget = 4096
+)
+
+// Hash returns the blob id of path in the snapshot, following symbolic
+// links inside the repository (models/current.onnx -> v7.onnx); ok is
+// false when the file does not exist there, or is a link that leaves the
+// repository, dangles or loops.
 func (s *Snapshot) Hash(p string) (plumbing.Hash, bool) {
+	for range maxLinkHops {
+		h, link, ok := s.entry(p)
+		if !ok || !link {
+			return h, ok
+		}
+		target, err := s.repo.readRawBlob(h, maxLinkTarget)
+		if err != nil {
+			return plumbing.ZeroHash, false
+		}
+		if p, err = siblingPath(p, string(target)); err != nil {
+			return plumbing.ZeroHash, false
+		}
+	}
+	return plumbing.ZeroHash, false
+}
+
+// entry returns the blob id of path as stored, and whether it is a
+// symbolic link.
+func (s *Snapshot) entry(p string) (h plumbing.Hash, link, ok bool) {
 	if s.files != nil {
 		h, ok := s.files[p]
-		return h, ok
+		return h, s.links[p], ok
 	}
 	e, err := s.tree.FindEntry(p)
 	if err != nil || !e.Mode.IsFile() {
-		return plumbing.ZeroHash, false
+		return plumbing.ZeroHash, false, false
 	}
-	return e.Hash, true
+	return e.Hash, e.Mode == filemode.Symlink, true
 }
 
 // Paths returns every file path in the snapshot, sorted.
@@ -253,9 +286,17 @@ const maxBlob = 8 << 30
 func (s *Snapshot) Read(p string) ([]byte, error) {
 	h, ok := s.Hash(p)
 	if !ok {
-		return nil, fmt.Errorf("%s: not in %s", p, s.Label)
+		return nil, s.notThere(p)
 	}
 	return s.repo.readBlob(h, p, s.Label, s.fetchRef())
+}
+
+// notThere says why a path has no file in the snapshot.
+func (s *Snapshot) notThere(p string) error {
+	if _, link, ok := s.entry(p); ok && link {
+		return fmt.Errorf("%s at %s is a symbolic link that dangles, loops or leaves the repository: point it at a file inside the repository", p, s.Label)
+	}
+	return fmt.Errorf("%s: not in %s", p, s.Label)
 }
 
 // fetchRef is what to name to git lfs fetch for the snapshot's objects:
@@ -485,29 +526,33 @@ func sortChanges(cs []FileChange) {
 	sort.Slice(cs, func(i, j int) bool { return cs[i].Path < cs[j].Path })
 }
 
-// siblingPath resolves a path relative to a model's folder inside the
-// repository, refusing paths that leave the repository.
-func siblingPath(model, rel string) (string, error) {
-	if path.IsAbs(rel) || filepath.IsAbs(rel) {
-		return "", fmt.Errorf("external data path %q is absolute", rel)
+// siblingPath resolves a symbolic link's target relative to the link's
+// folder inside the repository, refusing targets that leave it.
+func siblingPath(link, target string) (string, error) {
+	if path.IsAbs(target) || filepath.IsAbs(target) {
+		return "", fmt.Errorf("link target %q is absolute", target)
 	}
-	p := path.Clean(path.Join(path.Dir(model), filepath.ToSlash(rel)))
+	p := path.Clean(path.Join(path.Dir(link), filepath.ToSlash(target)))
 	if p == ".." || strings.HasPrefix(p, "../") {
-		return "", fmt.Errorf("external data path %q leaves the repository", rel)
+		return "", fmt.Errorf("link target %q leaves the repository", target)
 	}
 	return p, nil
 }
 
-// readRawBlob returns a blob's bytes as stored, without LFS resolution.
-func (r *Repo) readRawBlob(h plumbing.Hash) ([]byte, error) {
+// readRawBlob returns a blob's bytes as stored, without LFS resolution,
+// refusing a blob larger than limit bytes.
+func (r *Repo) readRawBlob(h plumbing.Hash, limit int64) ([]byte, error) {
 	blob, err := r.r.BlobObject(h)
 	if err != nil {
 		return nil, err
+	}
+	if blob.Size > limit {
+		return nil, fmt.Errorf("blob %s has %d bytes, more than %d", h, blob.Size, limit)
 	}
 	rd, err := blob.Reader()
 	if err != nil {
 		return nil, err
 	}
 	defer rd.Close()
-	return io.ReadAll(rd)
+	return io.ReadAll(io.LimitReader(rd, limit))
 }

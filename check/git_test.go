@@ -292,7 +292,7 @@ func TestLFS(t *testing.T) {
 	r, s := snapshotAt(t, g.dir, "HEAD")
 	// The blob itself is a pointer.
 	h, _ := s.Hash("m.onnx")
-	raw, err := r.readRawBlob(h)
+	raw, err := r.readRawBlob(h, maxLFSPointer)
 	if err != nil {
 		t.Fatal(err)
 	}

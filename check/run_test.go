@@ -400,3 +400,45 @@ func TestNotesBesideAModelDoNotChangeIt(t *testing.T) {
 		}
 	}
 }
+
+// TestModelBehindASymbolicLink: a model path that is a link inside the
+// repository (current.onnx -> v1.onnx) is measured as the file it names;
+// the link's own blob, the target's path, was measured and failed as not
+// an ONNX model. A link that leaves the repository says so.
+func TestModelBehindASymbolicLink(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	g.write("models/v1.onnx", smallModel(t, 8))
+	if err := os.Symlink("v1.onnx", filepath.Join(g.dir, "models", "current.onnx")); err != nil {
+		t.Skip("no symbolic links here:", err)
+	}
+	g.commit("base")
+	g.write("models/v2.onnx", smallModel(t, 16))
+	os.Remove(filepath.Join(g.dir, "models", "current.onnx"))
+	os.Symlink("v2.onnx", filepath.Join(g.dir, "models", "current.onnx"))
+	g.commit("current is v2")
+	res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var current *budget.ModelResult
+	for i, m := range res.Models {
+		if m.Path == "models/current.onnx" {
+			current = &res.Models[i]
+		}
+	}
+	// smallModel params: 28·w + 4·w + 4 (hand-worked): 260 at width 8, 516 at 16.
+	if current == nil || current.Error != "" || current.Base.Params != 260 || current.Head.Params != 516 {
+		t.Fatalf("models %+v; want models/current.onnx measured through the link, 260 → 516 params", res.Models)
+	}
+	os.Remove(filepath.Join(g.dir, "models", "current.onnx"))
+	os.Symlink("../../outside.onnx", filepath.Join(g.dir, "models", "current.onnx"))
+	g.commit("a link out of the repository")
+	res, _, err = Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Models) != 1 || !strings.Contains(res.Models[0].Error, "symbolic link") {
+		t.Fatalf("models %+v; want an error about the link", res.Models)
+	}
+}

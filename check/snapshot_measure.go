@@ -58,7 +58,7 @@ func measureBlobs(jobs []blobJob, opts measure.Options, cache *Cache, stats *Sta
 func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stats *Stats) measured {
 	h, ok := s.Hash(p)
 	if !ok {
-		return measured{Metrics: failed(p, fmt.Errorf("%s: not in %s", p, s.Label))}
+		return measured{Metrics: failed(p, s.notThere(p))}
 	}
 	key := cacheKey(h.String(), opts.Dims)
 	// External data is resolved against the model's own folder, and the
