@@ -291,6 +291,20 @@ func (s *Snapshot) Read(p string) ([]byte, error) {
 	return s.repo.readBlob(h, p, s.Label, s.fetchRef())
 }
 
+// isFolder reports whether p is a folder in the snapshot.
+func (s *Snapshot) isFolder(p string) bool {
+	if s.files != nil {
+		for f := range s.files {
+			if strings.HasPrefix(f, p+"/") {
+				return true
+			}
+		}
+		return false
+	}
+	e, err := s.tree.FindEntry(p)
+	return err == nil && e.Mode == filemode.Dir
+}
+
 // notThere says why a path has no file in the snapshot.
 func (s *Snapshot) notThere(p string) error {
 	if _, link, ok := s.entry(p); ok && link {

@@ -228,6 +228,9 @@ func worse(a, b budget.Status) budget.Status {
 // snapshot has none.
 func loadBudget(s *Snapshot, p, ref string) (*budget.File, error) {
 	if _, ok := s.Hash(p); !ok {
+		if s.isFolder(p) {
+			return nil, &BudgetFileError{Err: fmt.Errorf("%s at %s is a folder, not a budget file: name the file inside it with --budget %s/loadline.yaml", p, ref, p)}
+		}
 		return nil, nil
 	}
 	data, err := s.Read(p)

@@ -442,3 +442,22 @@ func TestModelBehindASymbolicLink(t *testing.T) {
 		t.Fatalf("models %+v; want an error about the link", res.Models)
 	}
 }
+
+// TestBudgetFileThatIsAFolder: a loadline.yaml that is a folder is a
+// budget-file error that says so; it was reported as no budget file.
+func TestBudgetFileThatIsAFolder(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml/devices.yaml", []byte(runBudget))
+	g.write("m.onnx", smallModel(t, 8))
+	g.commit("base")
+	g.write("m.onnx", smallModel(t, 12))
+	g.commit("change")
+	for _, staged := range []bool{false, true} {
+		o := Options{Dir: g.dir, Base: "HEAD~1", NoCache: true, Staged: staged}
+		_, _, err := Run(o)
+		var bf *BudgetFileError
+		if !errors.As(err, &bf) || !strings.Contains(err.Error(), "is a folder") {
+			t.Errorf("staged %v: %v; want a budget-file error saying loadline.yaml is a folder", staged, err)
+		}
+	}
+}
