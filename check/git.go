@@ -56,11 +56,16 @@ func OpenRepo(dir string) (*Repo, error) {
 	}
 	r, err := git.PlainOpenWithOptions(abs, &git.PlainOpenOptions{DetectDotGit: true, EnableDotGitCommonDir: true})
 	if err != nil {
+		if b, berr := git.PlainOpen(abs); berr == nil {
+			r, err = b, nil // a bare repository: refused below, with its own message
+		}
+	}
+	if err != nil {
 		return nil, &EnvError{Err: fmt.Errorf("%s: not inside a git repository: %w", dir, err), Hint: "run loadline check from inside the repository, or use loadline compare for two files"}
 	}
 	wt, err := r.Worktree()
 	if err != nil {
-		return nil, &EnvError{Err: fmt.Errorf("%s: a bare repository has no working tree: %w", dir, err)}
+		return nil, &EnvError{Err: fmt.Errorf("%s: a bare repository has no working tree: %w", dir, err), Hint: "run loadline in a clone with a working tree (git clone " + abs + "), or use loadline compare for two files"}
 	}
 	root := wt.Filesystem.Root()
 	common, err := commonDir(root)

@@ -436,3 +436,18 @@ func TestLFSPointerThatDoesNotParse(t *testing.T) {
 		t.Fatalf("want a broken-pointer error saying how to recommit, got %v", err)
 	}
 }
+
+// TestBareRepositorySaysWhatToDo: a bare repository is an environment
+// error with a hint.
+func TestBareRepositorySaysWhatToDo(t *testing.T) {
+	if _, err := exec.LookPath("git"); err != nil {
+		t.Skip("git is not installed")
+	}
+	dir := t.TempDir()
+	runGit(t, dir, "init", "-q", "--bare")
+	_, err := OpenRepo(dir)
+	var env *EnvError
+	if !errors.As(err, &env) || !strings.Contains(env.Hint, "git clone") {
+		t.Fatalf("bare repository: %v; want an environment error whose hint says to clone", err)
+	}
+}
