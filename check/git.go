@@ -138,7 +138,9 @@ func (r *Repo) Resolve(rev string) (*Snapshot, error) {
 // shallow clone is the usual cause on CI.
 func (r *Repo) missing(rev string, err error) error {
 	hint := "check the revision name; fetch it with git fetch origin " + rev
-	if _, serr := os.Stat(filepath.Join(r.CommonDir, "shallow")); serr == nil {
+	if _, herr := r.r.Head(); errors.Is(herr, plumbing.ErrReferenceNotFound) {
+		hint = "the repository has no commits yet: commit first (a pre-commit hook checks the index with --staged)"
+	} else if _, serr := os.Stat(filepath.Join(r.CommonDir, "shallow")); serr == nil {
 		hint = "this is a shallow clone and the base is not in it: fetch more history (git fetch --unshallow, or fetch-depth: 0 on CI checkout)"
 	}
 	return &EnvError{Err: fmt.Errorf("revision %q: %w", rev, err), Hint: hint}

@@ -451,3 +451,25 @@ func TestBareRepositorySaysWhatToDo(t *testing.T) {
 		t.Fatalf("bare repository: %v; want an environment error whose hint says to clone", err)
 	}
 }
+
+// TestCheckWithoutCommitsSaysSo: in a repository without commits the
+// missing HEAD is explained, not sent to git fetch; --staged judges
+// everything staged as added.
+func TestCheckWithoutCommitsSaysSo(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	g.write("m.onnx", smallModel(t, 200))
+	g.git("add", "-A")
+	_, _, err := Run(Options{Dir: g.dir, Base: "main", NoCache: true})
+	var env *EnvError
+	if !errors.As(err, &env) || !strings.Contains(env.Hint, "no commits yet") {
+		t.Errorf("no commits: %v; want an environment error whose hint says there are no commits", err)
+	}
+	res, _, err := Run(Options{Dir: g.dir, Staged: true, NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Base.Ref != "empty" || len(res.Models) != 1 || res.Models[0].Change != "added" || res.Verdict != "fail" {
+		t.Errorf("--staged before the first commit: base %q, models %+v, verdict %s; want m.onnx added and over its params limit", res.Base.Ref, res.Models, res.Verdict)
+	}
+}
