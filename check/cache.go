@@ -40,16 +40,31 @@ func NewCache(r *Repo) *Cache {
 	return &Cache{Dir: filepath.Join(r.CommonDir, "loadline", "cache")}
 }
 
-func cacheKey(blob string, dims map[string]int64) string {
-	names := make([]string, 0, len(dims))
-	for k := range dims {
+// cacheKey names the figures of one blob under every option that can
+// change them: dims, the deployed view's rewrites, and whether the
+// per-layer view was asked for.
+func cacheKey(blob string, opts measure.Options) string {
+	names := make([]string, 0, len(opts.Dims))
+	for k := range opts.Dims {
 		names = append(names, k)
 	}
 	sort.Strings(names)
 	h := sha256.New()
 	fmt.Fprintf(h, "%s\x00%s\x00", AnalyzerVersion, blob)
 	for _, k := range names {
-		fmt.Fprintf(h, "%s=%d\x00", k, dims[k])
+		fmt.Fprintf(h, "%s=%d\x00", k, opts.Dims[k])
+	}
+	deploy := measure.DefaultDeployOptions()
+	if opts.Deploy != nil {
+		deploy = *opts.Deploy
+	}
+	// The defaults and no layers add nothing, so the keys of earlier
+	// versions stay valid.
+	if deploy != measure.DefaultDeployOptions() {
+		fmt.Fprintf(h, "deploy=%+v\x00", deploy)
+	}
+	if opts.Layers {
+		fmt.Fprintf(h, "layers\x00")
 	}
 	return hex.EncodeToString(h.Sum(nil))[:40]
 }

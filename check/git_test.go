@@ -344,6 +344,18 @@ func TestCacheWarmAndCorrupt(t *testing.T) {
 	if dims.Measured.Load() != 1 {
 		t.Error("a different --dim reused a cached entry")
 	}
+	// So are the per-layer view and the deployed view's rewrites: an
+	// entry without layers cannot answer a check that reports them.
+	var layers Stats
+	if m := measureBlobs(jobs[:1], measure.Options{Layers: true}, cache, &layers)[0]; layers.Measured.Load() != 1 || len(m.Layers) == 0 {
+		t.Errorf("Layers: measured %d, %d layers; an entry without the per-layer view was reused", layers.Measured.Load(), len(m.Layers))
+	}
+	var deploy Stats
+	inPlace := measure.DefaultDeployOptions()
+	inPlace.InPlaceDepthwise = true
+	if measureBlobs(jobs[:1], measure.Options{Deploy: &inPlace}, cache, &deploy); deploy.Measured.Load() != 1 {
+		t.Error("other deployed-view rewrites reused a cached entry")
+	}
 	// Corrupt every entry: ignored, measured again, rewritten.
 	filepath.Walk(cache.Dir, func(p string, info os.FileInfo, err error) error {
 		if err == nil && !info.IsDir() {

@@ -60,7 +60,7 @@ func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stat
 	if !ok {
 		return measured{Metrics: failed(p, s.notThere(p))}
 	}
-	key := cacheKey(h.String(), opts.Dims)
+	key := cacheKey(h.String(), opts)
 	// External data is resolved against the model's own folder, and the
 	// same blob may sit in two folders with different data beside it: the
 	// cache records dependencies relative to the folder and checks them
