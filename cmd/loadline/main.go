@@ -226,7 +226,9 @@ func newDemoCmd(stdout, stderr io.Writer) *cobra.Command {
 				return &exitError{exitEnviron, err}
 			}
 			fmt.Fprintln(stdout, "\n== loadline check (branch retrain-160 against main) ==")
-			res, _, err := check.Run(check.Options{Dir: dir})
+			// The demo repository is its own world: no CI variable (a pull
+			// request's GITHUB_BASE_REF) may choose its base.
+			res, _, err := check.Run(check.Options{Dir: dir, Base: "main", Getenv: func(string) string { return "" }})
 			if err != nil {
 				return pipelineExit(err)
 			}

@@ -125,6 +125,10 @@ func TestUsageErrors(t *testing.T) {
 }
 
 func TestDemo(t *testing.T) {
+	// Run as in a pull-request job: the demo must not look for the pull
+	// request's base in its throwaway repository.
+	t.Setenv("GITHUB_BASE_REF", "develop")
+	t.Setenv("CI_MERGE_REQUEST_DIFF_BASE_SHA", "0123456789abcdef0123456789abcdef01234567")
 	var out, errb bytes.Buffer
 	if code := run([]string{"demo"}, &out, &errb); code != exitOK {
 		t.Fatalf("demo exit %d: %s", code, errb.String())
