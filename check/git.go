@@ -138,6 +138,9 @@ func (r *Repo) Resolve(rev string) (*Snapshot, error) {
 // shallow clone is the usual cause on CI.
 func (r *Repo) missing(rev string, err error) error {
 	hint := "check the revision name; fetch it with git fetch origin " + rev
+	if branch, ok := strings.CutPrefix(rev, "origin/"); ok {
+		hint = "fetch the branch: git fetch origin +refs/heads/" + branch + ":refs/remotes/origin/" + branch
+	}
 	if _, herr := r.r.Head(); errors.Is(herr, plumbing.ErrReferenceNotFound) {
 		hint = "the repository has no commits yet: commit first (a pre-commit hook checks the index with --staged)"
 	} else if _, serr := os.Stat(filepath.Join(r.CommonDir, "shallow")); serr == nil {

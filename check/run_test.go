@@ -167,6 +167,14 @@ func TestGitHubBaseFromEnvironment(t *testing.T) {
 	if res.Base.Ref != "origin/release" || res.Verdict != budget.Fail {
 		t.Fatalf("base %q verdict %s", res.Base.Ref, res.Verdict)
 	}
+	// A base branch that was not fetched: the hint is a fetch that works
+	// (it said git fetch origin origin/develop).
+	env["GITHUB_BASE_REF"] = "develop"
+	_, _, err = Run(Options{Dir: g.dir, Getenv: func(k string) string { return env[k] }, NoCache: true})
+	var ee *EnvError
+	if !errors.As(err, &ee) || !strings.Contains(ee.Hint, "git fetch origin +refs/heads/develop:refs/remotes/origin/develop") {
+		t.Errorf("unfetched base: %v; want a hint with a fetch of the branch", err)
+	}
 }
 
 // TestCacheExternalDataOfEachCopy: the same model blob in two folders
