@@ -97,10 +97,6 @@ func TestExternalDataAtTheSameRevision(t *testing.T) {
 	// The working tree holds something else entirely: what is checked is
 	// what is committed.
 	g.write("models/ext/weights.bin", []byte("not weights"))
-	r, err := OpenRepo(g.dir)
-	if err != nil {
-		t.Fatal(err)
-	}
 	res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD"})
 	if err != nil {
 		t.Fatal(err)
@@ -114,7 +110,6 @@ func TestExternalDataAtTheSameRevision(t *testing.T) {
 	if m.Error != "" || m.Base.Params != 27*8 || m.Head.Params != 27*16 {
 		t.Fatalf("error %q, params %d → %d; want 216 → 432", m.Error, m.Base.Params, m.Head.Params)
 	}
-	_ = r
 	// flash counts the external weights too: 27·16 float32 = 1,728 bytes
 	// beside the model file (hand-worked).
 	if m.Head.ExternalBytes != 27*16*4 || m.Head.Flash != m.Head.FileBytes+27*16*4 {
@@ -125,8 +120,11 @@ func TestExternalDataAtTheSameRevision(t *testing.T) {
 	g.git("rm", "-q", "--cached", "models/ext/weights.bin")
 	g.git("commit", "-q", "-m", "forgot the weights")
 	res, _, err = Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
-	if err == nil && (len(res.Models) == 0 || !strings.Contains(res.Models[0].Error, "weights.bin")) {
-		t.Fatalf("missing external data: want an error naming weights.bin, got %+v", res.Models)
+	if err != nil {
+		t.Fatalf("missing external data is the model's error, not the run's: %v", err)
+	}
+	if len(res.Models) != 1 || !strings.Contains(res.Models[0].Error, "weights.bin") || res.Verdict != budget.Fail {
+		t.Fatalf("missing external data: want the model failed with an error naming weights.bin, got %s %+v", res.Verdict, res.Models)
 	}
 }
 

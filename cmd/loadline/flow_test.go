@@ -137,6 +137,9 @@ func TestHookBlocksCommitOverBudget(t *testing.T) {
 
 	cmd := exec.Command(bin, "hook", "install")
 	cmd.Dir = dir
+	// The same git configuration as the commits below: a core.hooksPath in
+	// the user's own global config must not move the hook.
+	cmd.Env = append(os.Environ(), "HOME="+dir, "XDG_CONFIG_HOME=", "GIT_CONFIG_GLOBAL=", "GIT_CONFIG_NOSYSTEM=1")
 	if out, err := cmd.CombinedOutput(); err != nil {
 		t.Fatalf("hook install: %v\n%s", err, out)
 	}
