@@ -168,6 +168,10 @@ func runPrePush(r *Repo, o Options) (*budget.Result, *Stats, error) {
 			lines = append(lines, f)
 		}
 	}
+	if err := sc.Err(); err != nil {
+		// A ref left unread would be a push left unchecked.
+		return nil, nil, &EnvError{Err: fmt.Errorf("reading the pre-push input (<local ref> <local sha> <remote ref> <remote sha> per line): %w", err), Hint: "run --pre-push from git's pre-push hook (loadline hook install --stage pre-push)"}
+	}
 	getenv := o.Getenv
 	if getenv == nil {
 		getenv = os.Getenv

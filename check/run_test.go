@@ -43,6 +43,13 @@ func TestPrePushChecksPushedCommits(t *testing.T) {
 	if res.Verdict != budget.Fail || len(res.Models) != 1 {
 		t.Fatalf("verdict %s with %d models, want fail with 1", res.Verdict, len(res.Models))
 	}
+	// Input that cannot be read is an error, not an empty push: a line
+	// longer than the scanner takes used to end the input silently, and
+	// the refs after it went unchecked.
+	long := strings.Repeat("x", 1<<17) + "\n" + stdin
+	if _, _, err := Run(Options{Dir: g.dir, PrePush: strings.NewReader(long), NoCache: true}); err == nil {
+		t.Error("unreadable pre-push input passed")
+	}
 	// A deletion pushes nothing to judge.
 	zero := strings.Repeat("0", 40)
 	res, _, err = Run(Options{Dir: g.dir, PrePush: strings.NewReader(fmt.Sprintf("(delete) %s refs/heads/old %s\n", zero, remoteTip)), NoCache: true})
