@@ -211,7 +211,15 @@ func (r *Repo) DefaultBranch() (string, error) {
 			return strings.TrimPrefix(strings.TrimPrefix(name, "refs/remotes/"), "refs/heads/"), nil
 		}
 	}
-	return "", &EnvError{Err: errors.New("cannot tell the default branch: no origin/HEAD, main or master"), Hint: "name the base with --base"}
+	return "", &EnvError{Err: errNoDefaultBranch, Hint: "name the base with --base"}
+}
+
+var errNoDefaultBranch = errors.New("cannot tell the default branch: no origin/HEAD, main or master")
+
+// empty is the snapshot of no files: the base of a repository's first
+// commit, or of a branch with nothing to compare it with.
+func (r *Repo) empty() *Snapshot {
+	return &Snapshot{repo: r, Label: "empty", files: map[string]plumbing.Hash{}}
 }
 
 // maxLinkHops bounds how many symbolic links Hash follows for one path

@@ -11,8 +11,6 @@ import (
 	"strings"
 	"time"
 
-	"github.com/go-git/go-git/v5/plumbing"
-
 	"github.com/loadline/loadline/budget"
 	"github.com/loadline/loadline/measure"
 )
@@ -107,7 +105,7 @@ func ResolveRange(r *Repo, o Options) (*Range, error) {
 		s, err := r.Resolve("HEAD")
 		if err != nil {
 			// The first commit of a repository: everything staged is added.
-			rg.Base, rg.BaseRef = &Snapshot{repo: r, Label: "empty", files: map[string]plumbing.Hash{}}, "empty"
+			rg.Base, rg.BaseRef = r.empty(), "empty"
 			return rg, nil
 		}
 		rg.Base, rg.BaseRef = s, "HEAD"
@@ -187,16 +185,32 @@ func runPrePush(r *Repo, o Options) (*budget.Result, *Stats, error) {
 		}
 		po := o
 		po.PrePush, po.Head, po.Base = nil, local, remote
-		if remote == zero || remote == "" {
+		newBranch := remote == zero || remote == ""
+		if newBranch {
 			po.Base = ""
 		}
 		rg, err := ResolveRange(r, po)
+		var note string
+		if err != nil && newBranch && errors.Is(err, errNoDefaultBranch) {
+			// A new branch in a repository without main, master or
+			// origin/HEAD: nothing to compare with, so its models are
+			// judged as added rather than the push refused.
+			head, herr := r.Resolve(local)
+			if herr != nil {
+				return nil, nil, herr
+			}
+			rg, err = &Range{Base: r.empty(), BaseRef: "empty", Head: head, HeadRef: local}, nil
+			note = fmt.Sprintf("%s is a new branch and the repository has no default branch (origin/HEAD, main or master) to compare it with: its models are judged as added", f[2])
+		}
 		if err != nil {
 			return nil, nil, err
 		}
 		res, st, err := runRange(r, rg, po)
 		if err != nil {
 			return nil, nil, err
+		}
+		if note != "" {
+			res.Problems = append([]string{note}, res.Problems...)
 		}
 		total.Measured.Add(st.Measured.Load())
 		total.CacheHits.Add(st.CacheHits.Load())

@@ -474,3 +474,26 @@ func TestBudgetFileThatIsAFolder(t *testing.T) {
 		}
 	}
 }
+
+// TestPrePushNewBranchWithoutDefaultBranch: pushing a new branch from a
+// repository that has no main, master or origin/HEAD judges its models as
+// added; the push used to be refused with exit 3 and a hint (--base) that
+// a hook cannot take.
+func TestPrePushNewBranchWithoutDefaultBranch(t *testing.T) {
+	g := newGitRepo(t)
+	g.git("checkout", "-q", "-b", "trunk")
+	g.write("loadline.yaml", []byte(runBudget))
+	g.write("m.onnx", smallModel(t, 200))
+	local := g.commit("first")
+	stdin := fmt.Sprintf("refs/heads/trunk %s refs/heads/trunk %s\n", local, strings.Repeat("0", 40))
+	res, _, err := Run(Options{Dir: g.dir, PrePush: strings.NewReader(stdin), NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Verdict != budget.Fail || len(res.Models) != 1 || res.Models[0].Change != budget.Added {
+		t.Fatalf("verdict %s, models %+v; want m.onnx added and over its params limit", res.Verdict, res.Models)
+	}
+	if len(res.Problems) == 0 || !strings.Contains(res.Problems[0], "no default branch") {
+		t.Errorf("problems %q; want a note that there was nothing to compare with", res.Problems)
+	}
+}
