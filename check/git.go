@@ -243,7 +243,7 @@ func (s *Snapshot) Hash(p string) (plumbing.Hash, bool) {
 		if err != nil {
 			return plumbing.ZeroHash, false
 		}
-		if p, err = siblingPath(p, string(target)); err != nil {
+		if p, err = linkTarget(p, string(target)); err != nil {
 			return plumbing.ZeroHash, false
 		}
 	}
@@ -558,9 +558,9 @@ func sortChanges(cs []FileChange) {
 	sort.Slice(cs, func(i, j int) bool { return cs[i].Path < cs[j].Path })
 }
 
-// siblingPath resolves a symbolic link's target relative to the link's
+// linkTarget resolves a symbolic link's target relative to the link's
 // folder inside the repository, refusing targets that leave it.
-func siblingPath(link, target string) (string, error) {
+func linkTarget(link, target string) (string, error) {
 	if path.IsAbs(target) || filepath.IsAbs(target) {
 		return "", fmt.Errorf("link target %q is absolute", target)
 	}
