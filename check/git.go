@@ -14,6 +14,7 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"sync"
 
 	git "github.com/go-git/go-git/v5"
 	"github.com/go-git/go-git/v5/plumbing"
@@ -113,6 +114,9 @@ type Snapshot struct {
 	Label  string
 	Commit plumbing.Hash
 	tree   *object.Tree
+	// treeMu serialises look-ups in tree: go-git's Tree.FindEntry fills
+	// caches without a lock, and the measuring workers share a snapshot.
+	treeMu sync.Mutex
 	files  map[string]plumbing.Hash // for the index
 	links  map[string]bool          // the index's symbolic links
 }
@@ -257,7 +261,9 @@ func (s *Snapshot) entry(p string) (h plumbing.Hash, link, ok bool) {
 		h, ok := s.files[p]
 		return h, s.links[p], ok
 	}
+	s.treeMu.Lock()
 	e, err := s.tree.FindEntry(p)
+	s.treeMu.Unlock()
 	if err != nil || !e.Mode.IsFile() {
 		return plumbing.ZeroHash, false, false
 	}
@@ -278,6 +284,8 @@ func (s *Snapshot) Paths() ([]string, error) {
 	// revision, all the models' bytes included, and fail in a blobless
 	// clone on a blob nobody asked for.
 	var out []string
+	s.treeMu.Lock()
+	defer s.treeMu.Unlock()
 	w := object.NewTreeWalker(s.tree, true, nil)
 	defer w.Close()
 	for {
@@ -319,7 +327,9 @@ func (s *Snapshot) isFolder(p string) bool {
 		}
 		return false
 	}
+	s.treeMu.Lock()
 	e, err := s.tree.FindEntry(p)
+	s.treeMu.Unlock()
 	return err == nil && e.Mode == filemode.Dir
 }
 

@@ -485,3 +485,31 @@ func TestCheckWithoutCommitsSaysSo(t *testing.T) {
 		t.Errorf("--staged before the first commit: base %q, models %+v, verdict %s; want m.onnx added and over its params limit", res.Base.Ref, res.Models, res.Verdict)
 	}
 }
+
+// TestConcurrentMeasuringOfAPackedRevision: the measuring workers share a
+// snapshot; looking paths up in its tree filled go-git's caches from
+// several goroutines at once (a data race, and a fatal concurrent map
+// write when it struck). Run with -race to see it; the objects are packed,
+// as in a real clone.
+func TestConcurrentMeasuringOfAPackedRevision(t *testing.T) {
+	g := newGitRepo(t)
+	var paths []string
+	for i := range 16 {
+		p := fmt.Sprintf("models/f%d/g%d/m.onnx", i%4, i)
+		g.write(p, smallModel(t, int64(4+i)))
+		paths = append(paths, p)
+	}
+	g.commit("sixteen models")
+	g.git("gc", "-q")
+	_, s := snapshotAt(t, g.dir, "HEAD")
+	jobs := make([]blobJob, len(paths))
+	for i, p := range paths {
+		jobs[i] = blobJob{s, p}
+	}
+	var st Stats
+	for i, m := range measureBlobs(jobs, measure.Options{}, nil, &st) {
+		if m.Error != "" || m.Params != 32*int64(4+i)+4 { // smallModel: 28·w + 4·w + 4 params (hand-worked)
+			t.Errorf("%s: params %d, error %q", paths[i], m.Params, m.Error)
+		}
+	}
+}
