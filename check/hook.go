@@ -22,7 +22,7 @@ const chainedSuffix = ".before-loadline"
 type HookOptions struct {
 	Stage  string // "pre-commit" (default) or "pre-push"
 	Binary string // the loadline executable the hook runs
-	Force  bool   // overwrite a hook loadline did not write
+	Force  bool   // overwrite a hook loadline did not write; install into a hooks folder the global or system config shares
 	Chain  bool   // keep an existing hook and run it first
 	Args   []string
 }
@@ -30,9 +30,16 @@ type HookOptions struct {
 // HooksDir returns the folder git runs hooks from: core.hooksPath when set
 // (relative to the top of the working tree), else <git dir>/hooks.
 func (r *Repo) HooksDir() (string, error) {
-	p, err := r.hooksPath()
+	dir, _, err := r.hooksDir()
+	return dir, err
+}
+
+// hooksDir is HooksDir and the config scope that set core.hooksPath:
+// "local", "global", "system", or "" for the default folder.
+func (r *Repo) hooksDir() (string, string, error) {
+	p, scope, err := r.hooksPath()
 	if err != nil {
-		return "", err
+		return "", "", err
 	}
 	if p != "" {
 		if strings.HasPrefix(p, "~/") {
@@ -43,9 +50,9 @@ func (r *Repo) HooksDir() (string, error) {
 		if !filepath.IsAbs(p) {
 			p = filepath.Join(r.Root, p)
 		}
-		return p, nil
+		return p, scope, nil
 	}
-	return filepath.Join(r.CommonDir, "hooks"), nil
+	return filepath.Join(r.CommonDir, "hooks"), "", nil
 }
 
 // hooksPath returns core.hooksPath as git reads it: the repository's own
@@ -53,13 +60,13 @@ func (r *Repo) HooksDir() (string, error) {
 // $XDG_CONFIG_HOME/git/config or ~/.gitconfig), then the system's unless
 // GIT_CONFIG_NOSYSTEM is set. A hook written to .git/hooks while a global
 // core.hooksPath is in force would never run.
-func (r *Repo) hooksPath() (string, error) {
+func (r *Repo) hooksPath() (path, scope string, err error) {
 	cfg, err := r.r.Config()
 	if err != nil {
-		return "", &EnvError{Err: fmt.Errorf("reading %s: %w", filepath.Join(r.CommonDir, "config"), err), Hint: "fix the repository's git config (git config --list --local shows what git makes of it)"}
+		return "", "", &EnvError{Err: fmt.Errorf("reading %s: %w", filepath.Join(r.CommonDir, "config"), err), Hint: "fix the repository's git config (git config --list --local shows what git makes of it)"}
 	}
 	if p := cfg.Raw.Section("core").Option("hooksPath"); p != "" {
-		return p, nil
+		return p, "local", nil
 	}
 	var global *config.Config
 	if f := os.Getenv("GIT_CONFIG_GLOBAL"); f != "" {
@@ -73,21 +80,24 @@ func (r *Repo) hooksPath() (string, error) {
 		global, err = config.LoadConfig(config.GlobalScope)
 	}
 	if err != nil && !os.IsNotExist(err) {
-		return "", &EnvError{Err: fmt.Errorf("reading your global git config: %w", err), Hint: "fix it (git config --list --global shows what git makes of it)"}
+		return "", "", &EnvError{Err: fmt.Errorf("reading your global git config: %w", err), Hint: "fix it (git config --list --global shows what git makes of it)"}
 	}
 	if global != nil {
 		if p := global.Raw.Section("core").Option("hooksPath"); p != "" {
-			return p, nil
+			return p, "global", nil
 		}
 	}
 	if os.Getenv("GIT_CONFIG_NOSYSTEM") != "" {
-		return "", nil
+		return "", "", nil
 	}
 	system, err := config.LoadConfig(config.SystemScope)
 	if err != nil {
-		return "", &EnvError{Err: fmt.Errorf("reading the system git config: %w", err), Hint: "fix it (git config --list --system shows what git makes of it)"}
+		return "", "", &EnvError{Err: fmt.Errorf("reading the system git config: %w", err), Hint: "fix it (git config --list --system shows what git makes of it)"}
 	}
-	return system.Raw.Section("core").Option("hooksPath"), nil
+	if p := system.Raw.Section("core").Option("hooksPath"); p != "" {
+		return p, "system", nil
+	}
+	return "", "", nil
 }
 
 func hookScript(o HookOptions, chained string) string {
@@ -144,9 +154,14 @@ func (r *Repo) InstallHook(o HookOptions) (string, error) {
 		return "", err
 	}
 	o.Stage = stage
-	dir, err := r.HooksDir()
+	dir, scope, err := r.hooksDir()
 	if err != nil {
 		return "", err
+	}
+	if (scope == "global" || scope == "system") && !o.Force {
+		// A hook there runs in every repository of the machine, and in
+		// those without a budget file it would refuse every commit.
+		return "", fmt.Errorf("core.hooksPath is set in your %s git config to %s, a hooks folder every repository shares: call loadline check %s from the %s hook there yourself, set a hooks folder for this repository (git config core.hooksPath .git/hooks), or pass --force to install there anyway", scope, dir, map[string]string{"pre-commit": "--staged", "pre-push": "--pre-push"}[stage], stage)
 	}
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return "", &EnvError{Err: fmt.Errorf("making the hooks folder: %w", err), Hint: "git runs hooks from " + dir + " (core.hooksPath when set): make it a writable folder, or change core.hooksPath"}

@@ -67,7 +67,7 @@ func TestHookHonoursHooksPath(t *testing.T) {
 
 // TestHookHonoursGlobalHooksPath: a core.hooksPath in the user's global git
 // config is where git looks for hooks; a hook written to .git/hooks instead
-// would never run.
+// would never run, and one written to the shared folder runs everywhere.
 func TestHookHonoursGlobalHooksPath(t *testing.T) {
 	g := newGitRepo(t)
 	g.write("m.onnx", smallModel(t, 8))
@@ -85,7 +85,13 @@ func TestHookHonoursGlobalHooksPath(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	p, err := r.InstallHook(HookOptions{Binary: "/usr/bin/loadline"})
+	// Every repository runs the hooks there: loadline says so instead of
+	// installing a hook that refuses commits in repositories without a
+	// budget file.
+	if _, err := r.InstallHook(HookOptions{Binary: "/usr/bin/loadline"}); err == nil || !strings.Contains(err.Error(), "global git config") || !strings.Contains(err.Error(), hooks) {
+		t.Fatalf("install under a global core.hooksPath: %v; want a refusal that names the shared folder", err)
+	}
+	p, err := r.InstallHook(HookOptions{Binary: "/usr/bin/loadline", Force: true})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -300,7 +300,7 @@ func newHookCmd(stdout io.Writer) *cobra.Command {
 	}
 	install.Flags().StringVar(&o.Stage, "stage", "pre-commit", "pre-commit (checks staged changes) or pre-push (checks the pushed commits)")
 	install.Flags().BoolVar(&o.Chain, "chain", false, "keep an existing hook and run it before loadline")
-	install.Flags().BoolVar(&o.Force, "force", false, "replace an existing hook loadline did not write")
+	install.Flags().BoolVar(&o.Force, "force", false, "replace an existing hook loadline did not write, or install into a hooks folder that core.hooksPath in the global or system git config shares with every repository")
 	var stage string
 	uninstall := &cobra.Command{
 		Use:   "uninstall [--stage pre-commit|pre-push]",
