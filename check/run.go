@@ -307,6 +307,10 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	case baseBudget == nil && headBudget != nil:
 		inForce = headBudget
 		problems = append(problems, fmt.Sprintf("%s is new in this change; its models are judged by it", bpath))
+	case baseBudget != nil && headBudget == nil:
+		// The base's file judges this change, but once it merges no
+		// budget is in force: the reviewer must see that.
+		problems = append(problems, fmt.Sprintf("%s is removed in this change: it is judged by %s's, and after it merges no budget file is in force", bpath, rg.BaseRef))
 	}
 	if inForce == nil {
 		return nil, nil, &BudgetFileError{Err: fmt.Errorf("no budget file: %s is in neither %s nor %s (write one with loadline init, or name it with --budget)", bpath, rg.BaseRef, rg.HeadRef)}

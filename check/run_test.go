@@ -497,3 +497,22 @@ func TestPrePushNewBranchWithoutDefaultBranch(t *testing.T) {
 		t.Errorf("problems %q; want a note that there was nothing to compare with", res.Problems)
 	}
 }
+
+// TestRemovedBudgetFileIsReported: a change that deletes the budget file
+// is judged by the base's and says it removes the gate; it went unmentioned.
+func TestRemovedBudgetFileIsReported(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	g.write("m.onnx", smallModel(t, 8))
+	g.commit("base")
+	g.git("rm", "-q", "loadline.yaml")
+	g.write("m.onnx", smallModel(t, 200))
+	g.commit("no more budget")
+	res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Verdict != budget.Fail || len(res.Problems) == 0 || !strings.Contains(res.Problems[0], "loadline.yaml is removed in this change") {
+		t.Fatalf("verdict %s, problems %q; want fail by the base's budget and the removal named", res.Verdict, res.Problems)
+	}
+}
