@@ -132,6 +132,11 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 			if err := rf.validate(); err != nil {
 				return &exitError{exitUsage, err}
 			}
+			if post && (rf.format == "json" || rf.format == "junit") && rf.out == "" {
+				// Annotations are workflow commands on standard output; a
+				// machine-readable report there would be mixed with them.
+				return &exitError{exitUsage, fmt.Errorf("--post writes annotations to standard output: give --out FILE for the %s report", rf.format)}
+			}
 			if o.Staged && (prePush || o.Head != "") {
 				return &exitError{exitUsage, errors.New("--staged compares the index with HEAD; it does not combine with --head or --pre-push")}
 			}

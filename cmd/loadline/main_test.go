@@ -109,6 +109,7 @@ func TestUsageErrors(t *testing.T) {
 		{"measure"},
 		{"measure", "--dim", "batch", "x.onnx"},
 		{"measure", "--dim", "batch=-1", "x.onnx"},
+		{"check", "--post", "--format", "json"}, // annotations and JSON would share stdout
 		{"frobnicate"},
 		{"check", "--pre-push", "--base", "main"},
 		{"check", "--staged", "--head", "HEAD"},
