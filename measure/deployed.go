@@ -105,22 +105,7 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 	steps := max(1, len(g.Nodes))
 	lastStep := steps - 1
 
-	static := map[string]bool{}
-	for _, t := range g.Initializers {
-		static[t.Name] = true
-	}
-	for _, sp := range g.Sparse {
-		if sp.Values != nil {
-			static[sp.Values.Name] = true
-		}
-	}
-	isStatic := func(name string) bool {
-		if static[name] {
-			return true
-		}
-		v := vals[name]
-		return v != nil && (v.Const != nil || v.Weight)
-	}
+	static, isStatic := staticValues(g, vals)
 
 	// Readers of each value: the nodes reading it (once per node, nested
 	// subgraphs included) and the graph's outputs.

@@ -130,22 +130,7 @@ func planGraph(g *model.Graph, vals map[string]*Value, subs map[*model.Graph]map
 	steps := max(1, len(g.Nodes))
 	lastStep := steps - 1
 
-	static := map[string]bool{}
-	for _, t := range g.Initializers {
-		static[t.Name] = true
-	}
-	for _, sp := range g.Sparse {
-		if sp.Values != nil {
-			static[sp.Values.Name] = true
-		}
-	}
-	isStatic := func(name string) bool {
-		if static[name] {
-			return true
-		}
-		v := vals[name]
-		return v != nil && (v.Const != nil || v.Weight)
-	}
+	static, isStatic := staticValues(g, vals)
 
 	recs := map[string]*tensorRec{}
 	var order []*tensorRec
@@ -535,4 +520,28 @@ func (t *stepTree) q(node, l, r, a, b int, mark int32, stamp []int32, out []int3
 	mid := (l + r) / 2
 	out = t.q(2*node, l, mid, a, b, mark, stamp, out)
 	return t.q(2*node+1, mid+1, r, a, b, mark, stamp, out)
+}
+
+// staticValues tells which values of g take no activation memory: the
+// initializers and sparse initializers, and whatever inference knows
+// statically (Value.Const) or found stored in the file (Value.Weight).
+// Both memory views plan only the other tensors. The map is returned so
+// that a planner can mark the outputs it folds as static too.
+func staticValues(g *model.Graph, vals map[string]*Value) (map[string]bool, func(name string) bool) {
+	static := map[string]bool{}
+	for _, t := range g.Initializers {
+		static[t.Name] = true
+	}
+	for _, sp := range g.Sparse {
+		if sp.Values != nil {
+			static[sp.Values.Name] = true
+		}
+	}
+	return static, func(name string) bool {
+		if static[name] {
+			return true
+		}
+		v := vals[name]
+		return v != nil && (v.Const != nil || v.Weight)
+	}
 }
