@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"path/filepath"
 	"runtime"
+	"runtime/debug"
 	"strings"
 	"sync"
 
@@ -35,7 +36,7 @@ func MeasureFiles(paths []string, opts measure.Options) []*measure.Metrics {
 }
 
 // MeasureFile decodes and measures one model file.
-func MeasureFile(path string, opts measure.Options) *measure.Metrics {
+func MeasureFile(path string, opts measure.Options) (m *measure.Metrics) {
 	if err := supported(path); err != nil {
 		return failed(path, err)
 	}
@@ -44,7 +45,33 @@ func MeasureFile(path string, opts measure.Options) *measure.Metrics {
 		return failed(path, err)
 	}
 	defer release()
-	return decodeAndMeasure(data, onnx.Options{Path: path}, opts)
+	// The file is memory-mapped: if it is truncated while being read, the
+	// read faults. Turn that fault into an error for this file instead of
+	// a crash of the whole run; any other panic is a bug and goes on up.
+	return onMapped(path, func() *measure.Metrics {
+		return decodeAndMeasure(data, onnx.Options{Path: path}, opts)
+	})
+}
+
+// onMapped runs f, which reads a memory-mapped file, turning a fault on
+// its pages into the file's error entry.
+func onMapped(path string, f func() *measure.Metrics) (m *measure.Metrics) {
+	defer debug.SetPanicOnFault(debug.SetPanicOnFault(true))
+	defer func() {
+		if r := recover(); r != nil {
+			// A memory fault's runtime.Error has an Addr method
+			// (runtime/debug.SetPanicOnFault).
+			if re, ok := r.(interface {
+				runtime.Error
+				Addr() uintptr
+			}); ok {
+				m = failed(path, fmt.Errorf("%s changed while it was being read (%v); measure it again", path, re))
+				return
+			}
+			panic(r)
+		}
+	}()
+	return f()
 }
 
 // failed is the entry of a model that could not be measured: every list
