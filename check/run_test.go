@@ -516,3 +516,24 @@ func TestRemovedBudgetFileIsReported(t *testing.T) {
 		t.Fatalf("verdict %s, problems %q; want fail by the base's budget and the removal named", res.Verdict, res.Problems)
 	}
 }
+
+// TestTFLiteOnlyWhereBudgeted: a changed .tflite file that no rule names is
+// not judged (loadline cannot read TFLite yet); one a rule names fails,
+// saying the format is not supported.
+func TestTFLiteOnlyWhereBudgeted(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte("version: 1\ndevices:\n  d: {ram: 1MiB}\nmodels:\n  - path: \"budgeted/*\"\n    device: d\n    limits: {params: 1M}\n"))
+	g.write("free/a.tflite", []byte("TFL3 one"))
+	g.write("budgeted/b.tflite", []byte("TFL3 one"))
+	g.commit("base")
+	g.write("free/a.tflite", []byte("TFL3 two"))
+	g.write("budgeted/b.tflite", []byte("TFL3 two"))
+	g.commit("change")
+	res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Models) != 1 || res.Models[0].Path != "budgeted/b.tflite" || !strings.Contains(res.Models[0].Error, "unsupported model format") {
+		t.Fatalf("models %+v: want only budgeted/b.tflite, failing as unsupported", res.Models)
+	}
+}
