@@ -189,8 +189,17 @@ func runPrePush(r *Repo, o Options) (*budget.Result, *Stats, error) {
 		if newBranch {
 			po.Base = ""
 		}
-		rg, err := ResolveRange(r, po)
 		var note string
+		if !newBranch {
+			if _, rerr := r.Resolve(remote); rerr != nil {
+				// The remote's tip is not in this clone (someone else pushed,
+				// or this is a force push): compare with the default branch
+				// rather than refuse the push.
+				po.Base, newBranch = "", true
+				note = fmt.Sprintf("the remote's %s is at %.12s, which this clone does not have (fetch to compare with it): compared with the default branch instead", f[2], remote)
+			}
+		}
+		rg, err := ResolveRange(r, po)
 		if err != nil && newBranch && errors.Is(err, errNoDefaultBranch) {
 			// A new branch in a repository without main, master or
 			// origin/HEAD: nothing to compare with, so its models are
@@ -200,7 +209,7 @@ func runPrePush(r *Repo, o Options) (*budget.Result, *Stats, error) {
 				return nil, nil, herr
 			}
 			rg, err = &Range{Base: r.empty(), BaseRef: "empty", Head: head, HeadRef: local}, nil
-			note = fmt.Sprintf("%s is a new branch and the repository has no default branch (origin/HEAD, main or master) to compare it with: its models are judged as added", f[2])
+			note = strings.TrimPrefix(note+"; ", "; ") + fmt.Sprintf("%s is a new branch and the repository has no default branch (origin/HEAD, main or master) to compare it with: its models are judged as added", f[2])
 		}
 		if err != nil {
 			return nil, nil, err

@@ -537,3 +537,26 @@ func TestTFLiteOnlyWhereBudgeted(t *testing.T) {
 		t.Fatalf("models %+v: want only budgeted/b.tflite, failing as unsupported", res.Models)
 	}
 }
+
+// TestPrePushRemoteTipMissing: when the remote's tip is not in the local
+// clone (a force push, or someone else's push not fetched), the pushed
+// commits are compared with the default branch and the push is judged,
+// not refused.
+func TestPrePushRemoteTipMissing(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(runBudget))
+	g.write("m.onnx", smallModel(t, 8))
+	g.commit("base")
+	g.git("checkout", "-q", "-b", "topic")
+	g.write("m.onnx", smallModel(t, 200))
+	local := g.commit("over budget")
+	unknown := strings.Repeat("ab", 20)
+	stdin := fmt.Sprintf("refs/heads/topic %s refs/heads/topic %s\n", local, unknown)
+	res, _, err := Run(Options{Dir: g.dir, PrePush: strings.NewReader(stdin), NoCache: true})
+	if err != nil {
+		t.Fatalf("the push was refused: %v", err)
+	}
+	if res.Verdict != budget.Fail || len(res.Problems) == 0 || !strings.Contains(res.Problems[0], "does not have") {
+		t.Fatalf("verdict %s, problems %q", res.Verdict, res.Problems)
+	}
+}
