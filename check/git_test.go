@@ -3,6 +3,7 @@ package check
 import (
 	"errors"
 	"fmt"
+	"github.com/loadline/loadline/internal/gittest"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -11,7 +12,6 @@ import (
 	"testing"
 
 	"github.com/loadline/loadline/measure"
-	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/model/build"
 	"github.com/loadline/loadline/model/onnx"
 )
@@ -25,32 +25,18 @@ type gitRepo struct {
 
 func newGitRepo(t *testing.T) *gitRepo {
 	t.Helper()
-	if _, err := exec.LookPath("git"); err != nil {
-		t.Skip("git is not installed")
-	}
-	g := &gitRepo{t: t, dir: t.TempDir()}
-	g.git("init", "-q", "-b", "main")
-	g.git("config", "user.email", "dev@wrenfield.example")
-	g.git("config", "user.name", "Wrenfield Dev")
-	g.git("config", "commit.gpgsign", "false")
-	return g
+	return &gitRepo{t: t, dir: gittest.Init(t)}
 }
 
 func (g *gitRepo) git(args ...string) string {
 	g.t.Helper()
-	return runGit(g.t, g.dir, args...)
+	return gittest.Run(g.t, g.dir, args...)
 }
 
+// runGit runs git in any folder (a clone, say).
 func runGit(t *testing.T, dir string, args ...string) string {
 	t.Helper()
-	cmd := exec.Command("git", args...)
-	cmd.Dir = dir
-	cmd.Env = append(os.Environ(), "GIT_CONFIG_NOSYSTEM=1", "HOME="+dir, "GIT_TERMINAL_PROMPT=0")
-	out, err := cmd.CombinedOutput()
-	if err != nil {
-		t.Fatalf("git %s: %v\n%s", strings.Join(args, " "), err, out)
-	}
-	return strings.TrimSpace(string(out))
+	return gittest.Run(t, dir, args...)
 }
 
 func (g *gitRepo) write(p string, data []byte) {
@@ -71,19 +57,11 @@ func (g *gitRepo) commit(msg string) string {
 	return g.git("rev-parse", "HEAD")
 }
 
-// smallModel encodes a small convolutional model whose first layer has the
-// given width; different widths give different figures.
+// smallModel encodes build.ConvClassifier at 16×16 with the given width;
+// different widths give different figures (params 32·width + 4).
 func smallModel(t *testing.T, width int64) []byte {
 	t.Helper()
-	b := build.New("small", 13)
-	x := b.Input("x", model.Float32, 1, 3, 16, 16)
-	x = b.Conv("conv", x, build.Conv2D(width, 3, 1, 1).WithBias())
-	x = b.Relu("relu", x)
-	x = b.GlobalAveragePool("pool", x)
-	x = b.Flatten("flat", x, 1)
-	x = b.Gemm("fc", x, 4, true)
-	b.Output(x)
-	m, err := b.Model()
+	m, err := build.ConvClassifier("small", 16, width)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"github.com/loadline/loadline/internal/gittest"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -10,25 +11,16 @@ import (
 	"sync"
 	"testing"
 
-	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/model/build"
 	"github.com/loadline/loadline/model/onnx"
 )
 
-// convModel encodes a small classifier whose first convolution has the
-// given width. Hand-worked params: conv 3→w, 3×3, bias: 28·w; Gemm w→4 with
-// bias: 4·w + 4. Width 8: 260; width 16: 516; width 200: 6,404.
+// convModel encodes build.ConvClassifier on an 8×8 image. Hand-worked
+// params: conv 3→w, 3×3, bias: 28·w; Gemm w→4 with bias: 4·w + 4. Width 8:
+// 260; width 16: 516; width 200: 6,404.
 func convModel(t *testing.T, width int64) []byte {
 	t.Helper()
-	b := build.New("cam", 13)
-	x := b.Input("image", model.Float32, 1, 3, 8, 8)
-	x = b.Conv("conv", x, build.Conv2D(width, 3, 1, 1).WithBias())
-	x = b.Relu("relu", x)
-	x = b.GlobalAveragePool("pool", x)
-	x = b.Flatten("flat", x, 1)
-	x = b.Gemm("fc", x, 4, true)
-	b.Output(x)
-	m, err := b.Model()
+	m, err := build.ConvClassifier("cam", 8, width)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -54,26 +46,12 @@ models:
 
 func git(t *testing.T, dir string, args ...string) string {
 	t.Helper()
-	cmd := exec.Command("git", args...)
-	cmd.Dir = dir
-	cmd.Env = append(os.Environ(), "GIT_CONFIG_NOSYSTEM=1", "HOME="+dir, "GIT_TERMINAL_PROMPT=0")
-	out, err := cmd.CombinedOutput()
-	if err != nil {
-		t.Fatalf("git %s: %v\n%s", strings.Join(args, " "), err, out)
-	}
-	return string(out)
+	return gittest.Run(t, dir, args...)
 }
 
 func newRepo(t *testing.T) string {
 	t.Helper()
-	if _, err := exec.LookPath("git"); err != nil {
-		t.Skip("git is not installed")
-	}
-	dir := t.TempDir()
-	git(t, dir, "init", "-q", "-b", "main")
-	git(t, dir, "config", "user.email", "dev@wrenfield.example")
-	git(t, dir, "config", "user.name", "Wrenfield Dev")
-	return dir
+	return gittest.Init(t)
 }
 
 func writeFile(t *testing.T, dir, p string, data []byte) {
@@ -166,7 +144,7 @@ func TestHookBlocksCommitOverBudget(t *testing.T) {
 	if !strings.Contains(stderr.String(), "models/cam.onnx") || !strings.Contains(stderr.String(), "params") {
 		t.Errorf("the hook's report is not on stderr:\nstderr:\n%s\nstdout:\n%s", stderr.String(), stdout.String())
 	}
-	if log := git(t, dir, "log", "--oneline"); strings.Count(log, "\n") != 2 {
+	if log := git(t, dir, "log", "--oneline"); len(strings.Split(log, "\n")) != 2 {
 		t.Errorf("want 2 commits, log:\n%s", log)
 	}
 }

@@ -519,3 +519,19 @@ func Architectures() []string {
 	sort.Strings(names)
 	return names
 }
+
+// ConvClassifier is a small classifier of our own for tests: a 3×3
+// convolution with bias from 3 channels to width on a size×size image,
+// ReLU, global average pooling, and a fully connected layer with bias to 4
+// classes. Its params are 28·width + 4·width + 4 (hand-worked).
+func ConvClassifier(name string, size, width int64) (*model.Model, error) {
+	b := New(name, 13)
+	x := b.Input("image", model.Float32, 1, 3, size, size)
+	x = b.Conv("conv", x, Conv2D(width, 3, 1, 1).WithBias())
+	x = b.Relu("relu", x)
+	x = b.GlobalAveragePool("pool", x)
+	x = b.Flatten("flat", x, 1)
+	x = b.Gemm("fc", x, 4, true)
+	b.Output(x)
+	return b.Model()
+}
