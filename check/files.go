@@ -5,14 +5,12 @@ package check
 
 import (
 	"fmt"
-	"path/filepath"
 	"runtime"
 	"runtime/debug"
-	"strings"
 	"sync"
 
 	"github.com/loadline/loadline/measure"
-	"github.com/loadline/loadline/model/onnx"
+	"github.com/loadline/loadline/model/format"
 )
 
 // MeasureFiles measures each file, in parallel, bounded by the number of
@@ -37,9 +35,6 @@ func MeasureFiles(paths []string, opts measure.Options) []*measure.Metrics {
 
 // MeasureFile decodes and measures one model file.
 func MeasureFile(path string, opts measure.Options) (m *measure.Metrics) {
-	if err := supported(path); err != nil {
-		return failed(path, err)
-	}
 	data, release, err := mapFile(path)
 	if err != nil {
 		return failed(path, err)
@@ -49,7 +44,7 @@ func MeasureFile(path string, opts measure.Options) (m *measure.Metrics) {
 	// read faults. Turn that fault into an error for this file instead of
 	// a crash of the whole run; any other panic is a bug and goes on up.
 	return onMapped(path, func() *measure.Metrics {
-		return decodeAndMeasure(data, onnx.Options{Path: path}, opts)
+		return decodeAndMeasure(path, data, format.Options{}, opts)
 	})
 }
 
@@ -81,35 +76,27 @@ func failed(path string, err error) *measure.Metrics {
 		Inputs: []measure.IOInfo{}, Outputs: []measure.IOInfo{}, Unresolved: []measure.Unresolved{}}
 }
 
-// supported refuses the model formats loadline cannot read yet.
-func supported(path string) error {
-	if formatOf(path) != "onnx" {
-		return fmt.Errorf("%s: unsupported model format (loadline reads .onnx files)", path)
-	}
-	return nil
-}
-
-// decodeAndMeasure decodes an ONNX model held in data and measures it;
-// errors come back as a failed entry named dec.Path.
-func decodeAndMeasure(data []byte, dec onnx.Options, opts measure.Options) *measure.Metrics {
-	m, err := onnx.Decode(data, dec)
+// decodeAndMeasure opens the model file path held in data through the one
+// door that reads every format (model/format) and measures it; errors come
+// back as a failed entry named path.
+func decodeAndMeasure(path string, data []byte, dec format.Options, opts measure.Options) *measure.Metrics {
+	m, err := format.Open(path, data, dec)
 	if err != nil {
-		return failed(dec.Path, err)
+		return failed(path, err)
 	}
 	met, err := measure.Measure(m, int64(len(data)), opts)
 	if err != nil {
-		return failed(dec.Path, fmt.Errorf("%s: %w", dec.Path, err))
+		return failed(path, fmt.Errorf("%s: %w", path, err))
 	}
-	met.Path = dec.Path
+	met.Path = path
 	return met
 }
 
+// formatOf is the format a file's name suggests, for the entry of a file
+// that could not be opened.
 func formatOf(path string) string {
-	switch strings.ToLower(filepath.Ext(path)) {
-	case ".onnx":
-		return "onnx"
-	case ".tflite":
-		return "tflite"
+	if f := format.Hint(path); f != "" {
+		return f
 	}
 	return "unknown"
 }

@@ -533,8 +533,8 @@ func TestTFLiteOnlyWhereBudgeted(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(res.Models) != 1 || res.Models[0].Path != "budgeted/b.tflite" || !strings.Contains(res.Models[0].Error, "unsupported model format") {
-		t.Fatalf("models %+v: want only budgeted/b.tflite, failing as unsupported", res.Models)
+	if len(res.Models) != 1 || res.Models[0].Path != "budgeted/b.tflite" || !strings.Contains(res.Models[0].Error, "not a TFLite model") {
+		t.Fatalf("models %+v: want only budgeted/b.tflite, failing as no TFLite model", res.Models)
 	}
 }
 

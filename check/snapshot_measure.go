@@ -11,7 +11,7 @@ import (
 	"sync/atomic"
 
 	"github.com/loadline/loadline/measure"
-	"github.com/loadline/loadline/model/onnx"
+	"github.com/loadline/loadline/model/format"
 )
 
 // Stats counts what a check did, for progress lines and tests.
@@ -74,18 +74,14 @@ func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stat
 		m.Path = p
 		return measured{m, repoPaths(dir, deps)}
 	}
-	if err := supported(p); err != nil {
-		return measured{Metrics: failed(p, err)}
-	}
 	data, err := s.Read(p)
 	if err != nil {
 		return measured{Metrics: failed(p, err)}
 	}
 	deps := map[string]string{}
 	var mu sync.Mutex
-	met := decodeAndMeasure(data, onnx.Options{
-		Path: p,
-		Dir:  dir,
+	met := decodeAndMeasure(p, data, format.Options{
+		Dir: dir,
 		ReadFile: func(name string) ([]byte, error) {
 			rel := filepath.ToSlash(name)
 			dh, ok := s.Hash(rel)
