@@ -13,14 +13,14 @@ func TestConvShapes(t *testing.T) {
 	w3 := nnRT("w", f32, 1, 1, 3, 3)
 	runNNCases(t, []nnCase{
 		// corpus test_basic_conv_with_padding
-		{name: "pads", op: "Conv", opset: 11, in: []nnIn{x5, w3}, attrs: []*model.Attr{atIs("pads", 1, 1, 1, 1)}, want: []string{"float32[1,1,5,5]"}},
+		{name: "pads", op: "Conv", opset: 11, in: []nnIn{x5, w3}, attrs: []*model.Attr{atIs("kernel_shape", 3, 3), atIs("pads", 1, 1, 1, 1)}, want: []string{"float32[1,1,5,5]"}},
 		// corpus test_basic_conv_without_padding
-		{name: "no pads", op: "Conv", opset: 11, in: []nnIn{x5, w3}, want: []string{"float32[1,1,3,3]"}},
+		{name: "no pads", op: "Conv", opset: 11, in: []nnIn{x5, w3}, attrs: []*model.Attr{atIs("kernel_shape", 3, 3), atIs("pads", 0, 0, 0, 0)}, want: []string{"float32[1,1,3,3]"}},
 		// corpus test_conv_with_strides_and_asymmetric_padding: (7+1+1-3)/2+1 = 4, (5+0+0-3)/2+1 = 2
-		{name: "strides asymmetric pads", op: "Conv", in: []nnIn{nnRT("x", f32, 1, 1, 7, 5), w3},
-			attrs: []*model.Attr{atIs("pads", 1, 0, 1, 0), atIs("strides", 2, 2)}, want: []string{"float32[1,1,4,2]"}},
+		{name: "strides asymmetric pads", op: "Conv", opset: 11, in: []nnIn{nnRT("x", f32, 1, 1, 7, 5), w3},
+			attrs: []*model.Attr{atIs("kernel_shape", 3, 3), atIs("pads", 1, 0, 1, 0), atIs("strides", 2, 2)}, want: []string{"float32[1,1,4,2]"}},
 		// corpus test_conv_with_autopad_same: ceil(5/2) = 3
-		{name: "SAME_LOWER", op: "Conv", in: []nnIn{x5, w3}, attrs: []*model.Attr{atS("auto_pad", "SAME_LOWER"), atIs("strides", 2, 2)}, want: []string{"float32[1,1,3,3]"}},
+		{name: "SAME_LOWER", op: "Conv", opset: 11, in: []nnIn{x5, w3}, attrs: []*model.Attr{atS("auto_pad", "SAME_LOWER"), atIs("kernel_shape", 3, 3), atIs("strides", 2, 2)}, want: []string{"float32[1,1,3,3]"}},
 		// ONNX operator spec formula: VALID pads nothing, (5-3)/2+1 = 2
 		{name: "VALID", op: "Conv", in: []nnIn{x5, w3}, attrs: []*model.Attr{atS("auto_pad", "VALID"), atIs("strides", 2, 2), atIs("pads", 9, 9, 9, 9)}, want: []string{"float32[1,1,2,2]"}},
 		// hand-worked: dilation 2 makes the 3-kernel span 5; (7-5)/1+1 = 3
@@ -37,8 +37,10 @@ func TestConvShapes(t *testing.T) {
 		// hand-worked: depthwise, 32 groups of one channel
 		{name: "depthwise", op: "Conv", in: []nnIn{nnRT("x", f32, 1, 32, 112, 112), nnRT("w", f32, 32, 1, 3, 3)},
 			attrs: []*model.Attr{atI("group", 32), atIs("pads", 1, 1, 1, 1)}, want: []string{"float32[1,32,112,112]"}},
-		// corpus pytorch-converted test_Conv1d_dilated: (10-(3-1)*2-1)/1+1 = 6
-		{name: "1-D", op: "Conv", opset: 6, in: []nnIn{nnRT("x", f32, 2, 4, 10), nnRT("w", f32, 5, 4, 3)}, attrs: []*model.Attr{atIs("dilations", 2)}, want: []string{"float32[2,5,6]"}},
+		// corpus pytorch-converted test_Conv1d_dilated: (10-(3-1)*2-1)/1+1 = 6 (its weight and bias
+		// are initializers; here graph inputs of the same shapes)
+		{name: "1-D", op: "Conv", opset: 6, in: []nnIn{nnRT("x", f32, 2, 4, 10), nnRT("w", f32, 5, 4, 3), nnRT("b", f32, 5)},
+			attrs: []*model.Attr{atIs("dilations", 2), atI("group", 1), atIs("kernel_shape", 3), atIs("pads", 0, 0), atIs("strides", 1)}, want: []string{"float32[2,5,6]"}},
 		// hand-worked: kernel_shape attribute wins over symbolic weight dims
 		{name: "kernel_shape attr", op: "Conv", in: []nnIn{nnRT("x", f32, 1, 1, 5, 5), nnRT("w", f32, 1, 1, "kh", "kw")}, attrs: []*model.Attr{atIs("kernel_shape", 3, 3)}, want: []string{"float32[1,1,3,3]"}},
 		{name: "kernel unknown", op: "Conv", in: []nnIn{nnRT("x", f32, 1, 1, 5, 5), nnRT("w", f32, 1, 1, "kh", "kw")}, err: "kernel size is not known"},
@@ -52,9 +54,15 @@ func TestConvShapes(t *testing.T) {
 		{name: "bias unknown rank", op: "Conv", in: []nnIn{x5, w3, nnUnk("b", f32)}, want: []string{"float32[1,1,3,3]"}},
 
 		// corpus test_basic_convinteger: int32 accumulator
-		{name: "ConvInteger", op: "ConvInteger", opset: 10, in: []nnIn{nnRT("x", model.Uint8, 1, 1, 3, 3), nnRT("w", model.Uint8, 1, 1, 2, 2)}, want: []string{"int32[1,1,2,2]"}},
-		// corpus test_qlinearconv: output type from y_zero_point
+		{name: "ConvInteger", op: "ConvInteger", opset: 10, in: []nnIn{nnRT("x", model.Uint8, 1, 1, 3, 3), nnRT("w", model.Uint8, 1, 1, 2, 2), nnRT("xz", model.Uint8)}, want: []string{"int32[1,1,2,2]"}},
+		// corpus test_qlinearconv
 		{name: "QLinearConv", op: "QLinearConv", opset: 10, in: []nnIn{
+			nnRT("x", model.Uint8, 1, 1, 7, 7), nnRT("xs", f32), nnRT("xz", model.Uint8),
+			nnRT("w", model.Uint8, 1, 1, 1, 1), nnRT("ws", f32, 1), nnRT("wz", model.Uint8, 1),
+			nnRT("ys", f32), nnRT("yz", model.Uint8)}, want: []string{"uint8[1,1,7,7]"}},
+		// hand-worked, after test_qlinearconv with an int8 y_zero_point: the output type is
+		// y_zero_point's (ONNX operator spec, QLinearConv-10), not x's
+		{name: "QLinearConv int8 output", op: "QLinearConv", opset: 10, in: []nnIn{
 			nnRT("x", model.Uint8, 1, 1, 7, 7), nnRT("xs", f32), nnRT("xz", model.Uint8),
 			nnRT("w", model.Uint8, 1, 1, 1, 1), nnRT("ws", f32, 1), nnRT("wz", model.Uint8, 1),
 			nnRT("ys", f32), nnRT("yz", model.Int8)}, want: []string{"int8[1,1,7,7]"}},
@@ -70,13 +78,13 @@ func TestConvTransposeShapes(t *testing.T) {
 		// corpus test_convtranspose: 1*(3-1)+3 = 5
 		{name: "default", op: "ConvTranspose", opset: 11, in: []nnIn{x3, w}, want: []string{"float32[1,2,5,5]"}},
 		// corpus test_convtranspose_pad: 3*(3-1)+1+3 = 10, 2*(3-1)+1+3 = 8
-		{name: "output_padding", op: "ConvTranspose", in: []nnIn{x3, w}, attrs: []*model.Attr{atIs("strides", 3, 2), atIs("output_padding", 1, 1)}, want: []string{"float32[1,2,10,8]"}},
+		{name: "output_padding", op: "ConvTranspose", opset: 11, in: []nnIn{x3, w}, attrs: []*model.Attr{atIs("strides", 3, 2), atIs("output_padding", 1, 1)}, want: []string{"float32[1,2,10,8]"}},
 		// corpus test_convtranspose_output_shape
-		{name: "output_shape", op: "ConvTranspose", in: []nnIn{x3, w}, attrs: []*model.Attr{atIs("strides", 3, 2), atIs("output_shape", 10, 8)}, want: []string{"float32[1,2,10,8]"}},
+		{name: "output_shape", op: "ConvTranspose", opset: 11, in: []nnIn{x3, w}, attrs: []*model.Attr{atIs("strides", 3, 2), atIs("output_shape", 10, 8)}, want: []string{"float32[1,2,10,8]"}},
 		// hand-worked: the full [N, C, H, W] form some exporters write
 		{name: "output_shape full", op: "ConvTranspose", in: []nnIn{x3, w}, attrs: []*model.Attr{atIs("output_shape", 1, 2, 10, 8)}, want: []string{"float32[1,2,10,8]"}},
 		// corpus test_convtranspose_autopad_same: 3*2 = 6
-		{name: "SAME_UPPER", op: "ConvTranspose", in: []nnIn{x3, w}, attrs: []*model.Attr{atS("auto_pad", "SAME_UPPER"), atIs("strides", 2, 2)}, want: []string{"float32[1,2,6,6]"}},
+		{name: "SAME_UPPER", op: "ConvTranspose", opset: 11, in: []nnIn{x3, w}, attrs: []*model.Attr{atS("auto_pad", "SAME_UPPER"), atIs("strides", 2, 2)}, want: []string{"float32[1,2,6,6]"}},
 		// ONNX operator spec formula: SAME gives in*stride even with output_padding or a kernel
 		// smaller than the stride (ONNX 1.12's infer_shapes says 11 and 13 here)
 		{name: "SAME output_padding", op: "ConvTranspose", in: []nnIn{nnRT("x", f32, 1, 1, 5), nnRT("w", f32, 1, 1, 5)},
@@ -84,9 +92,9 @@ func TestConvTransposeShapes(t *testing.T) {
 		{name: "SAME small kernel", op: "ConvTranspose", in: []nnIn{nnRT("x", f32, 1, 1, 7), nnRT("w", f32, 1, 1, 1)},
 			attrs: []*model.Attr{atS("auto_pad", "SAME_LOWER"), atIs("strides", 2)}, want: []string{"float32[1,1,14]"}},
 		// corpus test_convtranspose_pads: 3*(3-1)+3-1-1 = 7, 2*(3-1)+3-2-2 = 3
-		{name: "pads", op: "ConvTranspose", in: []nnIn{x3, w}, attrs: []*model.Attr{atIs("strides", 3, 2), atIs("pads", 1, 2, 1, 2)}, want: []string{"float32[1,2,7,3]"}},
+		{name: "pads", op: "ConvTranspose", opset: 11, in: []nnIn{x3, w}, attrs: []*model.Attr{atIs("strides", 3, 2), atIs("pads", 1, 2, 1, 2)}, want: []string{"float32[1,2,7,3]"}},
 		// corpus test_convtranspose_dilations: (3-1)+(2-1)*2+1 = 5
-		{name: "dilations", op: "ConvTranspose", in: []nnIn{x3, nnRT("w", f32, 1, 1, 2, 2)}, attrs: []*model.Attr{atIs("dilations", 2, 2)}, want: []string{"float32[1,1,5,5]"}},
+		{name: "dilations", op: "ConvTranspose", opset: 11, in: []nnIn{x3, nnRT("w", f32, 1, 1, 2, 2)}, attrs: []*model.Attr{atIs("dilations", 2, 2)}, want: []string{"float32[1,1,5,5]"}},
 		// hand-worked: DCGAN-style 4×4 stride 2 pad 1 upsampling doubles a symbolic size
 		{name: "symbolic", op: "ConvTranspose", in: []nnIn{nnRT("x", f32, "N", 8, "H", 4), nnRT("w", f32, 8, 3, 4, 4)},
 			attrs: []*model.Attr{atIs("strides", 2, 2), atIs("pads", 1, 1, 1, 1), atI("group", 2)}, want: []string{"float32[N,6,(2*(H-1))+2,8]"}},

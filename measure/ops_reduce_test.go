@@ -9,19 +9,22 @@ import (
 func TestReduceShapes(t *testing.T) {
 	x := nnRT("x", f32, 3, 2, 2)
 	keep0 := atI("keepdims", 0)
+	keep1 := atI("keepdims", 1)
 	runNNCases(t, []nnCase{
 		// corpus test_reduce_sum_keepdims_example: axes input from opset 13
-		{name: "ReduceSum axes input", op: "ReduceSum", opset: 13, in: []nnIn{x, nnI64("axes", []int64{1})}, want: []string{"float32[3,1,2]"}},
+		{name: "ReduceSum axes input", op: "ReduceSum", opset: 13, in: []nnIn{x, nnI64("axes", []int64{1})}, attrs: []*model.Attr{keep1}, want: []string{"float32[3,1,2]"}},
 		// corpus test_reduce_sum_do_not_keepdims_example
 		{name: "ReduceSum no keepdims", op: "ReduceSum", opset: 13, in: []nnIn{x, nnI64("axes", []int64{1})}, attrs: []*model.Attr{keep0}, want: []string{"float32[3,2]"}},
-		// corpus test_reduce_sum_default_axes_keepdims_example: no axes reduces all
+		// corpus test_reduce_sum_default_axes_keepdims_example: empty axes reduce all
+		{name: "ReduceSum empty axes", op: "ReduceSum", opset: 13, in: []nnIn{x, nnI64("axes", []int64{})}, attrs: []*model.Attr{keep1}, want: []string{"float32[1,1,1]"}},
+		// ONNX operator spec (ReduceSum-13): no axes input reduces all
 		{name: "ReduceSum all", op: "ReduceSum", opset: 13, in: []nnIn{x}, want: []string{"float32[1,1,1]"}},
 		// corpus test_reduce_sum_empty_axes_input_noop_example
-		{name: "ReduceSum noop", op: "ReduceSum", opset: 13, in: []nnIn{x, nnI64("axes", []int64{})}, attrs: []*model.Attr{atI("noop_with_empty_axes", 1)}, want: []string{"float32[3,2,2]"}},
+		{name: "ReduceSum noop", op: "ReduceSum", opset: 13, in: []nnIn{x, nnI64("axes", []int64{})}, attrs: []*model.Attr{keep1, atI("noop_with_empty_axes", 1)}, want: []string{"float32[3,2,2]"}},
 		// corpus pytorch-operator test_operator_reduced_sum: axes attribute before opset 13
 		{name: "ReduceSum attr", op: "ReduceSum", opset: 6, in: []nnIn{nnRT("x", f32, 1, 2, 3, 4)}, attrs: []*model.Attr{atIs("axes", 2), keep0}, want: []string{"float32[1,2,4]"}},
 		// corpus test_reduce_mean_negative_axes_keepdims_example: axes attribute up to opset 17
-		{name: "ReduceMean attr negative", op: "ReduceMean", opset: 13, in: []nnIn{x}, attrs: []*model.Attr{atIs("axes", -2)}, want: []string{"float32[3,1,2]"}},
+		{name: "ReduceMean attr negative", op: "ReduceMean", opset: 13, in: []nnIn{x}, attrs: []*model.Attr{atIs("axes", -2), keep1}, want: []string{"float32[3,1,2]"}},
 		// ONNX operator spec (ReduceMean-18): axes became an input
 		{name: "ReduceMean opset 18", op: "ReduceMean", opset: 18, in: []nnIn{nnRT("x", f32, "N", 64, 7, 7), nnI64("axes", []int64{2, 3})}, want: []string{"float32[N,64,1,1]"}},
 		// ONNX operator spec (ReduceMax-18): no axes and noop_with_empty_axes=0 reduce everything
@@ -38,24 +41,32 @@ func TestReduceShapes(t *testing.T) {
 		{name: "axis repeated", op: "ReduceMean", opset: 13, in: []nnIn{x}, attrs: []*model.Attr{atIs("axes", 1, -2)}, err: "repeated"},
 
 		// corpus test_argmax_keepdims_example
-		{name: "ArgMax", op: "ArgMax", opset: 13, in: []nnIn{nnRT("x", f32, 2, 2)}, attrs: []*model.Attr{atI("axis", 1)}, want: []string{"int64[2,1]"}},
+		{name: "ArgMax", op: "ArgMax", opset: 13, in: []nnIn{nnRT("x", f32, 2, 2)}, attrs: []*model.Attr{atI("axis", 1), keep1}, want: []string{"int64[2,1]"}},
 		// corpus test_argmin_no_keepdims_random
-		{name: "ArgMin no keepdims", op: "ArgMin", opset: 13, in: []nnIn{nnRT("x", f32, 2, 3, 4)}, attrs: []*model.Attr{atI("axis", 1), keep0, atI("select_last_index", 1)}, want: []string{"int64[2,4]"}},
+		{name: "ArgMin no keepdims", op: "ArgMin", opset: 13, in: []nnIn{nnRT("x", f32, 2, 3, 4)}, attrs: []*model.Attr{atI("axis", 1), keep0}, want: []string{"int64[2,4]"}},
+		// hand-worked, after test_argmin_no_keepdims_random: select_last_index (ArgMin-12) leaves the shape alone
+		{name: "ArgMin select_last_index", op: "ArgMin", opset: 13, in: []nnIn{nnRT("x", f32, 2, 3, 4)}, attrs: []*model.Attr{atI("axis", 1), keep0, atI("select_last_index", 1)}, want: []string{"int64[2,4]"}},
 		// corpus test_argmax_default_axis_example: axis 0 by default
-		{name: "ArgMax default axis", op: "ArgMax", in: []nnIn{nnRT("x", f32, "N", 10)}, want: []string{"int64[1,10]"}},
+		{name: "ArgMax default axis", op: "ArgMax", opset: 13, in: []nnIn{nnRT("x", f32, 2, 2)}, attrs: []*model.Attr{keep1}, want: []string{"int64[1,2]"}},
+		// hand-worked, after test_argmax_default_axis_example: a symbolic dim on axis 0 goes, the rest stays
+		{name: "ArgMax default axis symbolic", op: "ArgMax", in: []nnIn{nnRT("x", f32, "N", 10)}, want: []string{"int64[1,10]"}},
 		{name: "ArgMax axis", op: "ArgMax", in: []nnIn{nnRT("x", f32, 2, 2)}, attrs: []*model.Attr{atI("axis", 2)}, err: "axis 2 is out of range for rank 2"},
 
-		// corpus test_top_k: K input, axis -1 by default
-		{name: "TopK", op: "TopK", opset: 11, in: []nnIn{nnRT("x", f32, 3, 4), nnI64("k", []int64{3})}, want: []string{"float32[3,3]", "int64[3,3]"}},
+		// corpus test_top_k: K input
+		{name: "TopK", op: "TopK", opset: 11, in: []nnIn{nnRT("x", f32, 3, 4), nnI64("k", []int64{3})}, attrs: []*model.Attr{atI("axis", 1)}, want: []string{"float32[3,3]", "int64[3,3]"}},
+		// ONNX operator spec (TopK-11): axis -1 by default
+		{name: "TopK default axis", op: "TopK", opset: 11, in: []nnIn{nnRT("x", f32, 3, 4), nnI64("k", []int64{3})}, want: []string{"float32[3,3]", "int64[3,3]"}},
 		// ONNX operator spec (TopK-1): k attribute
 		{name: "TopK opset 1", op: "TopK", opset: 1, in: []nnIn{nnRT("x", f32, "N", 100)}, attrs: []*model.Attr{atI("k", 5)}, want: []string{"float32[N,5]", "int64[N,5]"}},
 		// corpus test_top_k_negative_axis
+		{name: "TopK axis -1", op: "TopK", opset: 11, in: []nnIn{nnRT("x", f32, 3, 4), nnI64("k", []int64{3})}, attrs: []*model.Attr{atI("axis", -1)}, want: []string{"float32[3,3]", "int64[3,3]"}},
+		// hand-worked, after test_top_k_negative_axis: axis -2 of [3,4,5] is axis 1, K = 2 of its 4
 		{name: "TopK axis", op: "TopK", opset: 11, in: []nnIn{nnRT("x", f32, 3, 4, 5), nnI64("k", []int64{2})}, attrs: []*model.Attr{atI("axis", -2)}, want: []string{"float32[3,2,5]", "int64[3,2,5]"}},
 		{name: "TopK K at run time", op: "TopK", opset: 11, in: []nnIn{nnRT("x", f32, 3, 4), nnRT("k", model.Int64, 1)}, err: `K (input 1, "k") is computed at run time`},
 		{name: "TopK K too big", op: "TopK", opset: 11, in: []nnIn{nnRT("x", f32, 3, 4), nnI64("k", []int64{5})}, err: "K is 5 but axis 1 holds only 4 entries"},
 
 		// corpus test_cumsum_2d_negative_axis
-		{name: "CumSum", op: "CumSum", opset: 14, in: []nnIn{nnRT("x", f32, 2, 3), nnI64("axis", []int64{-1}, []int64{}...)}, want: []string{"float32[2,3]"}},
+		{name: "CumSum", op: "CumSum", opset: 14, in: []nnIn{nnRT("x", model.Float64, 2, 3), nnInts("axis", model.Int32, []int64{-1}, []int64{}...)}, want: []string{"float64[2,3]"}},
 		{name: "CumSum axis", op: "CumSum", opset: 14, in: []nnIn{nnRT("x", f32, 2, 3), nnI64("axis", []int64{2}, []int64{}...)}, err: "axis 2 is out of range"},
 	})
 }

@@ -9,9 +9,12 @@ import (
 func TestSignalShapes(t *testing.T) {
 	x := nnRT("x", f32, 1, 10, 10, 1)
 	scalar := func(name string, v int64) nnIn { return nnI64(name, []int64{v}, []int64{}...) }
+	i32 := func(name string, v int64) nnIn { return nnInts(name, model.Int32, []int64{v}, []int64{}...) }
 	runNNCases(t, []nnCase{
-		// corpus test_dft: axis 1 by default, real input becomes complex
-		{name: "DFT", op: "DFT", opset: 17, in: []nnIn{x}, want: []string{"float32[1,10,10,2]"}},
+		// corpus test_dft: axis 1, real input becomes complex
+		{name: "DFT", op: "DFT", opset: 17, in: []nnIn{x}, attrs: []*model.Attr{atI("axis", 1)}, want: []string{"float32[1,10,10,2]"}},
+		// ONNX operator spec (DFT-17): axis 1 by default
+		{name: "DFT default axis", op: "DFT", opset: 17, in: []nnIn{x}, want: []string{"float32[1,10,10,2]"}},
 		// corpus test_dft_axis
 		{name: "DFT axis 2", op: "DFT", opset: 17, in: []nnIn{x}, attrs: []*model.Attr{atI("axis", 2)}, want: []string{"float32[1,10,10,2]"}},
 		// ONNX operator spec (DFT-17): onesided keeps floor(n/2)+1 bins
@@ -36,13 +39,13 @@ func TestSignalShapes(t *testing.T) {
 		{name: "STFT no frame", op: "STFT", opset: 17, in: []nnIn{nnRT("x", f32, 1, 128, 1), scalar("step", 8)}, err: "neither a window nor a frame_length"},
 		{name: "STFT step at run time", op: "STFT", opset: 17, in: []nnIn{nnRT("x", f32, 1, 128, 1), nnRT("step", model.Int64), nnRT("w", f32, 16)}, err: `frame_step (input 1, "step") is computed at run time`},
 
-		// corpus test_hannwindow
-		{name: "HannWindow", op: "HannWindow", opset: 17, in: []nnIn{scalar("n", 10)}, want: []string{"float32[10]"}},
+		// corpus test_hannwindow: an int32 size
+		{name: "HannWindow", op: "HannWindow", opset: 17, in: []nnIn{nnInts("n", model.Int32, []int64{10}, []int64{}...)}, want: []string{"float32[10]"}},
 		// ONNX operator spec: output_datatype picks the type
 		{name: "HammingWindow float64", op: "HammingWindow", opset: 17, in: []nnIn{scalar("n", 10)}, attrs: []*model.Attr{atI("output_datatype", int64(model.Float64)), atI("periodic", 0)}, want: []string{"float64[10]"}},
 		{name: "BlackmanWindow", op: "BlackmanWindow", opset: 17, in: []nnIn{scalar("n", 7)}, want: []string{"float32[7]"}},
 		{name: "window at run time", op: "HannWindow", opset: 17, in: []nnIn{nnRT("n", model.Int64)}, err: `size (input 0, "n") is computed at run time`},
-		// corpus test_melweightmatrix: [16/2+1, 8]
-		{name: "MelWeightMatrix", op: "MelWeightMatrix", opset: 17, in: []nnIn{scalar("bins", 8), scalar("dft", 16), scalar("sr", 8192), nnF32("lo", []float64{0}), nnF32("hi", []float64{4096})}, want: []string{"float32[9,8]"}},
+		// corpus test_melweightmatrix: [16/2+1, 8] from int32 and float32 scalars
+		{name: "MelWeightMatrix", op: "MelWeightMatrix", opset: 17, in: []nnIn{i32("bins", 8), i32("dft", 16), i32("sr", 8192), nnF32("lo", []float64{0}, []int64{}...), nnF32("hi", []float64{4096}, []int64{}...)}, want: []string{"float32[9,8]"}},
 	})
 }
