@@ -55,6 +55,7 @@ type Poster interface {
 //	LOADLINE_FAIL_ON=fail|warn|never  the verdict that makes the status a failure
 //	LOADLINE_API_TIMEOUT=30s      deadline of each API request
 //	LOADLINE_API_MAX_WAIT=60s     longest wait for a retry, and for all of one call's retries
+//	LOADLINE_API_DEADLINE=3m      the most time posting takes, all calls together
 //
 // On GitHub the annotations go to standard output, where the runner reads
 // workflow commands.
@@ -71,6 +72,9 @@ func DetectTo(getenv func(string) string, w io.Writer) (Poster, bool) {
 	}
 	if d, err := time.ParseDuration(getenv("LOADLINE_API_MAX_WAIT")); err == nil && d > 0 {
 		retry.MaxWait, retry.MaxTotalWait = d, d
+	}
+	if d, err := time.ParseDuration(getenv("LOADLINE_API_DEADLINE")); err == nil && d > 0 {
+		retry.Deadline = d
 	}
 	comment := !isFalse(getenv("LOADLINE_COMMENT"))
 	switch {

@@ -137,6 +137,10 @@ type GitLabEnv struct {
 	Token       string
 	TokenHeader string // "PRIVATE-TOKEN" or "JOB-TOKEN"
 
+	// JobUser is GITLAB_USER_LOGIN, the user who started the job: the
+	// author of what a job token writes.
+	JobUser string
+
 	TargetBranch string // CI_MERGE_REQUEST_TARGET_BRANCH_NAME
 	DiffBaseSHA  string // CI_MERGE_REQUEST_DIFF_BASE_SHA: the merge-base the MR diff is taken from
 	SourceSHA    string // CI_COMMIT_SHA
@@ -153,6 +157,7 @@ func GitLabEnvFrom(getenv func(string) string) (GitLabEnv, error) {
 		TargetBranch: getenv("CI_MERGE_REQUEST_TARGET_BRANCH_NAME"),
 		DiffBaseSHA:  getenv("CI_MERGE_REQUEST_DIFF_BASE_SHA"),
 		SourceSHA:    getenv("CI_COMMIT_SHA"),
+		JobUser:      getenv("GITLAB_USER_LOGIN"),
 	}
 	if e.ProjectID == "" {
 		e.ProjectID = getenv("CI_PROJECT_ID")

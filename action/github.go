@@ -60,8 +60,7 @@ func (g *GitHub) token() string {
 // root as is (https://api.github.com, or https://HOST/api/v3 on GitHub
 // Enterprise Server), so it becomes BaseURL unchanged.
 func (g *GitHub) client() (*github.Client, error) {
-	hc := &http.Client{Transport: newTransport(g.Transport, g.Retry)}
-	c := github.NewClient(hc)
+	c := github.NewClient(apiClient(g.Transport, g.Retry))
 	if t := g.token(); t != "" {
 		c = c.WithAuthToken(t)
 	}
@@ -83,9 +82,11 @@ func (g *GitHub) client() (*github.Client, error) {
 // the check's. An error is an unreachable or failing API, after retries.
 func (g *GitHub) Post(ctx context.Context, body string, res *budget.Result) (warnings []string, err error) {
 	red := newRedactor(g.token())
+	ctx, cancel := withDeadline(ctx, g.Retry)
+	defer cancel()
 	defer func() {
 		warnings = red.strings(warnings)
-		err = red.error(err)
+		err = red.error(deadlineError(ctx, g.Retry, err))
 	}()
 	var errs []error
 	if g.Env.StepSummary != "" {
@@ -154,9 +155,11 @@ func (g *GitHub) writeOutputs(kv [][2]string) error {
 	return AppendOutputs(g.Env.Output, kv)
 }
 
-// upsertComment edits the comment carrying Marker, looking through every
-// page of the pull request's comments, or creates it. It returns the
-// comment's address.
+// upsertComment edits loadline's own comment, found by Marker among the
+// pull request's comments (at most MaxPages pages) and written by the job's
+// own identity, or creates it. An edit refused with 403 or 404 (the comment
+// is someone else's after all, or was deleted) falls back to creating a new
+// comment. It returns the comment's address.
 func (g *GitHub) upsertComment(ctx context.Context, c *github.Client, body string) (string, []string, error) {
 	owner, repo, pr := g.Env.Owner(), g.Env.Repo(), g.Env.PullNumber
 	text := commentBody(body, GitHubCommentLimit, "see the job summary")
@@ -167,65 +170,142 @@ func (g *GitHub) upsertComment(ctx context.Context, c *github.Client, body strin
 		}
 		return "", nil, fmt.Errorf("listing comments on %s#%d: %w", g.Env.Repository, pr, err)
 	}
-	var out *github.IssueComment
+	var warnings []string
 	if id != 0 {
-		out, _, err = c.Issues.EditComment(ctx, owner, repo, id, &github.IssueComment{Body: &text})
-		if err != nil {
-			if w, ok := g.refused(err, "edit its comment"); ok {
-				return "", []string{w}, nil
-			}
+		out, _, err := c.Issues.EditComment(ctx, owner, repo, id, &github.IssueComment{Body: &text})
+		if err == nil {
+			return out.GetHTMLURL(), nil, nil
+		}
+		if !editRefused(err) {
 			return "", nil, fmt.Errorf("editing comment %d on %s#%d: %w", id, g.Env.Repository, pr, err)
 		}
-	} else {
-		out, _, err = c.Issues.CreateComment(ctx, owner, repo, pr, &github.IssueComment{Body: &text})
-		if err != nil {
-			if w, ok := g.refused(err, "comment"); ok {
-				return "", []string{w}, nil
-			}
-			return "", nil, fmt.Errorf("commenting on %s#%d: %w", g.Env.Repository, pr, err)
-		}
+		warnings = append(warnings, fmt.Sprintf("editing loadline's comment %d on %s#%d was refused (%s): posting a new comment", id, g.Env.Repository, pr, statusText(err)))
 	}
-	return out.GetHTMLURL(), nil, nil
+	out, _, err := c.Issues.CreateComment(ctx, owner, repo, pr, &github.IssueComment{Body: &text})
+	if err != nil {
+		if w, ok := g.refused(err, "comment"); ok {
+			return "", append(warnings, w), nil
+		}
+		return "", warnings, fmt.Errorf("commenting on %s#%d: %w", g.Env.Repository, pr, err)
+	}
+	return out.GetHTMLURL(), warnings, nil
 }
 
-// findComment returns the ID of the first comment whose body starts with
-// Marker, or 0.
+// editRefused says whether an edit failed because the host will not let
+// this token edit that comment: 403 (not a rate limit) or 404.
+func editRefused(err error) bool {
+	var er *github.ErrorResponse
+	if !errors.As(err, &er) || er.Response == nil {
+		return false
+	}
+	code := er.Response.StatusCode
+	return code == http.StatusNotFound || (code == http.StatusForbidden && !isRateLimited(er.Response))
+}
+
+func statusText(err error) string {
+	var er *github.ErrorResponse
+	if errors.As(err, &er) && er.Response != nil {
+		if er.Message != "" {
+			return fmt.Sprintf("HTTP %d: %s", er.Response.StatusCode, er.Message)
+		}
+		return fmt.Sprintf("HTTP %d", er.Response.StatusCode)
+	}
+	return err.Error()
+}
+
+// findComment returns the ID of the first comment that carries Marker and
+// that the job's own identity wrote, or 0. It reads at most MaxPages pages,
+// and asks for the identity only when a marked comment is there.
 func (g *GitHub) findComment(ctx context.Context, c *github.Client, owner, repo string, pr int) (int64, error) {
 	opts := &github.IssueListCommentsOptions{ListOptions: github.ListOptions{PerPage: 100}}
-	for {
+	self := ""
+	for page := 1; ; page++ {
+		if page > MaxPages {
+			return 0, &PagesError{What: fmt.Sprintf("comments on %s#%d", g.Env.Repository, pr)}
+		}
 		comments, resp, err := c.Issues.ListComments(ctx, owner, repo, pr, opts)
 		if err != nil {
 			return 0, err
 		}
 		for _, cm := range comments {
-			if hasMarker(cm.GetBody()) && trustedAuthor(cm) {
+			if !hasMarker(cm.GetBody()) {
+				continue
+			}
+			if self == "" {
+				if self, err = g.identity(ctx, c); err != nil {
+					return 0, err
+				}
+			}
+			if writtenBy(cm, self) {
 				return cm.GetID(), nil
 			}
 		}
 		if resp.NextPage == 0 {
 			return 0, nil
 		}
+		if resp.NextPage == opts.Page {
+			return 0, fmt.Errorf("the API names page %d as the next page of itself", opts.Page)
+		}
 		opts.Page = resp.NextPage
 	}
 }
 
-// trustedAuthor reports whether a marked comment may be the one loadline
-// edits: written by a bot (the job's token posts as one), or by someone with
-// write access to the repository (a personal token's owner). Anyone else
-// could otherwise post the marker first and keep the report from updating.
-func trustedAuthor(cm *github.IssueComment) bool {
+// ActionsBotLogin is the login under which GitHub Actions' own token
+// (GITHUB_TOKEN) writes comments.
+const ActionsBotLogin = "github-actions[bot]"
+
+// identity returns the login the token writes comments as: the user of a
+// personal token (GET /user), the app's bot login ("<slug>[bot]") for a
+// GitHub App installation token, which GET /user refuses but GraphQL's
+// viewer answers, and failing both the Actions bot login.
+func (g *GitHub) identity(ctx context.Context, c *github.Client) (string, error) {
+	u, _, err := c.Users.Get(ctx, "")
+	if err == nil && u.GetLogin() != "" {
+		return u.GetLogin(), nil
+	}
+	if err != nil && !editRefused(err) {
+		return "", fmt.Errorf("asking the API who the token is (GET /user): %w", err)
+	}
+	if login, err := viewerLogin(ctx, c, g.Env.APIURL); err == nil && login != "" {
+		return login, nil
+	}
+	return ActionsBotLogin, nil
+}
+
+// viewerLogin asks GitHub's GraphQL API for the viewer's login. The
+// GraphQL endpoint is /graphql beside the REST root on github.com, and
+// /api/graphql on GitHub Enterprise Server (REST at /api/v3).
+func viewerLogin(ctx context.Context, c *github.Client, apiURL string) (string, error) {
+	u := strings.TrimRight(apiURL, "/")
+	if base, ok := strings.CutSuffix(u, "/api/v3"); ok {
+		u = base + "/api/graphql"
+	} else {
+		u += "/graphql"
+	}
+	req, err := c.NewRequest(http.MethodPost, u, map[string]string{"query": "query { viewer { login } }"})
+	if err != nil {
+		return "", err
+	}
+	var out struct {
+		Data struct {
+			Viewer struct {
+				Login string `json:"login"`
+			} `json:"viewer"`
+		} `json:"data"`
+	}
+	if _, err := c.Do(ctx, req, &out); err != nil {
+		return "", err
+	}
+	return out.Data.Viewer.Login, nil
+}
+
+// writtenBy reports whether the job's own identity wrote a comment. A
+// comment with no author, or by anyone else (another bot, a maintainer
+// quoting the marker), is not edited: someone else could otherwise post
+// the marker first and keep the report from updating.
+func writtenBy(cm *github.IssueComment, login string) bool {
 	u := cm.GetUser()
-	if u == nil {
-		return true // no author given: nothing to judge by
-	}
-	if u.GetType() == "Bot" {
-		return true
-	}
-	switch cm.GetAuthorAssociation() {
-	case "OWNER", "MEMBER", "COLLABORATOR":
-		return true
-	}
-	return false
+	return u != nil && login != "" && strings.EqualFold(u.GetLogin(), login)
 }
 
 // refused tells a 403 that is a refusal (the token lacks the permission,

@@ -6,7 +6,6 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"github.com/google/go-github/v75/github"
 	"net/http"
 	"net/http/httptest"
 	"os"
@@ -40,12 +39,43 @@ type fakeGitHub struct {
 	// returns true when it did.
 	before func(w http.ResponseWriter, r *http.Request, n int) bool
 	calls  int
+	// userLogin, when set, makes the token a personal one: GET /user
+	// answers it. appLogin, when set, makes it a GitHub App's installation
+	// token: GET /user is refused and GraphQL's viewer answers it. With
+	// neither the token is the Actions job's: both are refused, and the
+	// comments it writes are the Actions bot's.
+	userLogin, appLogin string
+}
+
+type ghUser struct {
+	Login string `json:"login"`
+	Type  string `json:"type,omitempty"`
 }
 
 type ghComment struct {
-	ID      int64  `json:"id"`
-	Body    string `json:"body"`
-	HTMLURL string `json:"html_url"`
+	ID      int64   `json:"id"`
+	Body    string  `json:"body"`
+	HTMLURL string  `json:"html_url"`
+	User    *ghUser `json:"user,omitempty"`
+}
+
+// self is the author of the comments the token writes.
+func (f *fakeGitHub) self() *ghUser {
+	switch {
+	case f.userLogin != "":
+		return &ghUser{Login: f.userLogin, Type: "User"}
+	case f.appLogin != "":
+		return &ghUser{Login: f.appLogin, Type: "Bot"}
+	}
+	return &ghUser{Login: "github-actions[bot]", Type: "Bot"}
+}
+
+// refuseIntegration answers as GitHub does when an installation token asks
+// for something only a user may.
+func refuseIntegration(w http.ResponseWriter) {
+	w.Header().Set("Content-Type", "application/json")
+	w.WriteHeader(http.StatusForbidden)
+	fmt.Fprint(w, `{"message":"Resource not accessible by integration"}`)
 }
 
 func newFakeGitHub(t *testing.T) *fakeGitHub {
@@ -55,6 +85,23 @@ func newFakeGitHub(t *testing.T) *fakeGitHub {
 	mux.HandleFunc("POST "+ghPrefix+"/repos/{owner}/{repo}/issues/{n}/comments", f.create)
 	mux.HandleFunc("PATCH "+ghPrefix+"/repos/{owner}/{repo}/issues/comments/{id}", f.edit)
 	mux.HandleFunc("POST "+ghPrefix+"/repos/{owner}/{repo}/statuses/{sha}", f.status)
+	mux.HandleFunc("GET "+ghPrefix+"/user", func(w http.ResponseWriter, r *http.Request) {
+		f.rec.add(r, "Authorization")
+		if f.userLogin == "" {
+			refuseIntegration(w)
+			return
+		}
+		json.NewEncoder(w).Encode(ghUser{Login: f.userLogin, Type: "User"})
+	})
+	// GitHub Enterprise Server serves GraphQL at /api/graphql beside /api/v3.
+	mux.HandleFunc("POST /api/graphql", func(w http.ResponseWriter, r *http.Request) {
+		rq := f.rec.add(r, "Authorization")
+		if f.appLogin == "" || !strings.Contains(rq.Body, "viewer") {
+			refuseIntegration(w)
+			return
+		}
+		fmt.Fprintf(w, `{"data":{"viewer":{"login":%q}}}`, f.appLogin)
+	})
 	f.srv = httptest.NewServer(http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
 		if r.Header.Get("Authorization") != "Bearer "+testToken {
 			w.WriteHeader(http.StatusUnauthorized)
@@ -76,13 +123,23 @@ func newFakeGitHub(t *testing.T) *fakeGitHub {
 	return f
 }
 
-// seed adds comments written by others (or by us, when body has the marker).
+// seed adds comments written by someone else (a person, "reviewer").
 func (f *fakeGitHub) seed(bodies ...string) {
+	f.seedBy(&ghUser{Login: "reviewer", Type: "User"}, bodies...)
+}
+
+// seedOurs adds comments written by the token's own identity.
+func (f *fakeGitHub) seedOurs(bodies ...string) {
+	f.seedBy(f.self(), bodies...)
+}
+
+// seedBy adds comments written by u (nil: no author given).
+func (f *fakeGitHub) seedBy(u *ghUser, bodies ...string) {
 	f.mu.Lock()
 	defer f.mu.Unlock()
 	for _, b := range bodies {
 		f.nextID++
-		f.comments = append(f.comments, ghComment{ID: f.nextID, Body: b})
+		f.comments = append(f.comments, ghComment{ID: f.nextID, Body: b, User: u})
 	}
 }
 
@@ -122,7 +179,7 @@ func (f *fakeGitHub) create(w http.ResponseWriter, r *http.Request) {
 	}
 	f.mu.Lock()
 	f.nextID++
-	c := ghComment{ID: f.nextID, Body: in.Body, HTMLURL: fmt.Sprintf("https://github.example/o/r/pull/%s#issuecomment-%d", r.PathValue("n"), f.nextID)}
+	c := ghComment{ID: f.nextID, Body: in.Body, HTMLURL: fmt.Sprintf("https://github.example/o/r/pull/%s#issuecomment-%d", r.PathValue("n"), f.nextID), User: f.self()}
 	f.comments = append(f.comments, c)
 	f.mu.Unlock()
 	w.WriteHeader(http.StatusCreated)
@@ -274,12 +331,16 @@ func TestGitHubCreatesThenEdits(t *testing.T) {
 		t.Fatalf("second run: warnings %q, error %v", w, err)
 	}
 	reqs = f.rec.take()
-	if len(reqs) != 2 {
-		t.Fatalf("second run made %d requests, want list + edit: %+v", len(reqs), reqs)
+	// The job's token is an installation token: GET /user and GraphQL's
+	// viewer both refuse it, and the comment is the Actions bot's.
+	if len(reqs) != 4 {
+		t.Fatalf("second run made %d requests, want list + who-am-I (REST, GraphQL) + edit: %+v", len(reqs), reqs)
 	}
 	checkRequest(t, reqs[0], "GET", commentsPath)
-	checkRequest(t, reqs[1], "PATCH", ghPrefix+"/repos/loadline/porch/issues/comments/1003")
-	wantBody(t, reqs[1], Marker+"\n## loadline: within budget\n")
+	checkRequest(t, reqs[1], "GET", ghPrefix+"/user")
+	checkRequest(t, reqs[2], "POST", "/api/graphql")
+	checkRequest(t, reqs[3], "PATCH", ghPrefix+"/repos/loadline/porch/issues/comments/1003")
+	wantBody(t, reqs[3], Marker+"\n## loadline: within budget\n")
 
 	cs := f.snapshot()
 	if len(cs) != 3 {
@@ -334,8 +395,9 @@ func TestGitHubMarkerOnLaterPage(t *testing.T) {
 	}
 	// A reply quoting our marker is not ours: the marker must be the first line.
 	others[5] = "> quoting\n" + Marker
+	f.userLogin = "release-bot" // a personal token: GET /user answers
 	f.seed(others...)
-	f.seed(Marker + "\nold report")
+	f.seedOurs(Marker + "\nold report")
 	f.seed("later comment")
 	s := newGHSetup(t, f, false)
 
@@ -343,9 +405,13 @@ func TestGitHubMarkerOnLaterPage(t *testing.T) {
 		t.Fatal(err)
 	}
 	reqs := f.rec.take()
-	if len(reqs) != 4 {
-		t.Fatalf("%d requests, want 3 pages + edit: %+v", len(reqs), reqs)
+	if len(reqs) != 5 {
+		t.Fatalf("%d requests, want 3 pages + GET /user + edit: %+v", len(reqs), reqs)
 	}
+	// The quoted marker on page 1 is no candidate: the identity is asked
+	// for on page 3, where our comment is.
+	checkRequest(t, reqs[3], "GET", ghPrefix+"/user")
+	reqs = append(reqs[:3], reqs[4])
 	for i, q := range []string{"per_page=100", "page=2&per_page=100", "page=3&per_page=100"} {
 		checkRequest(t, reqs[i], "GET", commentsPath)
 		if reqs[i].Query != q {
@@ -688,23 +754,5 @@ func TestDetect(t *testing.T) {
 	}
 	if _, ok := Detect(func(string) string { return "" }); ok {
 		t.Fatal("detected a CI in an empty environment")
-	}
-}
-
-// TestGitHubIgnoresMarkerFromOutsider: a participant without write access
-// who posts a comment starting with the marker does not capture the report;
-// loadline creates its own comment.
-func TestGitHubIgnoresMarkerFromOutsider(t *testing.T) {
-	c := &github.IssueComment{User: &github.User{Type: github.Ptr("User")}, AuthorAssociation: github.Ptr("CONTRIBUTOR")}
-	if trustedAuthor(c) {
-		t.Error("a contributor without write access was trusted")
-	}
-	for _, ok := range []*github.IssueComment{
-		{User: &github.User{Type: github.Ptr("Bot")}, AuthorAssociation: github.Ptr("NONE")},
-		{User: &github.User{Type: github.Ptr("User")}, AuthorAssociation: github.Ptr("MEMBER")},
-	} {
-		if !trustedAuthor(ok) {
-			t.Errorf("%s %s not trusted", ok.GetUser().GetType(), ok.GetAuthorAssociation())
-		}
 	}
 }

@@ -31,9 +31,16 @@ type GitLab struct {
 
 // gitlabNote is the part of a GitLab note loadline reads.
 type gitlabNote struct {
-	ID     int64  `json:"id"`
-	Body   string `json:"body"`
-	System bool   `json:"system"`
+	ID     int64       `json:"id"`
+	Body   string      `json:"body"`
+	System bool        `json:"system"`
+	Author *gitlabUser `json:"author,omitempty"`
+}
+
+// gitlabUser is a note's author, or the token's user (GET /user).
+type gitlabUser struct {
+	ID       int64  `json:"id"`
+	Username string `json:"username"`
 }
 
 // GitLabError is a GitLab API answer outside 2xx.
@@ -58,9 +65,11 @@ func (e *GitLabError) Error() string {
 // error.
 func (g *GitLab) Post(ctx context.Context, body string, res *budget.Result) (warnings []string, err error) {
 	red := newRedactor(g.Env.Token)
+	ctx, cancel := withDeadline(ctx, g.Retry)
+	defer cancel()
 	defer func() {
 		warnings = red.strings(warnings)
-		err = red.error(err)
+		err = red.error(deadlineError(ctx, g.Retry, err))
 	}()
 	if g.EnvErr != nil {
 		return nil, g.EnvErr
@@ -76,7 +85,7 @@ func (g *GitLab) Post(ctx context.Context, body string, res *budget.Result) (war
 	case g.Env.Token == "":
 		return []string{"no GitLab token (LOADLINE_GITLAB_TOKEN, GITLAB_TOKEN or CI_JOB_TOKEN): no note posted"}, nil
 	}
-	hc := &http.Client{Transport: newTransport(g.Transport, g.Retry)}
+	hc := apiClient(g.Transport, g.Retry)
 	notes := strings.TrimRight(g.Env.APIURL, "/") + "/projects/" + url.PathEscape(g.Env.ProjectID) +
 		"/merge_requests/" + strconv.Itoa(g.Env.MRIID) + "/notes"
 	text := commentBody(body, GitLabNoteLimit, "see the job log")
@@ -91,28 +100,35 @@ func (g *GitLab) Post(ctx context.Context, body string, res *budget.Result) (war
 	payload := map[string]string{"body": text}
 	if id != 0 {
 		err = g.do(ctx, hc, http.MethodPut, notes+"/"+strconv.FormatInt(id, 10), payload, nil)
-		if err != nil {
-			if w, ok := g.refused(err, "edit its note"); ok {
-				return []string{w}, nil
-			}
+		if err == nil {
+			return nil, nil
+		}
+		var e *GitLabError
+		if !errors.As(err, &e) || e.rateLimited || (e.StatusCode != http.StatusForbidden && e.StatusCode != http.StatusNotFound) {
 			return nil, fmt.Errorf("editing note %d on merge request !%d: %w", id, g.Env.MRIID, err)
 		}
-		return nil, nil
+		warnings = append(warnings, fmt.Sprintf("editing loadline's note %d on merge request !%d was refused (HTTP %d): adding a new note", id, g.Env.MRIID, e.StatusCode))
 	}
 	if err := g.do(ctx, hc, http.MethodPost, notes, payload, nil); err != nil {
 		if w, ok := g.refused(err, "add a note"); ok {
-			return []string{w}, nil
+			return append(warnings, w), nil
 		}
-		return nil, fmt.Errorf("adding a note on merge request !%d: %w", g.Env.MRIID, err)
+		return warnings, fmt.Errorf("adding a note on merge request !%d: %w", g.Env.MRIID, err)
 	}
-	return nil, nil
+	return warnings, nil
 }
 
 // findNote pages through the merge request's notes, oldest first, 100 a
-// page, following X-Next-Page, and returns the first one carrying Marker.
+// page, following X-Next-Page for at most MaxPages pages, and returns the
+// first one carrying Marker that the token's own user wrote. It asks who
+// that is only when a marked note is there.
 func (g *GitLab) findNote(ctx context.Context, hc *http.Client, notes string) (int64, error) {
 	page := "1"
-	for page != "" {
+	var self *gitlabUser
+	for n := 1; page != ""; n++ {
+		if n > MaxPages {
+			return 0, &PagesError{What: fmt.Sprintf("notes on merge request !%d", g.Env.MRIID)}
+		}
 		u := notes + "?per_page=100&page=" + url.QueryEscape(page) + "&sort=asc&order_by=created_at"
 		var list []gitlabNote
 		var next string
@@ -124,7 +140,16 @@ func (g *GitLab) findNote(ctx context.Context, hc *http.Client, notes string) (i
 			return 0, err
 		}
 		for _, n := range list {
-			if !n.System && hasMarker(n.Body) {
+			if n.System || !hasMarker(n.Body) {
+				continue
+			}
+			if self == nil {
+				if self, err = g.identity(ctx, hc); err != nil {
+					return 0, err
+				}
+			}
+			if n.Author != nil && self.Username != "" && strings.EqualFold(n.Author.Username, self.Username) &&
+				(self.ID == 0 || n.Author.ID == self.ID) {
 				return n.ID, nil
 			}
 		}
@@ -134,6 +159,25 @@ func (g *GitLab) findNote(ctx context.Context, hc *http.Client, notes string) (i
 		page = next
 	}
 	return 0, nil
+}
+
+// identity returns the user the token writes notes as: GET /user for an
+// access token (a project or group token's bot user included). A job
+// token may not ask; its notes are written as the user who started the
+// job, GITLAB_USER_LOGIN. With neither, no note is taken for loadline's.
+func (g *GitLab) identity(ctx context.Context, hc *http.Client) (*gitlabUser, error) {
+	var u gitlabUser
+	err := g.do(ctx, hc, http.MethodGet, strings.TrimRight(g.Env.APIURL, "/")+"/user", nil, func(resp *http.Response) error {
+		return json.NewDecoder(io.LimitReader(resp.Body, 1<<20)).Decode(&u)
+	})
+	if err == nil && u.Username != "" {
+		return &u, nil
+	}
+	var e *GitLabError
+	if err != nil && (!errors.As(err, &e) || e.rateLimited || e.StatusCode >= 500) {
+		return nil, fmt.Errorf("asking the API who the token is (GET /user): %w", err)
+	}
+	return &gitlabUser{Username: g.Env.JobUser}, nil
 }
 
 // do sends one API request with a JSON body (when payload is not nil) and

@@ -30,13 +30,26 @@ type fakeGitLab struct {
 	nextID int64
 	before func(w http.ResponseWriter, r *http.Request, n int) bool
 	calls  int
+	// user is who the token is (GET /user); nil makes GET /user refuse,
+	// as it does for a job token.
+	user *gitlabUser
+	// author writes the notes the token adds; default user.
+	author *gitlabUser
+}
+
+// writer is the author of the notes the token adds.
+func (f *fakeGitLab) writer() *gitlabUser {
+	if f.author != nil {
+		return f.author
+	}
+	return f.user
 }
 
 // glProject is the project's full path, URL-encoded as the API wants it.
 const glNotes = "/api/v4/projects/birds%2Fporch-cam/merge_requests/9/notes"
 
 func newFakeGitLab(t *testing.T, header string) *fakeGitLab {
-	f := &fakeGitLab{t: t, header: header, nextID: 500}
+	f := &fakeGitLab{t: t, header: header, nextID: 500, user: &gitlabUser{ID: 77, Username: "project_12_bot"}}
 	f.srv = httptest.NewServer(http.HandlerFunc(f.serve))
 	t.Cleanup(f.srv.Close)
 	return f
@@ -60,6 +73,13 @@ func (f *fakeGitLab) serve(w http.ResponseWriter, r *http.Request) {
 	path := r.URL.EscapedPath()
 	w.Header().Set("Content-Type", "application/json")
 	switch {
+	case r.Method == "GET" && path == "/api/v4/user":
+		if f.user == nil {
+			w.WriteHeader(http.StatusForbidden)
+			fmt.Fprint(w, `{"message":"403 Forbidden"}`)
+			return
+		}
+		json.NewEncoder(w).Encode(f.user)
 	case r.Method == "GET" && path == glNotes:
 		q := r.URL.Query()
 		perPage, _ := strconv.Atoi(q.Get("per_page"))
@@ -89,7 +109,7 @@ func (f *fakeGitLab) serve(w http.ResponseWriter, r *http.Request) {
 		}
 		f.mu.Lock()
 		f.nextID++
-		note := gitlabNote{ID: f.nextID, Body: in.Body}
+		note := gitlabNote{ID: f.nextID, Body: in.Body, Author: f.writer()}
 		f.notes = append(f.notes, note)
 		f.mu.Unlock()
 		w.WriteHeader(http.StatusCreated)
@@ -114,12 +134,18 @@ func (f *fakeGitLab) serve(w http.ResponseWriter, r *http.Request) {
 	}
 }
 
+// seed adds notes by someone else.
 func (f *fakeGitLab) seed(bodies ...string) {
+	f.seedBy(&gitlabUser{ID: 5, Username: "reviewer"}, bodies...)
+}
+
+// seedBy adds notes by u (nil: no author given).
+func (f *fakeGitLab) seedBy(u *gitlabUser, bodies ...string) {
 	f.mu.Lock()
 	defer f.mu.Unlock()
 	for _, b := range bodies {
 		f.nextID++
-		f.notes = append(f.notes, gitlabNote{ID: f.nextID, Body: b})
+		f.notes = append(f.notes, gitlabNote{ID: f.nextID, Body: b, Author: u})
 	}
 }
 
@@ -197,12 +223,13 @@ func TestGitLabCreatesThenEdits(t *testing.T) {
 		t.Fatalf("second run: warnings %q, error %v", w, err)
 	}
 	reqs = f.rec.take()
-	if len(reqs) != 2 {
-		t.Fatalf("second run: %d requests, want list + edit: %+v", len(reqs), reqs)
+	if len(reqs) != 3 {
+		t.Fatalf("second run: %d requests, want list + GET /user + edit: %+v", len(reqs), reqs)
 	}
 	checkRequest(t, reqs[0], "GET", glNotes)
-	checkRequest(t, reqs[1], "PUT", glNotes+"/502")
-	wantBody(t, reqs[1], Marker+"\n## loadline: within budget\n")
+	checkRequest(t, reqs[1], "GET", "/api/v4/user")
+	checkRequest(t, reqs[2], "PUT", glNotes+"/502")
+	wantBody(t, reqs[2], Marker+"\n## loadline: within budget\n")
 	if notes := f.snapshot(); len(notes) != 2 || notes[1].Body != Marker+"\n## loadline: within budget\n" {
 		t.Fatalf("notes after two runs: %+v", notes)
 	}
@@ -215,7 +242,7 @@ func TestGitLabMarkerOnLaterPage(t *testing.T) {
 		others = append(others, fmt.Sprintf("note %d", i))
 	}
 	f.seed(others...)
-	f.seed(Marker + "\nold")
+	f.seedBy(f.user, Marker+"\nold")
 	s := newGLSetup(t, f, nil)
 	// A system note ("added 1 commit") carrying the marker is not ours.
 	f.mu.Lock()
@@ -226,9 +253,11 @@ func TestGitLabMarkerOnLaterPage(t *testing.T) {
 		t.Fatal(err)
 	}
 	reqs := f.rec.take()
-	if len(reqs) != 4 {
-		t.Fatalf("%d requests, want 3 pages + edit: %+v", len(reqs), reqs)
+	if len(reqs) != 5 {
+		t.Fatalf("%d requests, want 3 pages + GET /user + edit: %+v", len(reqs), reqs)
 	}
+	checkRequest(t, reqs[3], "GET", "/api/v4/user")
+	reqs = append(reqs[:3], reqs[4])
 	for i := range 3 {
 		checkRequest(t, reqs[i], "GET", glNotes)
 		if want := fmt.Sprintf("per_page=100&page=%d&sort=asc&order_by=created_at", i+1); reqs[i].Query != want {

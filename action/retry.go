@@ -36,6 +36,9 @@ type Retry struct {
 	// Now is the clock the rate-limit reset headers are read against.
 	// Default: time.Now.
 	Now func() time.Time
+	// Deadline bounds one Post: every call, page and retry together
+	// (default 3 min).
+	Deadline time.Duration
 }
 
 const (
@@ -67,6 +70,9 @@ func (r Retry) withDefaults() Retry {
 	}
 	if r.Now == nil {
 		r.Now = time.Now
+	}
+	if r.Deadline <= 0 {
+		r.Deadline = defaultDeadline
 	}
 	return r
 }
