@@ -17,10 +17,24 @@ import (
 //   - FuseActivations: Relu, Clip, Sigmoid, HardSwish, LeakyRelu,
 //     HardSigmoid and Tanh are fused into the node producing their input
 //     when they are its only consumer (and that node is no view or
-//     control-flow node): the producer writes the activated values.
+//     control-flow node): the producer writes the activated values. So is
+//     a decomposed activation (decomposedActivation below): two or more
+//     elementwise nodes that compute one tensor of the producer's shape and
+//     dtype from the producer's output and constants alone, at least one of
+//     them a nonlinearity, with nothing else reading the producer's output
+//     or the group's intermediate tensors. That is how exporters write
+//     SiLU/Swish (x·Sigmoid(x)), hard-swish (x·HardSigmoid(x), and
+//     x·Relu6(x+3)/6 as Add, Clip, Mul and Div or ×1/6 in either order),
+//     GELU (0.5·x·(1+Erf(x/√2)) and the Tanh approximation with Pow) and
+//     Mish (x·Tanh(Softplus(x))).
 //   - AliasViews: Reshape, Flatten, Squeeze, Unsqueeze and Identity alias
 //     their input: one buffer, live from the first of them to the last use
-//     of any.
+//     of any. So do the nodes that copy nothing (noOpView): a Cast or
+//     CastLike to the dtype its input already has, and an inference-mode
+//     Dropout whose mask nobody reads. A fusion looks through any chain of
+//     such views that nothing else reads (Conv → Cast → Relu, and
+//     QuantizeLinear → Cast → Identity → DequantizeLinear as some exporters
+//     write it, plan as without the views).
 //   - FoldQDQ: a QuantizeLinear whose input is read by nothing else is fused
 //     into its producer, which then writes the quantized tensor; a
 //     DequantizeLinear aliases its quantized input, which its consumers
@@ -71,6 +85,39 @@ var viewOps = map[string]bool{
 	"Reshape": true, "Flatten": true, "Squeeze": true, "Unsqueeze": true, "Identity": true,
 }
 
+// isView reports whether node n's first output is a view of its first
+// input under AliasViews: a viewOps node, or one that copies nothing
+// (noOpView).
+func isView(n *model.Node, vals map[string]*Value) bool {
+	return viewOps[n.Op] || noOpView(n, vals)
+}
+
+// noOpView reports whether n is a node exporters leave in a graph that
+// changes nothing: a Cast or CastLike to the dtype its input already has,
+// or a Dropout in inference mode (no training_mode input, or a false one)
+// whose mask output nobody asked for.
+func noOpView(n *model.Node, vals map[string]*Value) bool {
+	if len(n.Inputs) == 0 || len(n.Outputs) == 0 || n.Outputs[0] == "" || storedOutputs(n) != 1 {
+		return false
+	}
+	switch n.Op {
+	case "Cast", "CastLike":
+		in, out := vals[n.Inputs[0]], vals[n.Outputs[0]]
+		return in != nil && out != nil && in.Type.DType != model.Undefined && in.Type.DType == out.Type.DType
+	case "Dropout":
+		if len(n.Inputs) < 3 || n.Inputs[2] == "" {
+			return true
+		}
+		v := vals[n.Inputs[2]]
+		if v == nil {
+			return false
+		}
+		x, ok := v.Const.KnownInts()
+		return ok && len(x) == 1 && x[0] == 0
+	}
+	return false
+}
+
 // dtensor is one tensor of the deployed view. A tensor whose parent is set
 // shares its root's buffer; a dropped tensor is never stored.
 type dtensor struct {
@@ -110,13 +157,15 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 	// Readers of each value: the nodes reading it (once per node, nested
 	// subgraphs included) and the graph's outputs.
 	readers := map[string]int{}
+	readBy := map[string][]int{}
 	isOutput := map[string]bool{}
-	for _, n := range g.Nodes {
+	for i, n := range g.Nodes {
 		seen := map[string]bool{}
 		read := func(name string) {
 			if name != "" && !seen[name] {
 				seen[name] = true
 				readers[name]++
+				readBy[name] = append(readBy[name], i)
 			}
 		}
 		for _, name := range n.Inputs {
@@ -136,6 +185,17 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 	for _, o := range g.Outputs {
 		readers[o.Name]++
 		isOutput[o.Name] = true
+	}
+
+	views := make([]bool, len(g.Nodes))
+	if opts.AliasViews {
+		for i, n := range g.Nodes {
+			views[i] = isView(n, vals)
+		}
+	}
+	var regions map[int]*actRegion
+	if opts.FuseActivations {
+		regions = decomposedActivations(g, vals, isStatic, readBy, isOutput, views)
 	}
 
 	recs := map[string]*dtensor{}
@@ -196,7 +256,12 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 			}
 			outs = append(outs, name)
 		}
-		if len(outs) == 1 && storedOutputs(n) == 1 && outs[0] == n.Outputs[0] && rewrite(g, i, n, outs[0], opts, recs, readers, isOutput, isStatic, hasBody, groupOut, add) {
+		st := &deployState{g: g, recs: recs, readers: readers, isOutput: isOutput, isStatic: isStatic,
+			hasBody: hasBody, views: views, groupOut: groupOut, add: add}
+		if r := regions[i]; r != nil && len(outs) == 1 && outs[0] == n.Outputs[0] && st.region(r, i, outs[0]) {
+			continue
+		}
+		if len(outs) == 1 && storedOutputs(n) == 1 && outs[0] == n.Outputs[0] && st.rewrite(i, n, outs[0], opts) {
 			continue
 		}
 		for _, name := range outs {
@@ -285,44 +350,93 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 	return plan
 }
 
+// deployState is what the deployed view's rewrites read and change while
+// planDeployedGraph walks the nodes.
+type deployState struct {
+	g        *model.Graph
+	recs     map[string]*dtensor
+	readers  map[string]int
+	isOutput map[string]bool
+	isStatic func(string) bool
+	hasBody  map[int]bool
+	views    []bool // views[i]: node i's output aliases its input
+	groupOut map[int]*dtensor
+	add      func(*dtensor)
+}
+
+// fusable returns the buffer a node reading x can be fused into: x itself,
+// or the tensor under a chain of views down to x that nothing else reads,
+// with the tensors of the chain. The buffer must be a node's only stored
+// output, read by nothing else (but the reading node through the chain;
+// with shared, x may have other readers, which the caller vouches for) and
+// no graph output, made by a node that is no view and holds no subgraph.
+func (st *deployState) fusable(x *dtensor, shared bool) (*dtensor, []*dtensor, bool) {
+	var chain []*dtensor
+	t := x
+	for t.parent != nil {
+		if (t != x || !shared) && (st.readers[t.name] != 1 || st.isOutput[t.name]) {
+			return nil, nil, false
+		}
+		if t.dropped || t.producer < 0 || !st.views[t.producer] {
+			return nil, nil, false
+		}
+		chain = append(chain, t)
+		t = t.parent
+	}
+	if t.dropped || t.producer < 0 || st.isOutput[t.name] || ((t != x || !shared) && st.readers[t.name] != 1) {
+		return nil, nil, false
+	}
+	if p := st.g.Nodes[t.producer]; st.views[t.producer] || viewOps[p.Op] || st.hasBody[t.producer] || storedOutputs(p) != 1 {
+		return nil, nil, false
+	}
+	return t, chain, true
+}
+
+// fuseInto drops root and the views over it and records out, made by node
+// i, as written at root's step in root's group instead.
+func (st *deployState) fuseInto(root *dtensor, chain []*dtensor, out string, i int) {
+	root.dropped = true
+	for _, c := range chain {
+		c.dropped = true
+	}
+	t := &dtensor{name: out, first: root.first, last: root.first, producer: i, head: root.head}
+	st.add(t)
+	st.groupOut[root.head] = t
+}
+
 // rewrite applies the deployed view's rewrites to node n (step i), whose one
 // stored output is out. It reports whether it handled the output.
-func rewrite(g *model.Graph, i int, n *model.Node, out string, opts DeployOptions, recs map[string]*dtensor,
-	readers map[string]int, isOutput map[string]bool, isStatic func(string) bool, hasBody map[int]bool,
-	groupOut map[int]*dtensor, add func(*dtensor)) bool {
-	x := recs[n.Input(0)]
+func (st *deployState) rewrite(i int, n *model.Node, out string, opts DeployOptions) bool {
+	x := st.recs[n.Input(0)]
 	if x == nil || x.dropped {
 		return false
 	}
 	othersStatic := true
 	for j, name := range n.Inputs {
-		if j > 0 && name != "" && !isStatic(name) {
+		if j > 0 && name != "" && !st.isStatic(name) {
 			othersStatic = false
 		}
 	}
 	alias := func() bool {
-		add(&dtensor{name: out, first: i, last: i, producer: i, head: i, parent: x})
+		st.add(&dtensor{name: out, first: i, last: i, producer: i, head: i, parent: x})
 		return true
 	}
 	// fuse writes out at x's step instead of x, when nothing else reads x.
 	fuse := func() bool {
-		if !othersStatic || x.producer < 0 || x.parent != nil || readers[x.name] != 1 || isOutput[x.name] {
+		if !othersStatic {
 			return false
 		}
-		p := g.Nodes[x.producer]
-		if viewOps[p.Op] || hasBody[x.producer] || storedOutputs(p) != 1 {
+		root, chain, ok := st.fusable(x, false)
+		if !ok {
 			return false
 		}
-		x.dropped = true
-		t := &dtensor{name: out, first: x.first, last: x.first, producer: i, head: x.head}
-		add(t)
-		groupOut[x.head] = t
+		st.fuseInto(root, chain, out, i)
 		return true
 	}
 	switch {
 	case opts.FoldBN && n.Op == "BatchNormalization":
-		if x.producer >= 0 && x.producer == x.head {
-			if op := g.Nodes[x.producer].Op; op == "Conv" || op == "ConvTranspose" {
+		if root, _, ok := st.fusable(x, false); ok && root.producer == root.head {
+			if op := st.g.Nodes[root.producer].Op; op == "Conv" || op == "ConvTranspose" {
 				return fuse()
 			}
 		}
@@ -332,8 +446,185 @@ func rewrite(g *model.Graph, i int, n *model.Node, out string, opts DeployOption
 		return fuse()
 	case opts.FoldQDQ && n.Op == "DequantizeLinear" && othersStatic:
 		return alias()
-	case opts.AliasViews && viewOps[n.Op]:
+	case opts.AliasViews && st.views[i]:
 		return alias()
+	}
+	return false
+}
+
+// region handles node i, a member of a decomposed activation r, whose one
+// stored output is out. At the group's first member it decides whether the
+// group fuses into the producer of its input; when it does, the members'
+// outputs are never stored and the last one's is written at the
+// producer's step. It reports whether it handled the output.
+func (st *deployState) region(r *actRegion, i int, out string) bool {
+	if r.state == 0 {
+		r.state = -1
+		if x := st.recs[r.x]; x != nil {
+			if root, chain, ok := st.fusable(x, true); ok {
+				r.state, r.root, r.chain = 1, root, chain
+			}
+		}
+	}
+	if r.state < 0 {
+		return false
+	}
+	if i == r.last {
+		st.fuseInto(r.root, r.chain, out, i)
+	}
+	return true
+}
+
+// actRegion is a decomposed activation: the nodes members, which compute
+// the one tensor made by node last from x and constants alone.
+type actRegion struct {
+	x     string
+	last  int
+	state int8 // 0 undecided, 1 fused, -1 left alone
+	root  *dtensor
+	chain []*dtensor
+}
+
+// regionOps may make up a decomposed activation: elementwise arithmetic and
+// the nonlinearities exporters decompose activations into.
+var regionOps = map[string]bool{
+	"Add": true, "Sub": true, "Mul": true, "Div": true, "Pow": true, "Neg": true, "Min": true, "Max": true, "Sqrt": true,
+	"Sigmoid": true, "HardSigmoid": true, "Clip": true, "Relu": true, "Tanh": true, "Erf": true, "Softplus": true, "Exp": true,
+}
+
+// regionNonlinear are the regionOps at least one of which a decomposed
+// activation holds; without one a group of nodes is arithmetic, which the
+// deployed view does not fuse.
+var regionNonlinear = map[string]bool{
+	"Sigmoid": true, "HardSigmoid": true, "Clip": true, "Relu": true, "Tanh": true, "Erf": true, "Softplus": true,
+	"Min": true, "Max": true,
+}
+
+// Bounds of the search for decomposed activations: nodes in a group, and
+// nodes looked at after the producer.
+const (
+	maxRegionNodes = 16
+	maxRegionScan  = 64
+)
+
+// decomposedActivations finds the decomposed activations of g (see the
+// definition at the top of this file), keyed by the index of each member
+// node. readBy lists, per value, the nodes reading it (nested subgraphs
+// included, at the control-flow node).
+func decomposedActivations(g *model.Graph, vals map[string]*Value, isStatic func(string) bool,
+	readBy map[string][]int, isOutput map[string]bool, views []bool) map[int]*actRegion {
+	out := map[int]*actRegion{}
+	for p, n := range g.Nodes {
+		if _, claimed := out[p]; claimed || storedOutputs(n) != 1 || len(n.Outputs) == 0 || views[p] {
+			continue
+		}
+		x := n.Outputs[0]
+		if x == "" || isStatic(x) || isOutput[x] {
+			continue
+		}
+		xv := vals[x]
+		if xv == nil || !xv.shapeKnown() {
+			continue
+		}
+		members, last, ok := growRegion(g, p, x, xv, vals, isStatic, readBy, isOutput)
+		if !ok {
+			continue
+		}
+		r := &actRegion{x: x, last: last}
+		for _, j := range members {
+			if _, taken := out[j]; taken {
+				r = nil
+				break
+			}
+		}
+		if r == nil {
+			continue
+		}
+		for _, j := range members {
+			out[j] = r
+		}
+	}
+	return out
+}
+
+// growRegion collects the nodes after node p that compute from x (node p's
+// output) and constants alone, and checks that they form a decomposed
+// activation: at least two members, one a nonlinearity, every tensor of
+// the group of x's shape and dtype, x and every intermediate tensor read by
+// members only, and exactly one result, made by the last member.
+func growRegion(g *model.Graph, p int, x string, xv *Value, vals map[string]*Value, isStatic func(string) bool,
+	readBy map[string][]int, isOutput map[string]bool) (members []int, last int, ok bool) {
+	inRegion := map[string]bool{x: true}
+	pending := len(readBy[x])
+	escapes := map[string]bool{}
+	nonlinear := false
+	for j := p + 1; j < len(g.Nodes) && j <= p+maxRegionScan && pending > 0; j++ {
+		n := g.Nodes[j]
+		var reads []string
+		for v := range inRegion {
+			if slicesContains(readBy[v], j) {
+				reads = append(reads, v)
+			}
+		}
+		if len(reads) == 0 {
+			continue
+		}
+		pending -= len(reads)
+		member := regionOps[n.Op] && storedOutputs(n) == 1 && len(n.Outputs) == 1 && n.Outputs[0] != "" && !hasSubgraph(n)
+		for _, in := range n.Inputs {
+			if in != "" && !inRegion[in] && !isStatic(in) {
+				member = false
+			}
+		}
+		if member {
+			o := n.Outputs[0]
+			ov := vals[o]
+			if ov == nil || !ov.shapeKnown() || ov.Type.DType != xv.Type.DType || !ov.Type.Shape.Equal(xv.Type.Shape) {
+				member = false
+			} else {
+				members = append(members, j)
+				inRegion[o] = true
+				pending += len(readBy[o])
+				nonlinear = nonlinear || regionNonlinear[n.Op]
+				if isOutput[o] {
+					escapes[o] = true
+				}
+				if len(members) > maxRegionNodes {
+					return nil, 0, false
+				}
+			}
+		}
+		if !member {
+			for _, v := range reads {
+				escapes[v] = true
+			}
+		}
+	}
+	if pending > 0 || len(members) < 2 || !nonlinear || escapes[x] || len(escapes) != 1 {
+		return nil, 0, false
+	}
+	last = members[len(members)-1]
+	if !escapes[g.Nodes[last].Outputs[0]] {
+		return nil, 0, false
+	}
+	return members, last, true
+}
+
+func slicesContains(s []int, v int) bool {
+	for _, x := range s {
+		if x == v {
+			return true
+		}
+	}
+	return false
+}
+
+// hasSubgraph reports whether a node holds a subgraph.
+func hasSubgraph(n *model.Node) bool {
+	for _, a := range n.Attrs {
+		if a.Graph != nil || len(a.Graphs) > 0 {
+			return true
+		}
 	}
 	return false
 }

@@ -173,3 +173,233 @@ func TestDeployedMobileNetV2(t *testing.T) {
 		})
 	}
 }
+
+// TestDeployedNoOpViews: x [1,2,8,8] → Conv c1 (1×1, 4 out) → Cast k (to
+// float32, what it already is) → Relu r → Identity id → Dropout d
+// (inference, no mask) → Conv y (1×1, 2 out), float32. x and y 512 B, the
+// others 1024 B. Hand-worked:
+//
+// Graph view, lifetimes x 0..0, c1 0..1, k 1..2, r 2..3, id 3..4, d 4..5,
+// y 5..5: steps 1536, 2048, 2048, 2048, 2048, 1536 → peak 2048.
+//
+// Deployed: the Cast copies nothing, so it is a view of c1; the Relu fuses
+// through it into c1's Conv (r written at step 0); the Identity and the
+// Dropout are views of r. Buffers x 0..0 (512), r 0..5 (1024), y 5..5
+// (512): steps 1536, 1024, 1024, 1024, 1024, 1536 → peak 1536; greedy
+// places r at 0, x and y at 1024 → arena 1536.
+func TestDeployedNoOpViews(t *testing.T) {
+	b := build.New("noop", 13, build.Declared())
+	x := b.Input("x", model.Float32, 1, 2, 8, 8)
+	y := b.Conv("c1", x, build.Conv2D(4, 1, 1, 0))
+	y = b.Cast("k", y, model.Float32)
+	y = b.Relu("r", y)
+	y = b.Identity("id", y)
+	y = b.Dropout("d", y, 0.5)
+	b.Output(b.Conv("y", y, build.Conv2D(2, 1, 1, 0)))
+	inf := inferBuilt(t, b)
+	if g := PlanMemory(inf); !reflect.DeepEqual(g.LiveBytesByStep, []int64{1536, 2048, 2048, 2048, 2048, 1536}) { // hand-worked, above
+		t.Errorf("graph view by step %v", g.LiveBytesByStep)
+	}
+	p := PlanDeployed(inf, DefaultDeployOptions())
+	if want := []int64{1536, 1024, 1024, 1024, 1024, 1536}; !reflect.DeepEqual(p.LiveBytesByStep, want) { // hand-worked, above
+		t.Errorf("deployed by step %v, want %v", p.LiveBytesByStep, want)
+	}
+	if p.PeakLiveBytes != 1536 || p.ArenaBytes != 1536 { // hand-worked: 512 + 1024
+		t.Errorf("deployed peak %d, arena %d; want 1536, 1536", p.PeakLiveBytes, p.ArenaBytes)
+	}
+	checkPlacements(t, p.Placements, p.ArenaBytes)
+	// A Cast that converts is a copy: with the Cast to float16 the view
+	// chain breaks, and the Relu cannot fuse into the Conv.
+	b = build.New("cast16", 13, build.Declared())
+	x = b.Input("x", model.Float32, 1, 2, 8, 8)
+	y = b.Conv("c1", x, build.Conv2D(4, 1, 1, 0))
+	y = b.Cast("k", y, model.Float16)
+	b.Output(b.Relu("r", y))
+	p = PlanDeployed(inferBuilt(t, b), DefaultDeployOptions())
+	// Hand-worked: x 512 + c1 1024 at step 0; c1 1024 + k 512 at step 1
+	// (the Relu fuses into the Cast, k being the Cast's only reader).
+	if want := []int64{1536, 1536, 512}; !reflect.DeepEqual(p.LiveBytesByStep, want) {
+		t.Errorf("converting Cast: deployed by step %v, want %v", p.LiveBytesByStep, want)
+	}
+}
+
+func inferBuilt(t *testing.T, b *build.Builder) *Inference {
+	t.Helper()
+	m, err := b.Model()
+	if err != nil {
+		t.Fatal(err)
+	}
+	inf, err := Infer(m, InferOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(inf.Unresolved) != 0 {
+		t.Fatalf("unresolved: %v", inf.Unresolved)
+	}
+	return inf
+}
+
+// withNoOps rewrites a QDQ model as some exporters write it: a Cast to
+// float32 before every QuantizeLinear, and a Cast to int8 then an Identity
+// between every QuantizeLinear and the DequantizeLinear nodes reading it.
+// None of them changes a value.
+func withNoOps(m *model.Model) int {
+	g := m.Graph
+	var nodes []*model.Node
+	added := 0
+	rename := map[string]string{}
+	for _, n := range g.Nodes {
+		for j, in := range n.Inputs {
+			if r, ok := rename[in]; ok {
+				n.Inputs[j] = r
+			}
+		}
+		if n.Op != "QuantizeLinear" {
+			nodes = append(nodes, n)
+			continue
+		}
+		pre := &model.Node{Name: n.Name + "_precast", Op: "Cast", Inputs: []string{n.Inputs[0]}, Outputs: []string{n.Name + "_precast"},
+			Attrs: []*model.Attr{{Name: "to", Kind: model.AttrInt, Int: int64(model.Float32)}}}
+		n.Inputs[0] = pre.Outputs[0]
+		q := n.Outputs[0]
+		cast := &model.Node{Name: q + "_cast", Op: "Cast", Inputs: []string{q}, Outputs: []string{q + "_cast"},
+			Attrs: []*model.Attr{{Name: "to", Kind: model.AttrInt, Int: int64(model.Int8)}}}
+		id := &model.Node{Name: q + "_id", Op: "Identity", Inputs: []string{cast.Outputs[0]}, Outputs: []string{q + "_id"}}
+		rename[q] = id.Outputs[0]
+		nodes = append(nodes, pre, n, cast, id)
+		added += 3
+	}
+	g.Nodes = nodes
+	return added
+}
+
+// TestDeployedMobileNetV2NoOps: the int8 QDQ MobileNetV2 with a Cast before
+// every QuantizeLinear and a Cast and an Identity between every
+// QuantizeLinear and its DequantizeLinear plans exactly as without them:
+// 112·112·96 + 56·56·96 = 1,505,280 B without in-place depthwise (derived,
+// as in TestDeployedMobileNetV2), 112·112·16 + 112·112·96 = 1,404,928 B
+// with it (MCUNetV2, Lin et al. 2021, Fig. 1: 1372 kB; arithmetic derived).
+func TestDeployedMobileNetV2NoOps(t *testing.T) {
+	inPlace := DefaultDeployOptions()
+	inPlace.InPlaceDepthwise = true
+	for _, c := range []struct {
+		opts       DeployOptions
+		peak, want int64
+	}{
+		{DefaultDeployOptions(), 112*112*96 + 56*56*96, 1505280}, // derived
+		{inPlace, 112*112*16 + 112*112*96, 1404928},              // MCUNetV2 Fig. 1, derived
+	} {
+		if c.peak != c.want {
+			t.Fatalf("arithmetic: %d != %d", c.peak, c.want)
+		}
+		m, err := build.MobileNetV2QDQ(build.Options{Declared: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		plain, err := Infer(m, InferOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		ref := PlanDeployed(plain, c.opts)
+		m2, err := build.MobileNetV2QDQ(build.Options{Declared: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if n := withNoOps(m2); n < 100 {
+			t.Fatalf("only %d no-op nodes inserted", n)
+		}
+		inf, err := Infer(m2, InferOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		p := PlanDeployed(inf, c.opts)
+		if p.PeakLiveBytes != c.want || ref.PeakLiveBytes != c.want {
+			t.Errorf("in place %v: peak %d with no-ops, %d without; want %d", c.opts.InPlaceDepthwise, p.PeakLiveBytes, ref.PeakLiveBytes, c.want)
+		}
+		if p.ArenaBytes != ref.ArenaBytes || len(p.Placements) != len(ref.Placements) {
+			t.Errorf("in place %v: arena %d B in %d buffers with no-ops, %d B in %d without", c.opts.InPlaceDepthwise, p.ArenaBytes, len(p.Placements), ref.ArenaBytes, len(ref.Placements))
+		}
+		checkPlacements(t, p.Placements, p.ArenaBytes)
+	}
+}
+
+// TestDeployedDecomposedActivations: x [1,2,8,8] → Conv a (3×3, pad 1, 4
+// out) → an activation written as several nodes → Conv y (1×1, 2 out),
+// float32: x and y 512 B, a and every tensor of the activation 1024 B.
+// Each decomposition fuses into the Conv as the one HardSwish node does:
+// buffers x 0..0, the activation's result 0..last, y at the last step.
+// Hand-worked: steps 512 + 1024 = 1536, then 1024 at each of the k
+// activation nodes' steps, then 1024 + 512 = 1536 → peak 1536, arena 1536.
+func TestDeployedDecomposedActivations(t *testing.T) {
+	f32 := func(b *build.Builder, name string, v float64) build.Value {
+		return b.ConstFloats(name, model.Float32, nil, []float64{v})
+	}
+	cases := []struct {
+		name string
+		act  func(b *build.Builder, a build.Value) build.Value
+		k    int
+	}{
+		{"HardSwish node", func(b *build.Builder, a build.Value) build.Value { return b.HardSwish("hs", a) }, 1},
+		{"SiLU x*Sigmoid(x)", func(b *build.Builder, a build.Value) build.Value { return b.Mul("m", a, b.Sigmoid("s", a)) }, 2},
+		{"hard-swish x*HardSigmoid(x)", func(b *build.Builder, a build.Value) build.Value {
+			return b.Mul("m", a, b.HardSigmoid("hs", a, 1.0/6, 0.5))
+		}, 2},
+		{"hard-swish x*Relu6(x+3)/6", func(b *build.Builder, a build.Value) build.Value {
+			r := b.Relu6("r6", b.Add("p3", a, f32(b, "three", 3)))
+			return b.Div("d6", b.Mul("m", a, r), f32(b, "six", 6))
+		}, 4},
+		{"hard-swish x*(Relu6(x+3)*(1/6))", func(b *build.Builder, a build.Value) build.Value {
+			r := b.Relu6("r6", b.Add("p3", f32(b, "three", 3), a))
+			return b.Mul("m", a, b.Mul("s6", r, f32(b, "sixth", 1.0/6)))
+		}, 4},
+		{"GELU 0.5x(1+Erf(x/√2))", func(b *build.Builder, a build.Value) build.Value {
+			e := b.Erf("erf", b.Div("dv", a, f32(b, "sqrt2", 1.4142135)))
+			return b.Mul("m2", b.Mul("m1", a, f32(b, "half", 0.5)), b.Add("p1", e, f32(b, "one", 1)))
+		}, 5},
+		{"GELU tanh approximation", func(b *build.Builder, a build.Value) build.Value {
+			c := b.Mul("c3", b.Pow("cube", a, f32(b, "three", 3)), f32(b, "k", 0.044715))
+			t := b.Tanh("th", b.Mul("sc", b.Add("in", a, c), f32(b, "s2p", 0.7978845608)))
+			return b.Mul("m2", b.Mul("m1", a, f32(b, "half", 0.5)), b.Add("p1", t, f32(b, "one", 1)))
+		}, 8},
+		{"Mish x*Tanh(Softplus(x))", func(b *build.Builder, a build.Value) build.Value {
+			return b.Mul("m", a, b.Tanh("th", b.Softplus("sp", a)))
+		}, 3},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			b := build.New("act", 14, build.Declared())
+			x := b.Input("x", model.Float32, 1, 2, 8, 8)
+			a := b.Conv("a", x, build.Conv2D(4, 3, 1, 1))
+			b.Output(b.Conv("y", c.act(b, a), build.Conv2D(2, 1, 1, 0)))
+			inf := inferBuilt(t, b)
+			p := PlanDeployed(inf, DefaultDeployOptions())
+			want := []int64{1536} // hand-worked, above
+			for range c.k {
+				want = append(want, 1024)
+			}
+			want = append(want, 1536)
+			if !reflect.DeepEqual(p.LiveBytesByStep, want) || p.PeakLiveBytes != 1536 || p.ArenaBytes != 1536 {
+				t.Errorf("deployed by step %v (peak %d, arena %d), want %v, 1536, 1536", p.LiveBytesByStep, p.PeakLiveBytes, p.ArenaBytes, want)
+			}
+			checkPlacements(t, p.Placements, p.ArenaBytes)
+			off := DefaultDeployOptions()
+			off.FuseActivations = false
+			if q := PlanDeployed(inf, off); c.k > 1 && q.PeakLiveBytes <= 1536 {
+				t.Errorf("with fusion off the peak is %d, want more than 1536", q.PeakLiveBytes)
+			}
+		})
+	}
+	// The Conv's output read by something else too (here: it is also a
+	// graph output) is stored, so the SiLU is not fused. Hand-worked, a
+	// live 0..3: step 0 x + a = 1536; step 1 a + s = 2048; step 2 a + s +
+	// m = 3072; step 3 a + m + y = 2560 → peak 3072.
+	b := build.New("act", 14, build.Declared())
+	x := b.Input("x", model.Float32, 1, 2, 8, 8)
+	a := b.Conv("a", x, build.Conv2D(4, 3, 1, 1))
+	b.Output(b.Conv("y", b.Mul("m", a, b.Sigmoid("s", a)), build.Conv2D(2, 1, 1, 0)))
+	b.Output(a)
+	p := PlanDeployed(inferBuilt(t, b), DefaultDeployOptions())
+	if want := []int64{1536, 2048, 3072, 2560}; !reflect.DeepEqual(p.LiveBytesByStep, want) {
+		t.Errorf("shared producer output: deployed by step %v, want %v", p.LiveBytesByStep, want)
+	}
+}

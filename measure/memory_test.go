@@ -199,11 +199,11 @@ func TestMemoryStaticExcluded(t *testing.T) {
 
 // randomOpsMix are the ops of random DAGs: op-agnostic for the graph view,
 // and each a rewrite of the deployed view.
-var randomOpsMix = []string{"Custom", "Custom", "Relu", "Clip", "Reshape", "Identity", "BatchNormalization", "Conv", "QuantizeLinear", "DequantizeLinear"}
+var randomOpsMix = []string{"Custom", "Custom", "Relu", "Clip", "Reshape", "Identity", "BatchNormalization", "Conv", "QuantizeLinear", "DequantizeLinear", "Cast", "Mul", "Sigmoid"}
 
 // sameShapeOps keep their first input's shape (and, in these uint8 graphs,
 // its bytes) in their first output, as they do in real graphs.
-var sameShapeOps = map[string]bool{"Relu": true, "Clip": true, "Reshape": true, "Identity": true, "BatchNormalization": true, "QuantizeLinear": true, "DequantizeLinear": true}
+var sameShapeOps = map[string]bool{"Cast": true, "Mul": true, "Sigmoid": true, "Relu": true, "Clip": true, "Reshape": true, "Identity": true, "BatchNormalization": true, "QuantizeLinear": true, "DequantizeLinear": true}
 
 // randomGraph builds a random DAG directly as an Inference: 1–3 graph inputs,
 // up to 40 nodes of 1–3 inputs and 1–2 outputs each, uint8 tensors of shape

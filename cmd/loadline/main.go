@@ -63,7 +63,12 @@ const conventions = `Figures (static estimates from the model file; measure on t
                an offset plan, greedy by size (Pisarchyk & Lee 2020), ≥ peak.
                Deployed view: the same after BatchNormalization folding, activation
                fusion, view aliasing and QuantizeLinear/DequantizeLinear folding
-               (each switchable; in-place depthwise off unless asked).
+               (each switchable; in-place depthwise off unless asked). Fused too:
+               activations written as elementwise groups from the producer's output
+               and constants alone (SiLU x*Sigmoid(x); hard-swish x*HardSigmoid(x)
+               and x*Relu6(x+3)/6; GELU with Erf or Tanh; Mish). Views: Reshape,
+               Flatten, Squeeze, Unsqueeze, Identity, a Cast to the same dtype, an
+               inference Dropout; fusions see through chains of them.
   shapes       inferred for every tensor; symbolic dims stay symbols unless bound
                with --dim NAME=VALUE. Nodes whose shapes cannot be inferred are
                listed as unresolved, with the reason.
@@ -166,7 +171,7 @@ type deployFlags struct {
 func (d *deployFlags) register(cmd *cobra.Command) {
 	f := cmd.Flags()
 	f.BoolVar(&d.noFoldBN, "no-fold-bn", false, "deployed view: keep BatchNormalization as its own node")
-	f.BoolVar(&d.noFuse, "no-fuse-activations", false, "deployed view: keep activations as their own nodes")
+	f.BoolVar(&d.noFuse, "no-fuse-activations", false, "deployed view: keep activations (single nodes and decomposed groups) as their own nodes")
 	f.BoolVar(&d.noAlias, "no-alias-views", false, "deployed view: give Reshape/Flatten/Squeeze/Unsqueeze/Identity outputs their own buffers")
 	f.BoolVar(&d.noFoldQDQ, "no-fold-qdq", false, "deployed view: keep QuantizeLinear/DequantizeLinear pairs (activations at float size)")
 	f.BoolVar(&d.inPlaceDepthwise, "inplace-depthwise", false, "deployed view: depthwise convolutions overwrite their input")

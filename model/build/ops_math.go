@@ -115,6 +115,26 @@ func (b *Builder) Add(name string, a, c Value) Value { return b.binary("Add", na
 // Mul appends an elementwise Mul node with broadcasting.
 func (b *Builder) Mul(name string, a, c Value) Value { return b.binary("Mul", name, a, c) }
 
+// Sub appends an elementwise Sub node with broadcasting.
+func (b *Builder) Sub(name string, a, c Value) Value { return b.binary("Sub", name, a, c) }
+
+// Div appends an elementwise Div node with broadcasting.
+func (b *Builder) Div(name string, a, c Value) Value { return b.binary("Div", name, a, c) }
+
+// Pow appends an elementwise Pow node with broadcasting (exponent of the
+// base's dtype).
+func (b *Builder) Pow(name string, a, c Value) Value { return b.binary("Pow", name, a, c) }
+
+// Greater appends an elementwise Greater node; its output is bool.
+func (b *Builder) Greater(name string, a, c Value) Value {
+	v := b.binary("Greater", name, a, c)
+	if v.Valid() {
+		v.DType = model.Bool
+		b.tensors[v.Name] = v
+	}
+	return v
+}
+
 func (b *Builder) binary(op, name string, a, c Value) Value {
 	name = b.nodeName(op, name)
 	if !b.required(op, name, a, c) {
@@ -177,6 +197,25 @@ func (b *Builder) Sigmoid(name string, x Value) Value { return b.unary("Sigmoid"
 
 // Tanh appends a Tanh node.
 func (b *Builder) Tanh(name string, x Value) Value { return b.unary("Tanh", name, x) }
+
+// Erf appends an Erf node.
+func (b *Builder) Erf(name string, x Value) Value { return b.unary("Erf", name, x) }
+
+// Softplus appends a Softplus node.
+func (b *Builder) Softplus(name string, x Value) Value { return b.unary("Softplus", name, x) }
+
+// Cast appends a Cast node converting x to dtype to.
+func (b *Builder) Cast(name string, x Value, to model.DType) Value {
+	name = b.nodeName("Cast", name)
+	if !b.required("Cast", name, x) {
+		return Value{}
+	}
+	if !to.Known() || to == model.Undefined {
+		b.fail("Cast %q: unknown dtype %s", name, to)
+		return Value{}
+	}
+	return b.node("Cast", name, []Value{x}, []*model.Attr{attrInt("to", int64(to))}, to, x.Shape.Clone())
+}
 
 // Identity appends an Identity node.
 func (b *Builder) Identity(name string, x Value) Value { return b.unary("Identity", name, x) }
