@@ -11,6 +11,7 @@ package action
 
 import (
 	"context"
+	"errors"
 	"io"
 	"os"
 	"strings"
@@ -36,6 +37,13 @@ func commentBody(body string, limit int, where string) string {
 	head := Marker + "\n"
 	return head + fitBody(body, limit-len(head), utf8.RuneCountInString, where)
 }
+
+// ErrNothingPosted is the error Post returns (wrapped, with the reason)
+// when the report reached no place a reviewer looks: no job summary file,
+// and no comment, note or status (no token, not a pull request, a token
+// that may not write). The caller prints it; with --post-required it is
+// exit 3 like any failure to post.
+var ErrNothingPosted = errors.New("nothing was posted")
 
 // Poster posts a check's report where the code host shows it. body is the
 // rendered markdown, res the verdict it renders. warnings are for the

@@ -84,7 +84,11 @@ func (g *GitHub) Post(ctx context.Context, body string, res *budget.Result) (war
 	red := newRedactor(g.token())
 	ctx, cancel := withDeadline(ctx, g.Retry)
 	defer cancel()
+	posted := false
 	defer func() {
+		if err == nil && !posted {
+			err = fmt.Errorf("%w: no job summary file (GITHUB_STEP_SUMMARY), and no comment or status (see the warnings)", ErrNothingPosted)
+		}
 		warnings = red.strings(warnings)
 		err = red.error(deadlineError(ctx, g.Retry, err))
 	}()
@@ -92,6 +96,8 @@ func (g *GitHub) Post(ctx context.Context, body string, res *budget.Result) (war
 	if g.Env.StepSummary != "" {
 		if err := AppendStepSummary(g.Env.StepSummary, body); err != nil {
 			errs = append(errs, err)
+		} else {
+			posted = true
 		}
 	}
 	if g.Annotations != nil {
@@ -127,6 +133,7 @@ func (g *GitHub) Post(ctx context.Context, body string, res *budget.Result) (war
 		if err != nil {
 			errs = append(errs, err)
 		} else if url != "" {
+			posted = true
 			outputs = append(outputs, [2]string{"comment-url", url})
 		}
 	}
@@ -135,6 +142,8 @@ func (g *GitHub) Post(ctx context.Context, body string, res *budget.Result) (war
 		warnings = append(warnings, w...)
 		if err != nil {
 			errs = append(errs, err)
+		} else if len(w) == 0 {
+			posted = true
 		}
 	}
 	errs = append(errs, g.writeOutputs(outputs))

@@ -67,7 +67,11 @@ func (g *GitLab) Post(ctx context.Context, body string, res *budget.Result) (war
 	red := newRedactor(g.Env.Token)
 	ctx, cancel := withDeadline(ctx, g.Retry)
 	defer cancel()
+	posted := false
 	defer func() {
+		if err == nil && !posted {
+			err = fmt.Errorf("%w: no merge-request note (see the warnings; LOADLINE_COMMENT=false turns notes off)", ErrNothingPosted)
+		}
 		warnings = red.strings(warnings)
 		err = red.error(deadlineError(ctx, g.Retry, err))
 	}()
@@ -108,6 +112,8 @@ func (g *GitLab) Post(ctx context.Context, body string, res *budget.Result) (war
 			return nil, fmt.Errorf("editing note %d on merge request !%d: %w", id, g.Env.MRIID, err)
 		}
 		warnings = append(warnings, fmt.Sprintf("editing loadline's note %d on merge request !%d was refused (HTTP %d): adding a new note", id, g.Env.MRIID, e.StatusCode))
+		posted = true
+		return nil, nil
 	}
 	if err := g.do(ctx, hc, http.MethodPost, notes, payload, nil); err != nil {
 		if w, ok := g.refused(err, "add a note"); ok {
@@ -116,6 +122,8 @@ func (g *GitLab) Post(ctx context.Context, body string, res *budget.Result) (war
 		return warnings, fmt.Errorf("adding a note on merge request !%d: %w", g.Env.MRIID, err)
 	}
 	return warnings, nil
+	posted = true
+	return nil, nil
 }
 
 // findNote pages through the merge request's notes, oldest first, 100 a

@@ -27,6 +27,10 @@ type EvalOptions struct {
 	// Today decides which waivers have expired; the zero time means now.
 	// Only its date counts: a waiver holds through its until day.
 	Today time.Time
+	// Tree, when not nil, is every file path at the revision judged: a
+	// rule whose glob matches none of them is a warning naming its line
+	// (a folder renamed, a typo), since it judges nothing.
+	Tree []string
 }
 
 // Deploy returns a copy of fig with RAM and Flash computed for the device.
@@ -102,6 +106,41 @@ func noDevice(fig *Figures, why string) *Figures {
 	return &out
 }
 
+// FiguresOnly lists a model's figures and their deltas without a budget:
+// one "figure" check per metric that needs no device (ram and flash do),
+// each passing, for reports to show what changed when there is nothing to
+// judge by. The result's FiguresOnly flag says so to the reader.
+func FiguresOnly(models []Input) *Result {
+	res := &Result{Verdict: Pass, Models: []ModelResult{}, BudgetChanges: []BudgetChange{}, Waivers: []Waiver{},
+		Problems: []string{}, Findings: []Finding{}, FiguresOnly: true}
+	for _, in := range models {
+		mr := ModelResult{Path: in.Path, OldPath: in.OldPath, Change: in.Change, Base: in.Base, Head: in.Head,
+			Checks: []Check{}, Status: Pass, Error: in.Error}
+		if in.Error != "" {
+			mr.Status, res.Verdict = Fail, Fail
+			res.Models = append(res.Models, mr)
+			continue
+		}
+		for _, metric := range Metrics {
+			if metric == MetricRAM || metric == MetricFlash {
+				continue
+			}
+			v, ok := in.Head.Value(metric)
+			if !ok {
+				continue
+			}
+			c := Check{Metric: metric, Kind: "figure", Value: v, Status: Pass, Reason: metric + " " + FormatValue(metric, v)}
+			if bv, ok := in.Base.Value(metric); ok {
+				d := v - bv
+				c.Base, c.Delta = &bv, &d
+			}
+			mr.Checks = append(mr.Checks, c)
+		}
+		res.Models = append(res.Models, mr)
+	}
+	return res
+}
+
 // Evaluate judges each model against the budget. Every rule whose path
 // matches a model applies to it; rules that disagree about the model (its
 // device, a dim, a limit, a growth allowance or warn_at) fail the model
@@ -133,6 +172,14 @@ func (f *File) Evaluate(models []Input, opts EvalOptions) *Result {
 		res.Waivers = append(res.Waivers, w)
 	}
 	e.live = res.Waivers
+	if opts.Tree != nil {
+		for _, r := range f.Rules {
+			if !matchesAny(r.Path, opts.Tree) {
+				res.addFinding(Finding{Level: Warn, Line: r.Line, Column: r.Column,
+					Message: fmt.Sprintf("%s matches no file: it judges nothing (a folder renamed, or a typo in the glob?)", f.ruleAt(r))})
+			}
+		}
+	}
 	for _, in := range models {
 		res.Models = append(res.Models, e.model(in))
 	}
@@ -500,6 +547,15 @@ func (e *evaluation) waive(p string, c Check) Check {
 		}
 	}
 	return c
+}
+
+func matchesAny(glob string, paths []string) bool {
+	for _, p := range paths {
+		if matchPath(glob, p) {
+			return true
+		}
+	}
+	return false
 }
 
 func matchPath(glob, p string) bool {

@@ -189,14 +189,14 @@ func (d *decoder) document(data []byte) (*yaml.Node, *Error) {
 		if errors.Is(err, io.EOF) {
 			return nil, &Error{File: d.name, Msg: "empty budget file", Hint: "start with version: 1"}
 		}
-		return nil, d.yamlError(err)
+		return nil, d.yamlError(err, data)
 	}
 	var extra yaml.Node
 	if err := dec.Decode(&extra); err == nil {
 		return nil, &Error{File: d.name, Line: extra.Line, Column: extra.Column,
 			Msg: "a second YAML document; a budget file holds one", Hint: "remove the ---"}
 	} else if !errors.Is(err, io.EOF) {
-		return nil, d.yamlError(err)
+		return nil, d.yamlError(err, data)
 	}
 	if doc.Kind != yaml.DocumentNode || len(doc.Content) == 0 {
 		return nil, &Error{File: d.name, Msg: "empty budget file", Hint: "start with version: 1"}
@@ -204,10 +204,16 @@ func (d *decoder) document(data []byte) (*yaml.Node, *Error) {
 	return doc.Content[0], nil
 }
 
-func (d *decoder) yamlError(err error) *Error {
+func (d *decoder) yamlError(err error, data []byte) *Error {
 	msg := err.Error()
 	if m := yamlLine.FindStringSubmatch(msg); m != nil {
 		line, _ := strconv.Atoi(m[1])
+		if col := tabColumn(data, line); col > 0 && strings.HasPrefix(m[2], "found character that cannot start any token") {
+			// YAML forbids tabs in indentation; the parser's words do not
+			// say that a tab is the character it means.
+			return &Error{File: d.name, Line: line, Column: col, Msg: "a tab: YAML indents with spaces only",
+				Hint: "replace the tab with spaces"}
+		}
 		hint, parser := parserProblems[m[2]]
 		if parser {
 			// yaml.v3 reports a parser (not scanner) error at the 0-based
@@ -217,6 +223,16 @@ func (d *decoder) yamlError(err error) *Error {
 		return &Error{File: d.name, Line: line, Msg: "not valid YAML: " + m[2], Hint: hint}
 	}
 	return &Error{File: d.name, Msg: "not valid YAML: " + strings.TrimPrefix(msg, "yaml: ")}
+}
+
+// tabColumn returns the 1-based column of the first tab on a 1-based line
+// of data, 0 when the line has none.
+func tabColumn(data []byte, line int) int {
+	lines := bytes.Split(data, []byte("\n"))
+	if line < 1 || line > len(lines) {
+		return 0
+	}
+	return bytes.IndexByte(lines[line-1], '\t') + 1
 }
 
 // decoder walks the YAML node tree, collecting errors.

@@ -220,12 +220,14 @@ func formatScaled(v, base int64, unit string, units []string) string {
 	if v < 0 {
 		sign, a = "-", -a
 	}
-	if a < float64(base) {
+	// A figure moves to the next unit once it would print with four digits
+	// before the point: 1003.3 KiB reads 0.98 MiB, 1000 B reads 0.98 KiB.
+	if a < 1000 {
 		return sign + strconv.FormatInt(int64(a), 10) + unit
 	}
 	i := 0
 	a /= float64(base)
-	for a >= float64(base)-0.05 && i < len(units)-1 {
+	for a >= 999.95 && i < len(units)-1 {
 		a /= float64(base)
 		i++
 	}

@@ -105,7 +105,9 @@ type Check struct {
 	// Limit is the absolute limit in force (for growth checks, the largest
 	// allowed head value); nil when the check is a growth check without base.
 	Limit *int64 `json:"limit"`
-	// Kind says which rule produced the check: "limit" or "growth".
+	// Kind says which rule produced the check: "limit" or "growth"; or
+	// "figure" for a figure shown without a budget (compare without a
+	// budget file), which judges nothing.
 	Kind     string `json:"kind"`
 	Status   Status `json:"status"`
 	Reason   string `json:"reason"`
@@ -212,6 +214,9 @@ type Result struct {
 	// for an expired waiver or disagreeing rules, Warn (Fail when strict)
 	// for a model matched by no rule. Problems[i] is Findings[i].Message.
 	Findings []Finding `json:"findings"`
+	// FiguresOnly is set when there was no budget to judge by: the models
+	// carry figures and deltas ("figure" checks) and no verdicts.
+	FiguresOnly bool `json:"figures_only,omitempty"`
 }
 
 // Finding is one budget-file problem found while evaluating.

@@ -1,7 +1,9 @@
 package check
 
 import (
+	"errors"
 	"fmt"
+	"io/fs"
 	"path/filepath"
 	"time"
 
@@ -28,6 +30,11 @@ func Compare(o CompareOptions) (*budget.Result, error) {
 		bpath = DefaultBudgetFile
 	}
 	f, err := budget.Load(bpath)
+	if o.BudgetFile == "" && errors.Is(err, fs.ErrNotExist) {
+		// No budget file here and none asked for: the figures and their
+		// deltas are still worth seeing, with no verdicts.
+		f, err = nil, nil
+	}
 	if err != nil {
 		return nil, &BudgetFileError{Err: err}
 	}
@@ -36,7 +43,10 @@ func Compare(o CompareOptions) (*budget.Result, error) {
 		as = filepath.ToSlash(filepath.Clean(o.New))
 	}
 	// Rules that disagree on a dim are reported by Evaluate.
-	dims, _ := f.Dims(as)
+	var dims map[string]int64
+	if f != nil {
+		dims, _ = f.Dims(as)
+	}
 	ms := MeasureFiles([]string{o.Old, o.New}, measure.Options{Dims: dims, Layers: true})
 	in := budget.Input{Path: as, Change: budget.Modified}
 	if ms[0].Error != "" {
@@ -51,7 +61,12 @@ func Compare(o CompareOptions) (*budget.Result, error) {
 	if today.IsZero() {
 		today = time.Now()
 	}
-	res := f.Evaluate([]budget.Input{in}, budget.EvalOptions{Strict: o.Strict, Today: today})
+	var res *budget.Result
+	if f == nil {
+		res = budget.FiguresOnly([]budget.Input{in})
+	} else {
+		res = f.Evaluate([]budget.Input{in}, budget.EvalOptions{Strict: o.Strict, Today: today})
+	}
 	for i := range res.Models {
 		res.Models[i].Detail = DetailOf(ms[1])
 	}

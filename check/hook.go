@@ -113,21 +113,36 @@ func hookScript(o HookOptions, chained string) string {
 			fmt.Fprintf(&b, "%s \"$@\" || exit $?\n", shellQuote(chained))
 		}
 	}
-	mode := "--staged"
+	mode, gitCmd := "--staged", "git commit --no-verify"
 	if o.Stage == "pre-push" {
-		mode = "--pre-push"
+		mode, gitCmd = "--pre-push", "git push --no-verify"
 	}
 	args := append([]string{"check", mode}, o.Args...)
 	quoted := make([]string, len(args))
 	for i, a := range args {
 		quoted[i] = shellQuote(a)
 	}
+	bin := shellQuote(o.Binary)
+	escape := fmt.Sprintf("To %s anyway: %s (it skips every %s hook of this repository, not only loadline's; the pull request's check still runs).",
+		map[string]string{"pre-commit": "commit", "pre-push": "push"}[o.Stage], gitCmd, o.Stage)
+	if !strings.Contains(o.Binary, "/") {
+		// Installed from PATH: look it up when the hook runs, so that the
+		// hook keeps working when the binary is upgraded or moves.
+		fmt.Fprintf(&b, "if ! command -v %s >/dev/null 2>&1; then\n", bin)
+		fmt.Fprintf(&b, "  echo %s >&2\n", shellQuote("loadline: "+o.Binary+" is not on this hook's PATH, so the budget was not checked. Put it on PATH, or reinstall the hook with loadline hook install. "+escape))
+		b.WriteString("  exit 1\nfi\n")
+	}
 	// The report goes to stderr, where git shows a hook's messages.
 	if o.Stage == "pre-push" && chained != "" {
-		fmt.Fprintf(&b, "printf '%%s\\n' \"$input\" | exec %s %s 1>&2\n", shellQuote(o.Binary), strings.Join(quoted, " "))
+		fmt.Fprintf(&b, "printf '%%s\\n' \"$input\" | %s %s 1>&2\n", bin, strings.Join(quoted, " "))
 	} else {
-		fmt.Fprintf(&b, "exec %s %s 1>&2\n", shellQuote(o.Binary), strings.Join(quoted, " "))
+		fmt.Fprintf(&b, "%s %s 1>&2\n", bin, strings.Join(quoted, " "))
 	}
+	// On a refusal, say the way out and what it costs.
+	b.WriteString("status=$?\nif [ \"$status\" -ne 0 ]; then\n")
+	fmt.Fprintf(&b, "  echo \"loadline: the %s check stopped this (exit $status: 1 over budget or a model that cannot be measured, 2 a budget-file or usage error, 3 an environment error).\" >&2\n", o.Stage)
+	fmt.Fprintf(&b, "  echo %s >&2\n", shellQuote("loadline: "+escape))
+	b.WriteString("fi\nexit \"$status\"\n")
 	return b.String()
 }
 

@@ -345,7 +345,8 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 		return nil, nil, err
 	}
 	if o.Progress != nil && len(changes) > 0 {
-		fmt.Fprintf(o.Progress, "loadline: %d changed model(s) between %s and %s\n", len(changes), rg.BaseRef, rg.HeadRef)
+		// The report names the revisions; the progress line does not repeat them.
+		fmt.Fprintf(o.Progress, "loadline: measuring %s\n", plural(len(changes), "changed model", "changed models"))
 	}
 	var cache *Cache
 	if !o.NoCache {
@@ -428,7 +429,11 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	if today.IsZero() {
 		today = time.Now()
 	}
-	res := inForce.Evaluate(inputs, budget.EvalOptions{Strict: o.Strict, Today: today})
+	tree, err := rg.Head.Paths()
+	if err != nil {
+		return nil, nil, err
+	}
+	res := inForce.Evaluate(inputs, budget.EvalOptions{Strict: o.Strict, Today: today, Tree: tree})
 	for i := range res.Models {
 		for j, c := range changes {
 			if c.Path == res.Models[i].Path && pairs[j].head >= 0 {
@@ -556,4 +561,12 @@ func withDataChanges(rg *Range, all []FileChange, want func(string) bool) ([]Fil
 	}
 	sortChanges(out)
 	return out, nil
+}
+
+// plural says a count with its noun: "1 model", "3 models".
+func plural(n int, one, many string) string {
+	if n == 1 {
+		return "1 " + one
+	}
+	return fmt.Sprintf("%d %s", n, many)
 }

@@ -20,6 +20,18 @@ type Stats struct {
 	CacheHits atomic.Int64 // models whose figures came from the cache
 }
 
+// Line says what a run did in one line, counting models, not the sides
+// measured: "2 models changed; 3 of 4 figures from cache". what is how
+// the models were chosen ("changed", "audited").
+func (s *Stats) Line(models int, what string) string {
+	line := plural(models, "model", "models") + " " + what
+	hits, total := s.CacheHits.Load(), s.CacheHits.Load()+s.Measured.Load()
+	if total > 0 {
+		line += fmt.Sprintf("; %d of %d figures from cache", hits, total)
+	}
+	return line
+}
+
 // blobJob is one model file at one revision to measure.
 type blobJob struct {
 	snap *Snapshot

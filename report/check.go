@@ -118,6 +118,9 @@ func plural(n int, one, many string) string {
 // summary is the headline's sentence: the tally of models, and the
 // budget-file problems, which can decide the verdict on their own.
 func summary(r *budget.Result) string {
+	if r.FiguresOnly {
+		return plural(len(r.Models), "model", "models") + " compared; no budget file, so figures and deltas only, nothing judged"
+	}
 	s := strings.Join(count(r.Models).phrases(), ", ")
 	if n := len(findings(r)); n > 0 {
 		s += "; " + plural(n, "problem", "problems") + " in the budget file"
@@ -166,6 +169,15 @@ func revisionText(r budget.Revision) string {
 		return c
 	}
 	return r.Ref + " @ " + c
+}
+
+// judged is a check's status cell, or "—" for a figure shown without a
+// budget, which has no verdict.
+func judged(c *budget.Check, status string) string {
+	if c.Kind == "figure" {
+		return none
+	}
+	return status
 }
 
 // metricLabel names a check: the metric, and "growth" for a growth check,

@@ -188,7 +188,7 @@ func renderMarkdown(r *budget.Result, opt MarkdownOptions, lim mdLimits) []byte 
 					cell = name
 				}
 				fmt.Fprintf(&b, "| %s | %s | %s | %s | %s | %s | %s | %s |\n", cell,
-					rc.metric, rc.base, rc.head, rc.delta, rc.limit, rc.headroom, mdStatus(c.Status))
+					rc.metric, rc.base, rc.head, rc.delta, rc.limit, rc.headroom, judged(c, mdStatus(c.Status)))
 			}
 		}
 	}

@@ -114,7 +114,7 @@ func CheckText(w io.Writer, r *budget.Result, opt TextOptions) error {
 		for i := range m.Checks {
 			c := &m.Checks[i]
 			rc := cells(m, c)
-			row := tab.add("", rc.metric, rc.base, rc.head, rc.delta, rc.limit, rc.headroom, statusWord(c.Status))
+			row := tab.add("", rc.metric, rc.base, rc.head, rc.delta, rc.limit, rc.headroom, judged(c, statusWord(c.Status)))
 			row.paint(7, ansiFor(c.Status))
 			rows = append(rows, row)
 		}

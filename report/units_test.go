@@ -47,3 +47,24 @@ func TestSignedFigure(t *testing.T) {
 		}
 	}
 }
+
+// TestFigureNextUnit: a figure that would print with four digits before
+// the point moves to the next unit.
+func TestFigureNextUnit(t *testing.T) {
+	for _, tc := range []struct {
+		metric string
+		v      int64
+		want   string
+	}{
+		{budget.MetricRAM, 1027379, "0.98 MiB"}, // 1027379 / 1024 = 1003.3 KiB
+		{budget.MetricRAM, 1000, "0.98 KiB"},    // 1000 / 1024 = 0.977
+		{budget.MetricRAM, 999, "999 B"},
+		{budget.MetricRAM, 1023949, "0.98 MiB"}, // 999.9502 KiB would print as 1000.0 KiB
+		{budget.MetricRAM, 1023900, "999.9 KiB"},
+		{budget.MetricMACs, 999_960, "1.00 M"},
+	} {
+		if got := Figure(tc.metric, tc.v); got != tc.want {
+			t.Errorf("Figure(%s, %d) = %q, want %q", tc.metric, tc.v, got, tc.want)
+		}
+	}
+}

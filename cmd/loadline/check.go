@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"os/exec"
 	"strings"
 	"time"
 
@@ -151,7 +152,7 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 			if err != nil {
 				return pipelineExit(err)
 			}
-			fmt.Fprintf(stderr, "loadline: %d model(s) changed, %d measured, %d from cache\n", len(res.Models), stats.Measured.Load(), stats.CacheHits.Load())
+			fmt.Fprintln(stderr, "loadline: "+stats.Line(len(res.Models), "changed"))
 			if post {
 				if err := postResult(res, stdout, stderr); err != nil && postRequired {
 					return &exitError{exitEnviron, err}
@@ -170,7 +171,7 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 	f.BoolVar(&o.Strict, "strict", false, "fail models that no budget rule covers (default: warn)")
 	f.BoolVar(&o.NoCache, "no-cache", false, "measure everything again instead of using cached figures")
 	f.BoolVar(&post, "post", false, "post the report where reviewers look (pull-request comment, job summary, annotations), detected from the CI environment")
-	f.BoolVar(&postRequired, "post-required", false, "with --post, exit 3 when posting fails (default: warn and keep the verdict)")
+	f.BoolVar(&postRequired, "post-required", false, "with --post, exit 3 when posting fails or nothing could be posted: no CI platform detected, no token and no job summary file (default: warn and keep the verdict)")
 	rf.register(cmd)
 	return cmd
 }
@@ -181,8 +182,9 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 func postResult(res *budget.Result, stdout, stderr io.Writer) error {
 	poster, ok := action.DetectTo(os.Getenv, stdout)
 	if !ok {
-		fmt.Fprintln(stderr, "loadline: --post: no supported CI platform in the environment (GITHUB_ACTIONS or GITLAB_CI); nothing posted")
-		return nil
+		err := errors.New("--post: no supported CI platform in the environment (GITHUB_ACTIONS or GITLAB_CI); nothing posted")
+		fmt.Fprintln(stderr, "loadline:", err)
+		return err
 	}
 	var body strings.Builder
 	if err := report.CheckMarkdown(&body, res, report.MarkdownOptions{Version: version, Now: time.Now()}); err != nil {
@@ -192,7 +194,10 @@ func postResult(res *budget.Result, stdout, stderr io.Writer) error {
 	for _, w := range warnings {
 		fmt.Fprintln(stderr, "loadline: warning:", w)
 	}
-	if err != nil {
+	switch {
+	case errors.Is(err, action.ErrNothingPosted):
+		fmt.Fprintln(stderr, "loadline:", err)
+	case err != nil:
 		fmt.Fprintln(stderr, "loadline: posting the report failed (the verdict stands):", err)
 	}
 	return err
@@ -266,6 +271,27 @@ func newInitCmd(stdout, stderr io.Writer) *cobra.Command {
 	return cmd
 }
 
+// hookBinary is how the hook names loadline: "loadline", looked up on
+// PATH when the hook runs, when the running binary is the one PATH finds
+// (so an upgrade or a move keeps the hook working); else the running
+// binary's absolute path.
+func hookBinary() string {
+	self, err := os.Executable()
+	if err != nil {
+		return "loadline"
+	}
+	onPath, err := exec.LookPath("loadline")
+	if err != nil {
+		return self
+	}
+	a, aerr := os.Stat(self)
+	b, berr := os.Stat(onPath)
+	if aerr == nil && berr == nil && os.SameFile(a, b) {
+		return "loadline"
+	}
+	return self
+}
+
 // hookExit maps hook install and uninstall errors to exit codes: the
 // environment's (a hooks folder that cannot be made or written) exit 3,
 // the rest (a foreign hook in the way, an unknown stage) are usage errors.
@@ -292,9 +318,7 @@ func newHookCmd(stdout io.Writer) *cobra.Command {
 			if err != nil {
 				return pipelineExit(err)
 			}
-			if o.Binary, err = os.Executable(); err != nil {
-				o.Binary = "loadline"
-			}
+			o.Binary = hookBinary()
 			p, err := r.InstallHook(o)
 			if err != nil {
 				return hookExit(err)

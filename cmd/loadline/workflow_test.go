@@ -1,0 +1,180 @@
+package main
+
+import (
+	"bytes"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// committedRepo makes a repository with budgetYAML (or the given budget)
+// and models/cam.onnx at width 8 on main, then a second commit that widens
+// the model to width 16 (516 params, within the 5k limit).
+func committedRepo(t *testing.T, budgetText string) string {
+	t.Helper()
+	dir := newRepo(t)
+	writeFile(t, dir, "loadline.yaml", []byte(budgetText))
+	writeFile(t, dir, "models/cam.onnx", convModel(t, 8))
+	git(t, dir, "add", "-A")
+	git(t, dir, "commit", "-q", "-m", "baseline")
+	writeFile(t, dir, "models/cam.onnx", convModel(t, 16))
+	git(t, dir, "add", "-A")
+	git(t, dir, "commit", "-q", "-m", "wider")
+	return dir
+}
+
+// TestUnmatchedRuleWarns: a rule whose glob matches no file judges nothing;
+// the check says so with the rule's line, as a warning (exit 0).
+func TestUnmatchedRuleWarns(t *testing.T) {
+	dir := committedRepo(t, budgetYAML+`  - path: "models/old-cam/*.onnx"
+    device: porch-cam
+    limits: {params: 5k}
+`)
+	code, out, errs := inDir(t, dir, "check", "--base", "HEAD~1", "--no-cache")
+	if code != exitOK {
+		t.Fatalf("exit %d, want 0 (a warning)\n%s%s", code, out, errs)
+	}
+	// The second rule starts on line 11 of the budget file, column 5.
+	if !strings.Contains(out, `models[1] "models/old-cam/*.onnx"`) || !strings.Contains(out, ":11:5) matches no file") || !strings.Contains(out, "WARN") {
+		t.Errorf("no warning naming the rule and its line:\n%s", out)
+	}
+}
+
+// TestCompareWithoutBudget: compare outside any repository with a budget
+// file shows figures and deltas and judges nothing.
+func TestCompareWithoutBudget(t *testing.T) {
+	dir := t.TempDir()
+	writeFile(t, dir, "old.onnx", convModel(t, 8))
+	writeFile(t, dir, "new.onnx", convModel(t, 16))
+	code, out, errs := inDir(t, dir, "compare", "old.onnx", "new.onnx")
+	if code != exitOK {
+		t.Fatalf("exit %d, want 0\n%s%s", code, out, errs)
+	}
+	// Hand-worked params (see convModel): 260 → 516, +256 (+98.5%).
+	for _, want := range []string{"no budget file, so figures and deltas only", "params", "260", "516", "+256 (+98.5%)"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("output lacks %q:\n%s", want, out)
+		}
+	}
+	if strings.Contains(out, "FAIL") || strings.Contains(out, "WARN") {
+		t.Errorf("a verdict without a budget:\n%s", out)
+	}
+	// A budget file named but missing is still an error.
+	if code, _, errs := inDir(t, dir, "compare", "--budget", "nope.yaml", "old.onnx", "new.onnx"); code != exitUsage || !strings.Contains(errs, "nope.yaml") {
+		t.Errorf("--budget nope.yaml: exit %d, %s", code, errs)
+	}
+}
+
+// TestPostRequiredNothingPosted: --post-required exits 3 when the report
+// could go nowhere: no CI platform, or GitHub without a token and without
+// a job summary file.
+func TestPostRequiredNothingPosted(t *testing.T) {
+	dir := committedRepo(t, budgetYAML)
+	for _, k := range []string{"GITHUB_ACTIONS", "GITLAB_CI", "GITHUB_BASE_REF", "CI_MERGE_REQUEST_DIFF_BASE_SHA"} {
+		t.Setenv(k, "")
+	}
+	code, _, errs := inDir(t, dir, "check", "--base", "HEAD~1", "--post", "--post-required")
+	if code != exitEnviron || !strings.Contains(errs, "no supported CI platform") {
+		t.Errorf("no platform: exit %d, want 3\n%s", code, errs)
+	}
+	// Without --post-required the verdict stands (within budget: 0).
+	if code, _, errs := inDir(t, dir, "check", "--base", "HEAD~1", "--post"); code != exitOK || !strings.Contains(errs, "nothing posted") {
+		t.Errorf("no platform, not required: exit %d\n%s", code, errs)
+	}
+	t.Setenv("GITHUB_ACTIONS", "true")
+	t.Setenv("GITHUB_REPOSITORY", "wrenfield/porch")
+	t.Setenv("GITHUB_EVENT_NAME", "push")
+	t.Setenv("GITHUB_TOKEN", "")
+	t.Setenv("GITHUB_STEP_SUMMARY", "")
+	t.Setenv("GITHUB_OUTPUT", "")
+	code, _, errs = inDir(t, dir, "check", "--base", "HEAD~1", "--post", "--post-required")
+	if code != exitEnviron || !strings.Contains(errs, "nothing was posted") {
+		t.Errorf("GitHub without token or summary: exit %d, want 3\n%s", code, errs)
+	}
+}
+
+// TestCountsAndRevisionOnce: the closing line counts models (not sides);
+// the head's commit is named once, short.
+func TestCountsAndRevisionOnce(t *testing.T) {
+	dir := committedRepo(t, budgetYAML)
+	head := git(t, dir, "rev-parse", "HEAD")
+	code, out, errs := inDir(t, dir, "check", "--base", "HEAD~1", "--no-cache")
+	if code != exitOK {
+		t.Fatalf("exit %d\n%s%s", code, out, errs)
+	}
+	// One model changed: its base and head were measured, none from cache.
+	if !strings.Contains(errs, "loadline: 1 model changed; 0 of 2 figures from cache") {
+		t.Errorf("stderr:\n%s", errs)
+	}
+	if n := strings.Count(out+errs, head[:7]); n != 1 {
+		t.Errorf("head commit %s named %d times, want once:\n%s%s", head[:7], n, out, errs)
+	}
+	if strings.Contains(out+errs, head[:8]) {
+		t.Errorf("the commit is shown longer than 7 characters:\n%s%s", out, errs)
+	}
+}
+
+// TestBudgetTabSaysTab: a tab in the budget file's indentation is named as
+// a tab, with its line and column (exit 2).
+func TestBudgetTabSaysTab(t *testing.T) {
+	dir := committedRepo(t, strings.Replace(budgetYAML, "    ram: 256KiB", "\tram: 256KiB", 1))
+	code, out, errs := inDir(t, dir, "check", "--base", "HEAD~1")
+	if code != exitUsage {
+		t.Fatalf("exit %d, want 2\n%s%s", code, out, errs)
+	}
+	if !strings.Contains(errs, ":4:1: a tab: YAML indents with spaces only") {
+		t.Errorf("stderr:\n%s", errs)
+	}
+}
+
+// TestHookFromPathAndEscape: installed from PATH, the hook names loadline
+// by name, not by an absolute path that breaks when the binary moves; a
+// refused commit is told of git commit --no-verify and what it skips.
+func TestHookFromPathAndEscape(t *testing.T) {
+	bin := loadlineBinary(t)
+	dir := newRepo(t)
+	writeFile(t, dir, "loadline.yaml", []byte(budgetYAML))
+	writeFile(t, dir, "models/cam.onnx", convModel(t, 8))
+	git(t, dir, "add", "-A")
+	git(t, dir, "commit", "-q", "-m", "baseline")
+	path := filepath.Dir(bin) + string(os.PathListSeparator) + os.Getenv("PATH")
+	env := append(os.Environ(), "PATH="+path, "HOME="+dir, "XDG_CONFIG_HOME=", "GIT_CONFIG_GLOBAL=", "GIT_CONFIG_NOSYSTEM=1", "NO_COLOR=1")
+	cmd := exec.Command(bin, "hook", "install") // the binary PATH finds
+	cmd.Dir, cmd.Env = dir, env
+	if out, err := cmd.CombinedOutput(); err != nil {
+		t.Fatalf("hook install: %v\n%s", err, out)
+	}
+	script, err := os.ReadFile(filepath.Join(dir, ".git", "hooks", "pre-commit"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(script), "'loadline' 'check' '--staged'") || strings.Contains(string(script), bin) {
+		t.Errorf("the hook does not find loadline on PATH:\n%s", script)
+	}
+	// Over budget (6,404 params > 5k): refused, with the way out.
+	writeFile(t, dir, "models/cam.onnx", convModel(t, 200))
+	git(t, dir, "add", "-A")
+	c := exec.Command("git", "commit", "-q", "-m", "much wider")
+	c.Dir, c.Env = dir, env
+	var stderr bytes.Buffer
+	c.Stderr = &stderr
+	if err := c.Run(); err == nil {
+		t.Fatal("a commit over budget went through")
+	}
+	for _, want := range []string{"the pre-commit check stopped this (exit 1", "git commit --no-verify", "skips every pre-commit hook"} {
+		if !strings.Contains(stderr.String(), want) {
+			t.Errorf("stderr lacks %q:\n%s", want, stderr.String())
+		}
+	}
+	// Off PATH, the hook refuses with the same way out rather than
+	// letting the change through unchecked.
+	c = exec.Command("git", "commit", "-q", "-m", "much wider")
+	c.Dir, c.Env = dir, append(env, "PATH=/usr/bin:/bin")
+	stderr.Reset()
+	c.Stderr = &stderr
+	if err := c.Run(); err == nil || !strings.Contains(stderr.String(), "not on this hook's PATH") || !strings.Contains(stderr.String(), "--no-verify") {
+		t.Errorf("off PATH: %v\n%s", err, stderr.String())
+	}
+}
