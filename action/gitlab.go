@@ -105,6 +105,7 @@ func (g *GitLab) Post(ctx context.Context, body string, res *budget.Result) (war
 	if id != 0 {
 		err = g.do(ctx, hc, http.MethodPut, notes+"/"+strconv.FormatInt(id, 10), payload, nil)
 		if err == nil {
+			posted = true
 			return nil, nil
 		}
 		var e *GitLabError
@@ -112,8 +113,6 @@ func (g *GitLab) Post(ctx context.Context, body string, res *budget.Result) (war
 			return nil, fmt.Errorf("editing note %d on merge request !%d: %w", id, g.Env.MRIID, err)
 		}
 		warnings = append(warnings, fmt.Sprintf("editing loadline's note %d on merge request !%d was refused (HTTP %d): adding a new note", id, g.Env.MRIID, e.StatusCode))
-		posted = true
-		return nil, nil
 	}
 	if err := g.do(ctx, hc, http.MethodPost, notes, payload, nil); err != nil {
 		if w, ok := g.refused(err, "add a note"); ok {
@@ -121,9 +120,8 @@ func (g *GitLab) Post(ctx context.Context, body string, res *budget.Result) (war
 		}
 		return warnings, fmt.Errorf("adding a note on merge request !%d: %w", g.Env.MRIID, err)
 	}
-	return warnings, nil
 	posted = true
-	return nil, nil
+	return warnings, nil
 }
 
 // findNote pages through the merge request's notes, oldest first, 100 a
