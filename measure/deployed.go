@@ -6,8 +6,8 @@ import (
 	"github.com/loadline/loadline/model"
 )
 
-// Activation memory, deployed view. Definition (DESIGN.md "Metric
-// conventions", README "Conventions", `loadline measure --help`): what an
+// Activation memory, deployed view. Definition (README "Conventions",
+// `loadline measure --help`): what an
 // embedded runtime allocates, the graph view (memory.go) after these
 // rewrites, each switchable in DeployOptions:
 //

@@ -10,8 +10,8 @@ import (
 	"github.com/loadline/loadline/model"
 )
 
-// Activation memory, graph view. Definition (DESIGN.md "Metric conventions",
-// README "Conventions", `loadline measure --help`):
+// Activation memory, graph view. Definition (README "Conventions",
+// `loadline measure --help`):
 //
 //   - The schedule is the file's node order: step i is node i.
 //   - Every non-constant tensor is counted: graph inputs and node outputs,

@@ -261,7 +261,8 @@ func randomGraph(r *rand.Rand) *Inference {
 }
 
 // bruteLiveBytes is the independent peak checker: at each step, sums the
-// tensors for which liveness holds as DESIGN.md states it, by scanning the
+// tensors for which liveness holds as the README's "Conventions" (activation
+// memory, graph view) and memory.go's definition state it, by scanning the
 // whole graph for each (tensor, step).
 func bruteLiveBytes(inf *Inference) []int64 {
 	g := inf.Model.Graph
@@ -542,7 +543,8 @@ func BenchmarkPlanArena10k(b *testing.B) {
 }
 
 // TestMemoryMeasureJSON: Measure reports the graph and deployed views
-// (default rewrites) under the JSON contract's keys (DESIGN.md, "Machine-readable contracts").
+// (default rewrites) under the keys of the loadline.measure/v1 document
+// (memory.graph and memory.deployed, as the README's "Conventions" names them).
 func TestMemoryMeasureJSON(t *testing.T) {
 	m, err := build.MobileNetV2(build.Options{Declared: true})
 	if err != nil {

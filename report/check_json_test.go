@@ -9,7 +9,8 @@ import (
 )
 
 // TestCheckJSONContract reads the mixed fixture's document as an untyped
-// consumer would and checks the loadline.check/v1 keys DESIGN.md promises.
+// consumer would and checks the keys of the loadline.check/v1 document that
+// the README's `--format json` names and CheckJSON's doc comment lists.
 func TestCheckJSONContract(t *testing.T) {
 	var b bytes.Buffer
 	if err := CheckJSON(&b, mixed().r); err != nil {

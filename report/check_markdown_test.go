@@ -192,7 +192,7 @@ func TestDaysLeft(t *testing.T) {
 }
 
 // TestFooterFLOPsRule checks that the footer states the FLOPs rule as
-// measure/cost.go counts it (and DESIGN.md "Metric conventions" defines
+// measure/cost.go counts it (and the README's "Conventions", FLOPs, defines
 // it): one per window element per output for pooling and one per input
 // element for reductions, not one per output element.
 func TestFooterFLOPsRule(t *testing.T) {

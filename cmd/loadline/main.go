@@ -18,7 +18,7 @@ import (
 	"github.com/loadline/loadline/report"
 )
 
-// Exit codes, as DESIGN.md fixes them.
+// Exit codes, as the README ("Exit codes", under Commands) states them.
 const (
 	exitOK      = 0
 	exitBudget  = 1 // a budget is broken, or a model cannot be measured
