@@ -47,10 +47,47 @@ models:
     warn_at: 90%
 `
 
-// demoCommit is one commit of the demo's history.
+// DemoToday is the date the demo's check runs on: the day after the
+// retrain commit, so that the scenario (its waiver included) reads the
+// same whatever the date the demo is run.
+var DemoToday = time.Date(2026, 11, 5, 12, 0, 0, 0, time.UTC)
+
+// demoWaiver is added to the budget file with the baseline, for the
+// sign-off report's list of waivers about to expire.
+const demoWaiver = `waivers:
+  - path: models/kitchen-timer/wakeword.onnx
+    metric: params
+    until: 2026-11-30
+    reason: params limit is raised once the 64-channel spotter is signed off
+`
+
+// demoCommit is one commit of the demo's history; tag names the release
+// it is, if any.
 type demoCommit struct {
 	message string
 	models  map[string]func() (*model.Model, error)
+	tag     string
+}
+
+// demoReleases are the invented scenario's earlier releases on main, for
+// the sign-off report's trend: the bird detector's input grows from 96×96
+// to 128×128 and the spotter from 40 to 64 channels over three releases.
+var demoReleases = []demoCommit{
+	{"Release 1.0: bird detector at 96×96, wake-word spotter with 40 channels", map[string]func() (*model.Model, error){
+		"models/porch-cam/birdspot.onnx": func() (*model.Model, error) {
+			return build.MobileNetV1(build.Options{Size: 96, Width: 0.25, Classes: 12})
+		},
+		"models/kitchen-timer/wakeword.onnx": func() (*model.Model, error) { return buildWakeword(40) },
+	}, "v1.0.0"},
+	{"Release 1.1: bird detector at 112×112, wake-word spotter with 48 channels", map[string]func() (*model.Model, error){
+		"models/porch-cam/birdspot.onnx": func() (*model.Model, error) {
+			return build.MobileNetV1(build.Options{Size: 112, Width: 0.25, Classes: 12})
+		},
+		"models/kitchen-timer/wakeword.onnx": func() (*model.Model, error) { return buildWakeword(48) },
+	}, "v1.1.0"},
+	{"Release 1.2: wake-word spotter with 56 channels", map[string]func() (*model.Model, error){
+		"models/kitchen-timer/wakeword.onnx": func() (*model.Model, error) { return buildWakeword(56) },
+	}, "v1.2.0"},
 }
 
 var demoHistory = []demoCommit{
@@ -59,13 +96,13 @@ var demoHistory = []demoCommit{
 			return build.MobileNetV1(build.Options{Size: 128, Width: 0.25, Classes: 12})
 		},
 		"models/kitchen-timer/wakeword.onnx": func() (*model.Model, error) { return buildWakeword(64) },
-	}},
+	}, ""},
 	{"Retrain: bird detector at 160×160, wake-word spotter with 80 channels", map[string]func() (*model.Model, error){
 		"models/porch-cam/birdspot.onnx": func() (*model.Model, error) {
 			return build.MobileNetV1(build.Options{Size: 160, Width: 0.25, Classes: 12})
 		},
 		"models/kitchen-timer/wakeword.onnx": func() (*model.Model, error) { return buildWakeword(80) },
-	}},
+	}, ""},
 }
 
 // buildWakeword builds a small keyword-spotting network of our own design
@@ -91,9 +128,9 @@ func buildWakeword(ch int64) (*model.Model, error) {
 	return b.Model()
 }
 
-// DemoRepo builds the demo repository in dir: the budget file and the
-// baseline on main, the retrain on a branch that is checked out. It uses
-// no git command and no network.
+// DemoRepo builds the demo repository in dir: the budget file, three
+// tagged releases and the baseline on main, the retrain on a branch that is
+// checked out. It uses no git command and no network.
 func DemoRepo(dir string, log io.Writer) error {
 	r, err := git.PlainInitWithOptions(dir, &git.PlainInitOptions{InitOptions: git.InitOptions{DefaultBranch: plumbing.NewBranchReferenceName("main")}})
 	if err != nil {
@@ -103,9 +140,15 @@ func DemoRepo(dir string, log io.Writer) error {
 	if err != nil {
 		return err
 	}
-	who := &object.Signature{Name: "Wrenfield Dev", Email: "dev@wrenfield.example", When: time.Date(2026, 11, 2, 9, 0, 0, 0, time.UTC)}
-	for i, c := range demoHistory {
-		if i == 1 {
+	who := &object.Signature{Name: "Wrenfield Dev", Email: "dev@wrenfield.example", When: time.Date(2026, 7, 27, 9, 0, 0, 0, time.UTC)}
+	history := append(append([]demoCommit{}, demoReleases...), demoHistory...)
+	for i, c := range history {
+		if i == len(demoReleases) {
+			// The releases were six weeks apart; the baseline and the
+			// retrain follow the last one.
+			who.When = time.Date(2026, 11, 2, 9, 0, 0, 0, time.UTC)
+		}
+		if i == len(demoReleases)+1 {
 			if err := wt.Checkout(&git.CheckoutOptions{Branch: plumbing.NewBranchReferenceName("retrain-160"), Create: true}); err != nil {
 				return err
 			}
@@ -113,6 +156,9 @@ func DemoRepo(dir string, log io.Writer) error {
 		files := map[string][]byte{}
 		if i == 0 {
 			files[DefaultBudgetFile] = []byte(demoBudget)
+		}
+		if i == len(demoReleases) {
+			files[DefaultBudgetFile] = []byte(demoBudget + demoWaiver)
 		}
 		for p, f := range c.models {
 			m, err := f()
@@ -137,12 +183,23 @@ func DemoRepo(dir string, log io.Writer) error {
 				return err
 			}
 		}
-		who.When = who.When.Add(24 * time.Hour)
+		if i < len(demoReleases) {
+			who.When = who.When.Add(6 * 7 * 24 * time.Hour)
+		} else {
+			who.When = who.When.Add(24 * time.Hour)
+		}
 		h, err := wt.Commit(c.message, &git.CommitOptions{Author: who, Committer: who})
 		if err != nil {
 			return err
 		}
-		fmt.Fprintf(log, "commit %s  %s\n", h.String()[:7], c.message)
+		line := "commit " + h.String()[:7] + "  " + c.message
+		if c.tag != "" {
+			if _, err := r.CreateTag(c.tag, h, nil); err != nil {
+				return err
+			}
+			line += "  (tag " + c.tag + ")"
+		}
+		fmt.Fprintln(log, line)
 	}
 	return nil
 }

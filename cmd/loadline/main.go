@@ -4,6 +4,7 @@
 package main
 
 import (
+	"bytes"
 	"errors"
 	"fmt"
 	"io"
@@ -115,7 +116,8 @@ func newRoot(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 	root.SetOut(stdout)
 	root.SetErr(stderr)
 	root.AddCommand(newMeasureCmd(stdout), newCheckCmd(stdin, stdout, stderr), newCompareCmd(stdout),
-		newInitCmd(stdout, stderr), newHookCmd(stdout), newDemoCmd(stdout, stderr))
+		newInitCmd(stdout, stderr), newHookCmd(stdout), newDemoCmd(stdout, stderr),
+		newSignoffCmd(stdout, stderr))
 	return root
 }
 
@@ -207,6 +209,7 @@ func parseDims(flags []string) (map[string]int64, error) {
 
 func newDemoCmd(stdout, stderr io.Writer) *cobra.Command {
 	var keep bool
+	var signoff string
 	cmd := &cobra.Command{
 		Use:   "demo",
 		Short: "Run the whole flow on an invented scenario in a temporary repository",
@@ -233,7 +236,7 @@ func newDemoCmd(stdout, stderr io.Writer) *cobra.Command {
 			fmt.Fprintln(stdout, "\n== loadline check (branch retrain-160 against main) ==")
 			// The demo repository is its own world: no CI variable (a pull
 			// request's GITHUB_BASE_REF) may choose its base.
-			res, _, err := check.Run(check.Options{Dir: dir, Base: "main", Getenv: func(string) string { return "" }})
+			res, _, err := check.Run(check.Options{Dir: dir, Base: "main", Getenv: func(string) string { return "" }, Today: check.DemoToday})
 			if err != nil {
 				return pipelineExit(err)
 			}
@@ -245,9 +248,26 @@ func newDemoCmd(stdout, stderr io.Writer) *cobra.Command {
 				return &exitError{exitEnviron, err}
 			}
 			fmt.Fprintln(stdout, "\n"+check.DemoSummary(res))
+			if signoff != "" {
+				s, _, err := check.Signoff(check.SignoffOptions{Dir: dir, Rev: "main"})
+				if err != nil {
+					return pipelineExit(err)
+				}
+				var buf bytes.Buffer
+				if err := renderSignoff(&buf, s, "html"); err != nil {
+					return &exitError{exitEnviron, err}
+				}
+				if err := os.WriteFile(signoff, buf.Bytes(), 0o644); err != nil {
+					return &exitError{exitEnviron, err}
+				}
+				fmt.Fprintf(stdout, "\nThe release sign-off report of main (three earlier releases, v1.0.0 to v1.2.0) is in %s; open it in a browser.\n", signoff)
+			} else {
+				fmt.Fprintln(stdout, "\nloadline demo --signoff report.html also writes the release sign-off report of main, with its three earlier releases.")
+			}
 			return nil
 		},
 	}
 	cmd.Flags().BoolVar(&keep, "keep", false, "keep the demo repository and print its path")
+	cmd.Flags().StringVar(&signoff, "signoff", "", "also write the release sign-off report (HTML) of the demo's main branch to FILE")
 	return cmd
 }

@@ -1,0 +1,294 @@
+package check
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"path"
+	"regexp"
+	"sort"
+	"strings"
+	"time"
+
+	"github.com/go-git/go-git/v5/plumbing"
+	"github.com/go-git/go-git/v5/plumbing/object"
+
+	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/measure"
+)
+
+// SignoffOptions are the choices of `loadline signoff`.
+type SignoffOptions struct {
+	Dir string // a folder inside the repository; "" is the current one
+	Rev string // the revision signed off; "" is HEAD
+	// Since names one earlier revision to compare with instead of the
+	// release tags.
+	Since string
+	// Releases is a glob the earlier release tags match ("v2.*"); "" takes
+	// tags that look like versions (VersionTag).
+	Releases string
+	// Last is how many of the newest earlier releases to read; 0 is
+	// DefaultReleases.
+	Last       int
+	BudgetFile string // repository path of the budget file; "" is loadline.yaml
+	Strict     bool
+	NoCache    bool
+	Progress   io.Writer
+}
+
+// DefaultReleases is how many earlier releases a sign-off reads unless
+// told otherwise.
+const DefaultReleases = 10
+
+// VersionTag matches the tag names taken for releases by default: v1,
+// 1.2, v1.2.3, v2.0.0-rc1, release tags as most teams spell them.
+var VersionTag = regexp.MustCompile(`^v?[0-9]+(\.[0-9]+)*([-+][0-9A-Za-z.+-]+)?$`)
+
+// Signoff gathers a release sign-off: every model at the revision judged
+// by that revision's budget file, and the same at the earlier releases,
+// each release judged by its own budget file. Blobs already measured (at
+// another release, or by an earlier check) come from the cache.
+func Signoff(o SignoffOptions) (*budget.Signoff, *Stats, error) {
+	dir := o.Dir
+	if dir == "" {
+		dir = "."
+	}
+	r, err := OpenRepo(dir)
+	if err != nil {
+		return nil, nil, err
+	}
+	rev := o.Rev
+	if rev == "" {
+		rev = "HEAD"
+	}
+	snap, err := r.Resolve(rev)
+	if err != nil {
+		return nil, nil, err
+	}
+	commit, err := r.r.CommitObject(snap.Commit)
+	if err != nil {
+		return nil, nil, r.missing(rev, err)
+	}
+	bpath, err := budgetPath(r, o.BudgetFile)
+	if err != nil {
+		return nil, nil, err
+	}
+	file, err := loadBudget(snap, bpath, rev)
+	if err != nil {
+		return nil, nil, err
+	}
+	if file == nil {
+		return nil, nil, &BudgetFileError{Err: fmt.Errorf("no budget file: %s is not in %s (write one with loadline init, or name it with --budget)", bpath, rev)}
+	}
+	blob, _ := snap.Hash(bpath)
+	var cache *Cache
+	if !o.NoCache {
+		cache = NewCache(r)
+	}
+	stats := &Stats{}
+	out := &budget.Signoff{
+		Revision:        budget.Revision{Ref: rev, Commit: snap.Commit.String()},
+		Date:            commit.Committer.When.UTC(),
+		BudgetFile:      bpath,
+		BudgetBlob:      blob.String(),
+		AnalyzerVersion: AnalyzerVersion,
+		Devices:         file.Capacities(),
+		Releases:        []budget.Release{},
+		Missing:         signoffMissing(),
+	}
+	progress(o.Progress, "loadline: judging every model at %s\n", rev)
+	if out.Current, err = judgeAll(snap, file, bpath, out.Date, o.Strict, cache, stats); err != nil {
+		return nil, nil, err
+	}
+	out.Current.Head = out.Revision
+
+	tags, err := earlierReleases(r, commit, o)
+	if err != nil {
+		return nil, nil, err
+	}
+	for i, t := range tags {
+		progress(o.Progress, "loadline: release %d of %d: %s\n", i+1, len(tags), t.name)
+		rel := budget.Release{Tag: t.name, Commit: t.commit.Hash.String(), Date: t.commit.Committer.When.UTC()}
+		rs, err := r.Resolve(t.commit.Hash.String())
+		if err == nil {
+			var f *budget.File
+			if f, err = loadBudget(rs, bpath, t.name); err == nil && f == nil {
+				err = fmt.Errorf("%s has no %s", t.name, bpath)
+			}
+			if err == nil {
+				rel.Result, err = judgeAll(rs, f, bpath, rel.Date, o.Strict, cache, stats)
+			}
+		}
+		if err != nil {
+			var env *EnvError
+			if errors.As(err, &env) {
+				return nil, nil, err
+			}
+			rel.Error, rel.Result = oneLineErr(err), nil
+		} else {
+			rel.Result.Head = budget.Revision{Ref: t.name, Commit: rel.Commit}
+		}
+		out.Releases = append(out.Releases, rel)
+	}
+	return out, stats, nil
+}
+
+// signoffMissing names what a full sign-off states that this build cannot
+// compute yet, so the report says so instead of leaving it out silently.
+func signoffMissing() []string {
+	return []string{
+		"Device totals (the flash, RAM and time of the models one device runs together) are not computed by this version; each model is judged on its own.",
+		"Latency and energy estimates and the runtime's operator support are not computed by this version.",
+	}
+}
+
+func progress(w io.Writer, format string, args ...any) {
+	if w != nil {
+		fmt.Fprintf(w, format, args...)
+	}
+}
+
+func oneLineErr(err error) string {
+	return strings.NewReplacer("\n", " ", "\r", " ").Replace(err.Error())
+}
+
+// judgeAll measures every model of a snapshot and judges each, unchanged,
+// against the budget file: the state of a revision, not a change.
+// Waivers expire by the revision's own date, as they stood when it was
+// made.
+func judgeAll(s *Snapshot, f *budget.File, bpath string, day time.Time, strict bool, cache *Cache, stats *Stats) (*budget.Result, error) {
+	paths, err := s.Paths()
+	if err != nil {
+		return nil, err
+	}
+	var models []string
+	for _, p := range paths {
+		if p == bpath || !IsModelPath(p) {
+			continue
+		}
+		// A TFLite file is a model only where a rule names it, as in a
+		// change check.
+		if strings.EqualFold(path.Ext(p), ".tflite") && len(f.Match(p)) == 0 {
+			continue
+		}
+		models = append(models, p)
+	}
+	metrics := make([]*measure.Metrics, len(models))
+	groups := map[string][]int{}
+	dims := make([]map[string]int64, len(models))
+	for i, p := range models {
+		dims[i], _ = f.Dims(p)
+		k := fmt.Sprint(dims[i])
+		groups[k] = append(groups[k], i)
+	}
+	keys := make([]string, 0, len(groups))
+	for k := range groups {
+		keys = append(keys, k)
+	}
+	sort.Strings(keys)
+	for _, k := range keys {
+		idx := groups[k]
+		jobs := make([]blobJob, len(idx))
+		for j, i := range idx {
+			jobs[j] = blobJob{s, models[i]}
+		}
+		res := measureBlobs(jobs, measure.Options{Dims: dims[idx[0]], Layers: true}, cache, stats)
+		for j, i := range idx {
+			metrics[i] = res[j].Metrics
+		}
+	}
+	inputs := make([]budget.Input, len(models))
+	for i, p := range models {
+		m := metrics[i]
+		if m != nil && m.Error != "" && isEnvMessage(m.Error) {
+			return nil, &EnvError{Err: errors.New(m.Error)}
+		}
+		inputs[i] = budget.Input{Path: p, Change: budget.Unchanged, Head: Figures(m)}
+		if m != nil && m.Error != "" {
+			inputs[i].Error = m.Error
+		}
+	}
+	res := f.Evaluate(inputs, budget.EvalOptions{Strict: strict, Today: day})
+	for i := range res.Models {
+		for j, p := range models {
+			if p == res.Models[i].Path {
+				res.Models[i].Detail = DetailOf(metrics[j])
+			}
+		}
+	}
+	return res, nil
+}
+
+type releaseTag struct {
+	name   string
+	commit *object.Commit
+}
+
+// earlierReleases lists the releases to compare with, oldest first: the
+// --since revision alone, or the newest o.Last tags matching the pattern
+// whose commits are ancestors of the revision signed off (the revision's
+// own commit excluded: it is the release being signed).
+func earlierReleases(r *Repo, head *object.Commit, o SignoffOptions) ([]releaseTag, error) {
+	if o.Since != "" {
+		h, err := r.r.ResolveRevision(plumbing.Revision(o.Since))
+		if err != nil {
+			return nil, r.missing(o.Since, err)
+		}
+		c, err := r.r.CommitObject(*h)
+		if err != nil {
+			return nil, r.missing(o.Since, err)
+		}
+		return []releaseTag{{o.Since, c}}, nil
+	}
+	if o.Releases != "" {
+		if _, err := path.Match(o.Releases, ""); err != nil {
+			return nil, fmt.Errorf("--releases %q: %w", o.Releases, err)
+		}
+	}
+	refs, err := r.r.Tags()
+	if err != nil {
+		return nil, &EnvError{Err: fmt.Errorf("listing tags: %w", err)}
+	}
+	var out []releaseTag
+	err = refs.ForEach(func(ref *plumbing.Reference) error {
+		name := ref.Name().Short()
+		if o.Releases != "" {
+			if ok, _ := path.Match(o.Releases, name); !ok {
+				return nil
+			}
+		} else if !VersionTag.MatchString(name) {
+			return nil
+		}
+		h, err := r.r.ResolveRevision(plumbing.Revision("refs/tags/" + name))
+		if err != nil {
+			return nil // a tag of a tree or blob is no release
+		}
+		c, err := r.r.CommitObject(*h)
+		if err != nil || c.Hash == head.Hash {
+			return nil
+		}
+		if ok, err := c.IsAncestor(head); err != nil || !ok {
+			return nil
+		}
+		out = append(out, releaseTag{name, c})
+		return nil
+	})
+	if err != nil {
+		return nil, err
+	}
+	sort.Slice(out, func(i, j int) bool {
+		ti, tj := out[i].commit.Committer.When, out[j].commit.Committer.When
+		if !ti.Equal(tj) {
+			return ti.Before(tj)
+		}
+		return out[i].name < out[j].name
+	})
+	last := o.Last
+	if last <= 0 {
+		last = DefaultReleases
+	}
+	if len(out) > last {
+		out = out[len(out)-last:]
+	}
+	return out, nil
+}
