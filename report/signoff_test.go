@@ -50,7 +50,7 @@ func figs(file, params, macs, arena int64) *budget.Figures {
 		Memory: budget.MemoryFigures{Deployed: budget.MemoryView{PeakLiveBytes: arena, ArenaBytes: arena}}}
 }
 
-func judged(t *testing.T, today time.Time, in []budget.Input) *budget.Result {
+func signoffJudged(t *testing.T, today time.Time, in []budget.Input) *budget.Result {
 	t.Helper()
 	f, err := budget.Parse("loadline.yaml", []byte(signoffBudget))
 	if err != nil {
@@ -69,21 +69,21 @@ func signoffFixture(t *testing.T) *budget.Signoff {
 	in := func(p string, fg *budget.Figures) budget.Input {
 		return budget.Input{Path: p, Change: budget.Unchanged, Head: fg}
 	}
-	r1 := judged(t, day(8, 1), []budget.Input{
+	r1 := signoffJudged(t, day(8, 1), []budget.Input{
 		in("models/birdcam/detector.onnx", figs(900_000, 220_000, 41_000_000, 380_000)),
 		in("models/kitchen/wake.onnx", figs(90_000, 20_000, 3_100_000, 150_000)),
 	})
-	r2 := judged(t, day(9, 15), []budget.Input{
+	r2 := signoffJudged(t, day(9, 15), []budget.Input{
 		in("models/birdcam/detector.onnx", figs(950_000, 230_000, 44_000_000, 430_000)),
 		in("models/kitchen/wake.onnx", figs(92_000, 21_000, 3_900_000, 170_000)),
 		in("models/birdcam/tracker.onnx", figs(300_000, 70_000, 9_000_000, 120_000)),
 	})
-	r3 := judged(t, day(11, 2), []budget.Input{
+	r3 := signoffJudged(t, day(11, 2), []budget.Input{
 		in("models/birdcam/detector.onnx", figs(1_000_000, 240_000, 52_000_000, 470_000)),
 		in("models/kitchen/wake.onnx", figs(93_000, 21_000, 5_200_000, 180_000)),
 		in("models/birdcam/tracker.onnx", figs(310_000, 72_000, 9_500_000, 125_000)),
 	})
-	head := judged(t, day(12, 1), []budget.Input{
+	head := signoffJudged(t, day(12, 1), []budget.Input{
 		in("models/birdcam/detector.onnx", figs(1_010_000, 242_000, 53_000_000, 490_000)),
 		in("models/kitchen/wake.onnx", figs(93_500, 21_000, 5_300_000, 181_000)),
 		in("models/kitchen/vad.onnx", figs(20_000, 4_000, 400_000, 30_000)),
