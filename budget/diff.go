@@ -6,6 +6,8 @@ import (
 	"strconv"
 	"strings"
 	"time"
+
+	"go.yaml.in/yaml/v3"
 )
 
 // Diff lists every difference between the base revision's budget file and
@@ -48,6 +50,13 @@ func Diff(base, head *File) []BudgetChange {
 			if bd.Weights != hd.Weights {
 				// Weights leaving RAM lower every ram figure of the device.
 				add(BudgetChange{Key: key + ".weights", Old: bd.Weights, New: hd.Weights, Loosened: hd.Weights == WeightsFlash})
+			}
+			if bt, ht := targetText(bd), targetText(hd); bt != ht {
+				// Another target changes every latency and energy figure
+				// of the device, and which operators it runs; whether that
+				// allows more cannot be told without measuring, so a
+				// reviewer looks.
+				add(BudgetChange{Key: key + ".target", Old: bt, New: ht, Loosened: true})
 			}
 		}
 	}
@@ -252,4 +261,38 @@ func limitText(metric string, s Setting, dev *Device) (int64, string) {
 	}
 	v, _ := resolve(metric, s, dev)
 	return v, fmt.Sprintf("%s (%s)", s.Text, FormatValue(metric, v))
+}
+
+// targetText is a device's target as one line of YAML, "" when it names
+// none.
+func targetText(d *Device) string {
+	if d == nil || d.Target == nil {
+		return ""
+	}
+	if d.Target.Kind == yaml.ScalarNode {
+		return d.Target.Value
+	}
+	out, err := yaml.Marshal(d.Target)
+	if err != nil {
+		return "(unprintable)"
+	}
+	var flow yaml.Node
+	if yaml.Unmarshal(out, &flow) == nil && len(flow.Content) > 0 {
+		setFlow(flow.Content[0], 0)
+		if b, err := yaml.Marshal(flow.Content[0]); err == nil {
+			return strings.TrimSpace(string(b))
+		}
+	}
+	return strings.TrimSpace(string(out))
+}
+
+func setFlow(n *yaml.Node, depth int) {
+	if depth > 8 {
+		return
+	}
+	n.Style |= yaml.FlowStyle
+	n.HeadComment, n.LineComment, n.FootComment = "", "", ""
+	for _, c := range n.Content {
+		setFlow(c, depth+1)
+	}
 }

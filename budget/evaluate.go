@@ -348,9 +348,19 @@ func (e *evaluation) model(in Input) ModelResult {
 			return mr
 		}
 	}
+	if b.dev != nil && b.dev.Target != nil && len(b.limits[MetricUnsupported]) == 0 && len(b.rules) > 0 {
+		// A device that names a target runs every operator of the model
+		// or fails: an implicit limit of 0 unsupported operators, which
+		// a rule may raise and a waiver may excuse.
+		b.limits[MetricUnsupported] = []source{{b.rules[0], Setting{Quantity: Quantity{Text: "0", Kind: Plain}, Line: b.dev.Target.Line, Column: b.dev.Target.Column}}}
+	}
 	for _, metric := range Metrics {
 		if srcs := b.limits[metric]; len(srcs) > 0 {
-			mr.Checks = append(mr.Checks, e.limit(p, metric, srcs, b, mr.Base, mr.Head))
+			c := e.limit(p, metric, srcs, b, mr.Base, mr.Head)
+			if metric == MetricUnsupported && c.Value > 0 && mr.Head != nil && mr.Head.Target != nil {
+				c.Reason += ": " + strings.Join(mr.Head.Target.Unsupported, "; ")
+			}
+			mr.Checks = append(mr.Checks, c)
 		}
 		if srcs := b.growth[metric]; len(srcs) > 0 {
 			mr.Checks = append(mr.Checks, e.growth(p, metric, srcs, mr.Base, mr.Head))

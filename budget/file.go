@@ -52,7 +52,12 @@ type Device struct {
 	RAM, Flash *Quantity
 	// Weights is where the runtime keeps weights: WeightsFlash (the
 	// default) or WeightsRAM.
-	Weights      string
+	Weights string
+	// Target is the device's cost-model target as written: a built-in
+	// name ("m4-reference@120MHz") or a mapping; nil when the device names
+	// none. Package target reads it (target.FromYAML); the budget only
+	// keeps it, with its place.
+	Target       *yaml.Node
 	Line, Column int
 }
 
@@ -106,7 +111,7 @@ const DefaultWarnAt = 900_000
 
 var (
 	topKeys    = []string{"version", "devices", "models", "waivers"}
-	deviceKeys = []string{"ram", "flash", "weights"}
+	deviceKeys = []string{"ram", "flash", "weights", "target"}
 	ruleKeys   = []string{"path", "device", "dims", "limits", "growth", "warn_at"}
 	waiverKeys = []string{"path", "metric", "until", "reason"}
 	placements = []string{WeightsFlash, WeightsRAM}
@@ -564,6 +569,10 @@ func (d *decoder) devices(f *File, n *yaml.Node) {
 					continue
 				}
 				dev.Weights = v
+			case "target":
+				if v := d.visit(fe.v); v != nil {
+					dev.Target = v
+				}
 			default:
 				d.unknownKey(fe, key, deviceKeys)
 			}
@@ -766,12 +775,26 @@ func (d *decoder) setting(e entry, key string, limit bool, dev *Device) (Setting
 		return Setting{}, false
 	}
 	s := Setting{Quantity: q, Line: e.v.Line, Column: e.v.Column}
-	if IsBytes(e.name) && q.Kind == Count {
+	switch unit := UnitOf(e.name); {
+	case unit == Duration || unit == Energy:
+		if q.Kind != unit && q.Kind != Percent {
+			example := map[Kind]string{Duration: "250ms or 800us", Energy: "10mJ or 500uJ"}[unit]
+			d.add(e.v, mkey, fmt.Sprintf("%q: %s is %s", q.Text, e.name, map[Kind]string{Duration: "a duration", Energy: "an energy"}[unit]), "write e.g. "+example)
+			return Setting{}, false
+		}
+	case q.Kind == Duration || q.Kind == Energy:
+		d.add(e.v, mkey, fmt.Sprintf("%q is a %s; %s is %s", q.Text, q.Kind, e.name, map[bool]string{true: "in bytes", false: "a count"}[IsBytes(e.name)]), "")
+		return Setting{}, false
+	case IsBytes(e.name) && q.Kind == Count:
 		d.add(e.v, mkey, fmt.Sprintf("%q is a count; %s is in bytes", q.Text, e.name), countAsBytesHint(q.Text))
 		return Setting{}, false
-	}
-	if !IsBytes(e.name) && q.Kind == Bytes {
+	case !IsBytes(e.name) && q.Kind == Bytes:
 		d.add(e.v, mkey, fmt.Sprintf("%q is in bytes; %s is a count", q.Text, e.name), bytesAsCountHint(q.Text))
+		return Setting{}, false
+	}
+	if limit && (e.name == MetricLatency || e.name == MetricEnergy || e.name == MetricUnsupported) && dev != nil && dev.Target == nil {
+		d.add(e.k, mkey, fmt.Sprintf("device %q names no target to estimate %s on", dev.Name, e.name),
+			fmt.Sprintf("add devices.%s.target, e.g. target: m4-reference@120MHz", dev.Name))
 		return Setting{}, false
 	}
 	if q.Kind != Percent {
@@ -782,7 +805,7 @@ func (d *decoder) setting(e entry, key string, limit bool, dev *Device) (Setting
 	}
 	if e.name != MetricRAM && e.name != MetricFlash {
 		d.add(e.v, mkey, fmt.Sprintf("%q: a %% limit is a share of the device's capacity, and only ram and flash have one", q.Text),
-			"write the limit as a number, e.g. "+map[bool]string{true: "256KiB", false: "60M"}[IsBytes(e.name)])
+			"write the limit as a number, e.g. "+map[Kind]string{Bytes: "256KiB", Count: "60M", Duration: "250ms", Energy: "10mJ"}[UnitOf(e.name)])
 		return Setting{}, false
 	}
 	if q.Value <= 0 || q.Value > PercentScale {

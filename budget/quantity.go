@@ -12,10 +12,12 @@ type Kind int
 
 // The kinds of quantity.
 const (
-	Plain   Kind = iota // a bare whole number: bytes or a count, as its metric says
-	Bytes               // B, KiB, MiB, GiB, TiB (1024-based) or KB, MB, GB, TB (1000-based)
-	Count               // k = 10³, M = 10⁶, G = 10⁹, T = 10¹²
-	Percent             // %
+	Plain    Kind = iota // a bare whole number: bytes or a count, as its metric says
+	Bytes                // B, KiB, MiB, GiB, TiB (1024-based) or KB, MB, GB, TB (1000-based)
+	Count                // k = 10³, M = 10⁶, G = 10⁹, T = 10¹²
+	Percent              // %
+	Duration             // ns, us (µs), ms, s; Value in nanoseconds
+	Energy               // nJ, uJ (µJ), mJ, J; Value in nanojoules
 )
 
 func (k Kind) String() string {
@@ -28,6 +30,10 @@ func (k Kind) String() string {
 		return "count"
 	case Percent:
 		return "percent"
+	case Duration:
+		return "duration"
+	case Energy:
+		return "energy"
 	}
 	return "kind(" + strconv.Itoa(int(k)) + ")"
 }
@@ -62,6 +68,8 @@ var unitDefs = []unitDef{
 	{"KB", Bytes, 1e3}, {"kB", Bytes, 1e3}, {"MB", Bytes, 1e6}, {"GB", Bytes, 1e9}, {"TB", Bytes, 1e12},
 	{"k", Count, 1e3}, {"M", Count, 1e6}, {"G", Count, 1e9}, {"T", Count, 1e12},
 	{"%", Percent, PercentScale / 100},
+	{"ns", Duration, 1}, {"us", Duration, 1e3}, {"µs", Duration, 1e3}, {"ms", Duration, 1e6}, {"s", Duration, 1e9},
+	{"nJ", Energy, 1}, {"uJ", Energy, 1e3}, {"µJ", Energy, 1e3}, {"mJ", Energy, 1e6}, {"J", Energy, 1e9},
 }
 
 var unitNames = func() []string {
@@ -154,7 +162,7 @@ func ParseQuantity(text string) (Quantity, error) {
 			case rest[0] == 'e' || rest[0] == 'E':
 				hint = "write 1e6 as 1M"
 			default:
-				hint = "units: B, KiB, MiB, GiB, KB, MB, GB for bytes; k, M, G for counts; % for shares"
+				hint = "units: B, KiB, MiB, GiB, KB, MB, GB for bytes; k, M, G for counts; % for shares; ms, us for latency; uJ, mJ for energy"
 			}
 			return fail(fmt.Sprintf("unknown unit %q", rest), hint)
 		}
@@ -191,12 +199,33 @@ var byteMetrics = map[string]bool{
 // arena, ram, flash) rather than counted (params, macs, flops).
 func IsBytes(metric string) bool { return byteMetrics[metric] }
 
+// UnitOf is the kind of quantity a metric's limits are written in: Bytes,
+// Count, Duration (latency) or Energy (energy).
+func UnitOf(metric string) Kind {
+	switch {
+	case IsBytes(metric):
+		return Bytes
+	case metric == MetricLatency:
+		return Duration
+	case metric == MetricEnergy:
+		return Energy
+	}
+	return Count
+}
+
 // FormatValue prints a metric's value as reports show it: bytes in binary
 // units ("301.5 KiB", "1.18 MiB", "512 B"), counts with decimal suffixes
-// ("48.1 M", "6.40 k", "950"); one decimal, two below 10.
+// ("48.1 M", "6.40 k", "950"), latency from nanoseconds ("181.9 ms",
+// "850 µs") and energy from nanojoules ("7.37 mJ", "412 µJ"); one
+// decimal, two below 10.
 func FormatValue(metric string, v int64) string {
-	if IsBytes(metric) {
+	switch UnitOf(metric) {
+	case Bytes:
 		return FormatBytes(v)
+	case Duration:
+		return formatScaled(v, 1000, " ns", []string{" µs", " ms", " s"})
+	case Energy:
+		return formatScaled(v, 1000, " nJ", []string{" µJ", " mJ", " J"})
 	}
 	return FormatCount(v)
 }

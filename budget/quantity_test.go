@@ -59,7 +59,7 @@ func TestParseQuantityErrors(t *testing.T) {
 		{"64 KiBs", `"64 KiBs": unknown unit "KiBs" (did you mean "KiB"?)`},
 		{"1,5MiB", `"1,5MiB": unknown unit ",5MiB" (write a decimal point, not a comma)`},
 		{"1e6", `"1e6": unknown unit "e6" (write 1e6 as 1M)`},
-		{"12 parsecs", `"12 parsecs": unknown unit "parsecs" (units: B, KiB, MiB, GiB, KB, MB, GB for bytes; k, M, G for counts; % for shares)`},
+		{"12 parsecs", `"12 parsecs": unknown unit "parsecs" (units: B, KiB, MiB, GiB, KB, MB, GB for bytes; k, M, G for counts; % for shares; ms, us for latency; uJ, mJ for energy)`},
 		{"", `"": empty value (write e.g. 512KiB, 300k or 90%)`},
 		{"MiB", `"MiB": not a number (write e.g. 512KiB, 1.5MiB, 300k or 90%)`},
 		{".5MiB", `".5MiB": write a digit before the decimal point (e.g. 0.5MiB)`},

@@ -3,7 +3,10 @@
 // fast it may grow. It knows nothing of ONNX or git; it is given figures.
 package budget
 
-import "time"
+import (
+	"math"
+	"time"
+)
 
 // Metric names, as the budget file and every report spell them.
 const (
@@ -15,10 +18,18 @@ const (
 	MetricArena   = "arena"   // deployed activation arena bytes
 	MetricRAM     = "ram"     // arena + weights when the device keeps weights in RAM; defined in Device.Deploy
 	MetricFlash   = "flash"   // the model file as stored in flash; defined in Device.Deploy
+	// The device cost model's figures, for a device that names a target
+	// (package target defines them): estimated latency in nanoseconds,
+	// energy in nanojoules, and the count of operators the target's
+	// runtime lacks.
+	MetricLatency     = "latency"
+	MetricEnergy      = "energy"
+	MetricUnsupported = "unsupported"
 )
 
 // Metrics lists every metric key in report order.
-var Metrics = []string{MetricRAM, MetricFlash, MetricArena, MetricWeights, MetricParams, MetricMACs, MetricFLOPs, MetricFile}
+var Metrics = []string{MetricRAM, MetricFlash, MetricArena, MetricWeights, MetricParams, MetricMACs, MetricFLOPs, MetricFile,
+	MetricLatency, MetricEnergy, MetricUnsupported}
 
 // Figures are one model's measured figures, as the budget needs them. The
 // JSON keys are those of a loadline.measure/v1 entry, plus ram and flash as
@@ -35,10 +46,25 @@ type Figures struct {
 	Memory        MemoryFigures `json:"memory"`
 	RAM           int64         `json:"ram"`
 	Flash         int64         `json:"flash"`
+	// Target is the estimate on the device's target, nil when the device
+	// names none.
+	Target *TargetFigures `json:"target,omitempty"`
 	// Unknown lists metric keys whose value could not be computed
 	// (unresolved shapes), with the reason; such a metric is not judged as
 	// a number but reported.
 	Unknown map[string]string `json:"unknown,omitempty"`
+}
+
+// TargetFigures are a model's estimated cost on its device's target, as
+// loadline.measure/v1's "target" entry names them.
+type TargetFigures struct {
+	Name      string  `json:"name"`
+	ClockHz   float64 `json:"clock_hz"`
+	LatencyMS float64 `json:"latency_ms"`
+	EnergyUJ  float64 `json:"energy_uj"`
+	// Unsupported names each operator the target's runtime lacks
+	// ("node (OP): reason").
+	Unsupported []string `json:"unsupported"`
 }
 
 // MemoryFigures are activation memory in the graph view and the deployed
@@ -80,6 +106,17 @@ func (f *Figures) Value(metric string) (v int64, ok bool) {
 		return f.RAM, true
 	case MetricFlash:
 		return f.Flash, true
+	case MetricLatency, MetricEnergy, MetricUnsupported:
+		if f.Target == nil {
+			return 0, false
+		}
+		switch metric {
+		case MetricLatency:
+			return int64(math.Round(f.Target.LatencyMS * 1e6)), true
+		case MetricEnergy:
+			return int64(math.Round(f.Target.EnergyUJ * 1e3)), true
+		}
+		return int64(len(f.Target.Unsupported)), true
 	}
 	return 0, false
 }

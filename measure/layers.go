@@ -1,13 +1,18 @@
 package measure
 
+import "github.com/loadline/loadline/model"
+
 // Layer is one node of the main graph in the per-layer view: what it
 // computes, what its first output costs in memory, how much is live at its
 // step (the schedule is the file's node order) and where the graph-view
 // arena places its output.
 type Layer struct {
-	Step   int    `json:"step"`
-	Node   string `json:"node"`
-	Op     string `json:"op"`
+	Step int    `json:"step"`
+	Node string `json:"node"`
+	Op   string `json:"op"`
+	// Domain is the operator's domain: "" for the default ONNX domain,
+	// "tflite" for a TFLite builtin operator.
+	Domain string `json:"domain,omitempty"`
 	Output string `json:"output"`
 	Shape  string `json:"shape"`
 	MACs   int64  `json:"macs"`
@@ -20,6 +25,27 @@ type Layer struct {
 	// Offset is the graph-view arena offset of the first output; -1 when
 	// the output is not in the arena.
 	Offset int64 `json:"offset"`
+
+	// What the node moves and computes on, for device cost models. Counts
+	// whose shapes are not known are 0.
+	//
+	// DType is the element type the node computes on: that of its first
+	// input that is not a weight (of its first output when every input is
+	// a weight).
+	DType string `json:"dtype,omitempty"`
+	// Depthwise marks a depthwise convolution: Conv, ConvInteger or
+	// QLinearConv with more than one group and group equal to its input's
+	// and its output's channels (deployed.go's isDepthwise).
+	Depthwise bool `json:"depthwise,omitempty"`
+	// InElements is the element count of input 0; OutElements that of
+	// every output together.
+	InElements  int64 `json:"in_elements"`
+	OutElements int64 `json:"out_elements"`
+	// WeightBytes is the stored size of the node's weight inputs (values
+	// straight from initializers or Constant nodes), each counted once per
+	// node; ActivationBytes the size of its run-time inputs and outputs.
+	WeightBytes     int64 `json:"weight_bytes"`
+	ActivationBytes int64 `json:"activation_bytes"`
 }
 
 // MemoryDetail is where and what the graph-view peak is.
@@ -68,7 +94,66 @@ func layersOf(inf *Inference, costs *Costs, plan *MemoryPlan) []Layer {
 		if i < len(plan.LiveBytesByStep) {
 			l.LiveBytes = plan.LiveBytesByStep[i]
 		}
+		l.Domain = n.Domain
+		traffic(&l, n, inf.Values)
 		out = append(out, l)
 	}
 	return out
+}
+
+// depthwiseOps are the convolutions a depthwise flag applies to.
+var depthwiseOps = map[string]bool{"Conv": true, "ConvInteger": true, "QLinearConv": true}
+
+// traffic fills the layer's dtype, element counts and bytes moved from what
+// inference knows of the node's inputs and outputs.
+func traffic(l *Layer, n *model.Node, vals map[string]*Value) {
+	seen := map[string]bool{}
+	for i, name := range n.Inputs {
+		v := vals[name]
+		if name == "" || v == nil || v.Absent {
+			continue
+		}
+		if i == 0 {
+			l.InElements = elementsOf(v)
+		}
+		if seen[name] {
+			continue
+		}
+		seen[name] = true
+		b, _ := tensorBytes(v)
+		if v.Weight {
+			l.WeightBytes += b
+			continue
+		}
+		l.ActivationBytes += b
+		if l.DType == "" && v.Type.Kind == model.KindTensor {
+			l.DType = v.Type.DType.String()
+		}
+	}
+	for _, name := range n.Outputs {
+		v := vals[name]
+		if name == "" || v == nil || v.Absent {
+			continue
+		}
+		l.OutElements += elementsOf(v)
+		b, _ := tensorBytes(v)
+		l.ActivationBytes += b
+		if l.DType == "" && v.Type.Kind == model.KindTensor {
+			l.DType = v.Type.DType.String()
+		}
+	}
+	if (n.Domain == "" || n.Domain == "ai.onnx") && depthwiseOps[n.Op] && len(n.Outputs) > 0 {
+		l.Depthwise = isDepthwise(n, vals)
+	}
+}
+
+// elementsOf is a tensor value's element count, 0 when not known.
+func elementsOf(v *Value) int64 {
+	if v == nil || v.Type.Kind != model.KindTensor || !v.Type.RankKnown {
+		return 0
+	}
+	if e, ok := v.Type.Shape.Elements(); ok {
+		return e
+	}
+	return 0
 }

@@ -2,6 +2,7 @@ package measure
 
 import (
 	"github.com/loadline/loadline/model"
+	"github.com/loadline/loadline/target"
 )
 
 // Metrics are the figures of one model, as loadline's JSON contract
@@ -39,6 +40,9 @@ type Metrics struct {
 	MemoryDetail MemoryDetail `json:"memory_detail"`
 	// Layers is the per-node view, filled when Options.Layers is set.
 	Layers []Layer `json:"layers,omitempty"`
+	// Target is the estimate on a device target (measure --target), nil
+	// when none was asked for.
+	Target *target.Estimate `json:"target,omitempty"`
 }
 
 // IOInfo is a graph input or output: name, dtype, and shape with symbolic

@@ -28,13 +28,19 @@ func Count(n int64) string {
 
 // Figure prints one budget metric's value in its own unit: binary bytes for
 // the byte metrics (file, weights, arena, ram, flash), decimal counts for
-// params, macs and flops. Any other key prints as a plain integer.
+// params, macs, flops and unsupported, milliseconds or microseconds for
+// latency, µJ or mJ for energy. Any other key prints as a plain integer.
 func Figure(metric string, v int64) string {
 	switch metric {
 	case budget.MetricFile, budget.MetricWeights, budget.MetricArena, budget.MetricRAM, budget.MetricFlash:
 		return Bytes(v)
-	case budget.MetricParams, budget.MetricMACs, budget.MetricFLOPs:
+	case budget.MetricParams, budget.MetricMACs, budget.MetricFLOPs, budget.MetricUnsupported:
 		return Count(v)
+	case budget.MetricLatency, budget.MetricEnergy:
+		if v < 0 {
+			return "?"
+		}
+		return budget.FormatValue(metric, v)
 	}
 	return strconv.FormatInt(v, 10)
 }
