@@ -362,7 +362,9 @@ func (e *evaluation) model(in Input) ModelResult {
 			}
 			mr.Checks = append(mr.Checks, c)
 		}
-		if srcs := b.growth[metric]; len(srcs) > 0 {
+		// An unchanged model (an audit, or a model re-judged because the
+		// budget file changed) has no growth to judge.
+		if srcs := b.growth[metric]; len(srcs) > 0 && (mr.Change != Unchanged || in.Base != nil) {
 			mr.Checks = append(mr.Checks, e.growth(p, metric, srcs, mr.Base, mr.Head))
 		}
 	}

@@ -251,6 +251,15 @@ type Result struct {
 	// for an expired waiver or disagreeing rules, Warn (Fail when strict)
 	// for a model matched by no rule. Problems[i] is Findings[i].Message.
 	Findings []Finding `json:"findings"`
+	// Notes are remarks on how the change was judged that are no budget
+	// problem and do not move the verdict: which budget file is in force,
+	// which of the change's own budget edits are not in force yet and how
+	// to land them.
+	Notes []string `json:"notes,omitempty"`
+	// Audit is set when the result judges every model at one revision
+	// (Head) rather than a change: there is no base, and models are
+	// "unchanged".
+	Audit bool `json:"audit,omitempty"`
 	// FiguresOnly is set when there was no budget to judge by: the models
 	// carry figures and deltas ("figure" checks) and no verdicts.
 	FiguresOnly bool `json:"figures_only,omitempty"`

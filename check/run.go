@@ -11,6 +11,8 @@ import (
 	"strings"
 	"time"
 
+	"github.com/bmatcuk/doublestar/v4"
+
 	"github.com/loadline/loadline/budget"
 	"github.com/loadline/loadline/measure"
 )
@@ -23,6 +25,9 @@ type Options struct {
 	Dir        string // a folder inside the repository; "" is the current one
 	Base, Head string // revisions; "" picks the defaults (see ResolveRange)
 	Staged     bool   // compare the index with HEAD (pre-commit)
+	// All judges every model at Head (HEAD when empty) instead of a
+	// change: see Audit.
+	All bool
 	// PrePush, when set, is the pre-push hook's standard input: one line
 	// per pushed ref, "<local ref> <local sha> <remote ref> <remote sha>".
 	PrePush    io.Reader
@@ -142,6 +147,9 @@ func Run(o Options) (*budget.Result, *Stats, error) {
 	r, err := OpenRepo(dir)
 	if err != nil {
 		return nil, nil, err
+	}
+	if o.All {
+		return Audit(r, o.Head, o)
 	}
 	if o.PrePush != nil {
 		return runPrePush(r, o)
@@ -305,37 +313,35 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	if err != nil {
 		return nil, nil, err
 	}
-	var problems []string
+	var notes []string
 	inForce := baseBudget
+	// both: the stricter of the base's and the head's file is in force, a
+	// limit at a time (budget.Stricter).
+	both := false
 	switch {
 	case o.TrustHeadBudget && headBudget != nil:
 		inForce = headBudget
 		if baseBudget != nil {
-			problems = append(problems, "judged by the head's budget file (--trust-head-budget): this change may loosen its own gate")
+			notes = append(notes, "judged by the head's budget file (--trust-head-budget): this change may loosen its own gate")
 		}
 	case baseBudget == nil && headBudget != nil:
 		inForce = headBudget
-		problems = append(problems, fmt.Sprintf("%s is new in this change; its models are judged by it", bpath))
+		notes = append(notes, fmt.Sprintf("%s is new in this change; its models are judged by it", bpath))
 	case baseBudget != nil && headBudget == nil:
 		// The base's file judges this change, but once it merges no
 		// budget is in force: the reviewer must see that.
-		problems = append(problems, fmt.Sprintf("%s is removed in this change: it is judged by %s's, and after it merges no budget file is in force", bpath, rg.BaseRef))
+		notes = append(notes, fmt.Sprintf("%s is removed in this change: it is judged by %s's, and after it merges no budget file is in force", bpath, rg.BaseRef))
+	case baseBudget != nil && headBudget != nil:
+		both = true
 	}
 	if inForce == nil {
 		return nil, nil, &BudgetFileError{Err: fmt.Errorf("no budget file: %s is in neither %s nor %s (write one with loadline init, or name it with --budget)", bpath, rg.BaseRef, rg.HeadRef)}
 	}
-	// A model is a file with a model extension; a rule's glob chooses
-	// among them. A folder glob ("models/**") also matches the notes and
-	// external data beside the models, which are no models to measure.
-	want := func(p string) bool {
-		// TFLite files are judged only where a rule names them: reading
-		// them is not built yet, and a model no one budgets should not
-		// fail every change that touches it.
-		if strings.EqualFold(path.Ext(p), ".tflite") && len(inForce.Match(p)) == 0 {
-			return false
-		}
-		return p != bpath && IsModelPath(p)
+	files := []*budget.File{inForce}
+	if both {
+		files = []*budget.File{baseBudget, headBudget}
 	}
+	want := judged(bpath, files...)
 	all, err := Diff(rg.Base, rg.Head, func(p string) bool { return p != bpath })
 	if err != nil {
 		return nil, nil, err
@@ -343,6 +349,29 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	changes, err := withDataChanges(rg, all, want)
 	if err != nil {
 		return nil, nil, err
+	}
+	tree, err := rg.Head.Paths()
+	if err != nil {
+		return nil, nil, err
+	}
+	var budgetChanges []budget.BudgetChange
+	if baseBudget != nil && headBudget != nil {
+		budgetChanges = budget.Diff(baseBudget, headBudget)
+	}
+	// A change to the budget file judges again every model its changed
+	// rules, devices or waivers concern, changed by this change or not: a
+	// tightened limit that an unchanged model breaks shows on this change.
+	if len(budgetChanges) > 0 {
+		listed := map[string]bool{}
+		for _, c := range changes {
+			listed[c.Path] = true
+		}
+		for _, p := range tree {
+			if !listed[p] && want(p) && concerns(budgetChanges, baseBudget, headBudget, p) {
+				h, _ := rg.Head.Hash(p)
+				changes = append(changes, FileChange{Path: p, Kind: string(budget.Unchanged), OldHash: h, NewHash: h})
+			}
+		}
 	}
 	if o.Progress != nil && len(changes) > 0 {
 		// The report names the revisions; the progress line does not repeat them.
@@ -359,8 +388,7 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	dimsFor := func(p string) map[string]int64 {
 		// Rules that disagree on a dim are reported by Evaluate, which
 		// fails the model; measure it with what the rules give meanwhile.
-		d, _ := inForce.Dims(p)
-		return d
+		return dimsOf(p, files...)
 	}
 	for i, c := range changes {
 		pairs[i] = pair{-1, -1}
@@ -370,7 +398,7 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 			jobs = append(jobs, blobJob{rg.Head, c.Path})
 			dims = append(dims, dimsFor(rulePath))
 		}
-		if c.Kind != "added" {
+		if c.Kind != "added" && c.Kind != string(budget.Unchanged) {
 			old := c.Path
 			if c.OldPath != "" {
 				old = c.OldPath
@@ -382,30 +410,11 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 			dims = append(dims, dimsFor(rulePath))
 		}
 	}
-	metrics := make([]*measure.Metrics, len(jobs))
-	deps := make([][]string, len(jobs))
-	// Group jobs by dims so each group shares one pool.
-	groups := map[string][]int{}
-	for i, d := range dims {
-		k := fmt.Sprint(d)
-		groups[k] = append(groups[k], i)
-	}
-	for _, idx := range groups {
-		sub := make([]blobJob, len(idx))
-		for j, i := range idx {
-			sub[j] = jobs[i]
-		}
-		out := measureBlobs(sub, measure.Options{Dims: dims[idx[0]], Layers: true}, cache, stats)
-		for j, i := range idx {
-			metrics[i], deps[i] = out[j].Metrics, out[j].deps
-		}
-	}
+	metrics, deps := measureJobs(jobs, dims, cache, stats)
 	changes, pairs = dropUnreadData(changes, pairs, all, metrics, deps)
 	// A missing object is the environment's fault, not the model's.
-	for _, m := range metrics {
-		if m != nil && m.Error != "" && isEnvMessage(m.Error) {
-			return nil, nil, &EnvError{Err: errors.New(m.Error)}
-		}
+	if err := envError(metrics); err != nil {
+		return nil, nil, err
 	}
 	inputs := make([]budget.Input, len(changes))
 	for i, c := range changes {
@@ -429,12 +438,17 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	if today.IsZero() {
 		today = time.Now()
 	}
-	tree, err := rg.Head.Paths()
-	if err != nil {
-		return nil, nil, err
+	eo := budget.EvalOptions{Strict: o.Strict, Today: today, Tree: tree}
+	var res *budget.Result
+	if both {
+		res = budget.Stricter(baseBudget.Evaluate(inputs, eo), headBudget.Evaluate(inputs, eo))
+	} else {
+		res = inForce.Evaluate(inputs, eo)
 	}
-	res := inForce.Evaluate(inputs, budget.EvalOptions{Strict: o.Strict, Today: today, Tree: tree})
 	for i := range res.Models {
+		if res.Models[i].Change == budget.Unchanged {
+			res.Models[i].Notes = append(res.Models[i].Notes, "not changed: judged again because the budget file's rules for it changed")
+		}
 		for j, c := range changes {
 			if c.Path == res.Models[i].Path && pairs[j].head >= 0 {
 				res.Models[i].Detail = DetailOf(metrics[pairs[j].head])
@@ -443,14 +457,143 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	}
 	res.Base = budget.Revision{Ref: rg.BaseRef, Commit: commitOf(rg.Base)}
 	res.Head = budget.Revision{Ref: rg.HeadRef, Commit: commitOf(rg.Head)}
-	if baseBudget != nil && headBudget != nil {
-		res.BudgetChanges = budget.Diff(baseBudget, headBudget)
-	}
+	res.BudgetChanges = budgetChanges
 	if res.BudgetChanges == nil {
 		res.BudgetChanges = []budget.BudgetChange{}
 	}
-	res.Problems = append(problems, res.Problems...)
+	if both {
+		notes = append(notes, wayOut(bpath, res.BudgetChanges)...)
+	}
+	res.Notes = notes
+	res.Problems = append(append([]string{}, notes...), res.Problems...)
 	return res, stats, nil
+}
+
+// wayOut says which of a change's own budget edits are not in force while
+// it is judged (those that loosen the gate; tightenings are in force at
+// once) and how teams land such a change.
+func wayOut(bpath string, changes []budget.BudgetChange) []string {
+	var loose []string
+	for _, c := range changes {
+		if c.Loosened {
+			k := c.Key
+			if c.Path != "" {
+				k += " (" + c.Path + ")"
+			}
+			loose = append(loose, k)
+		}
+	}
+	if len(loose) == 0 {
+		return nil
+	}
+	return []string{fmt.Sprintf("this change edits %s; each limit in force is the stricter of the base's and this change's, so these edits, which loosen the gate, are not in force until it merges: %s. To land them: merge the budget edit on its own first and the models after it (two steps, each reviewed), or have whoever runs CI pass --trust-head-budget for this change",
+		bpath, strings.Join(loose, ", "))}
+}
+
+// judged returns which paths are models to judge: files with a model
+// extension other than the budget file. TFLite files are judged only where
+// a rule of one of the files names them, so that a .tflite file no one
+// budgets does not fail every change that touches it. A folder glob
+// ("models/**") also matches the notes and external data beside the
+// models, which are no models to measure.
+func judged(bpath string, files ...*budget.File) func(string) bool {
+	return func(p string) bool {
+		if p == bpath || !IsModelPath(p) {
+			return false
+		}
+		if strings.EqualFold(path.Ext(p), ".tflite") {
+			for _, f := range files {
+				if len(f.Match(p)) > 0 {
+					return true
+				}
+			}
+			return false
+		}
+		return true
+	}
+}
+
+// dimsOf returns the dims a model is measured with: the first file's
+// value of each dim, then the next file's for dims it leaves unbound (the
+// base's before the head's, so that a change cannot shrink a dim to pass,
+// but can bind one a new model needs).
+func dimsOf(p string, files ...*budget.File) map[string]int64 {
+	out := map[string]int64{}
+	for _, f := range files {
+		d, _ := f.Dims(p)
+		for k, v := range d {
+			if _, ok := out[k]; !ok {
+				out[k] = v
+			}
+		}
+	}
+	return out
+}
+
+// concerns reports whether one of the budget changes can change how the
+// model at p is judged: a change in a rule or waiver whose glob matches p,
+// or in the device of a rule that matches p, in either file.
+func concerns(changes []budget.BudgetChange, base, head *budget.File, p string) bool {
+	devices := map[string]bool{}
+	for _, f := range []*budget.File{base, head} {
+		for _, r := range f.Match(p) {
+			devices[r.Device] = true
+		}
+	}
+	for _, c := range changes {
+		if c.Path != "" {
+			if ok, _ := doublestar.Match(c.Path, p); ok {
+				return true
+			}
+			continue
+		}
+		for d := range devices {
+			if c.Key == "devices."+d || strings.HasPrefix(c.Key, "devices."+d+".") {
+				return true
+			}
+		}
+	}
+	return false
+}
+
+// measureJobs measures blobs, each with its dims, sharing one pool per set
+// of dims, with the cache; it returns each job's figures and the files
+// besides the model that its measurement read.
+func measureJobs(jobs []blobJob, dims []map[string]int64, cache *Cache, stats *Stats) ([]*measure.Metrics, [][]string) {
+	metrics := make([]*measure.Metrics, len(jobs))
+	deps := make([][]string, len(jobs))
+	groups := map[string][]int{}
+	var order []string
+	for i, d := range dims {
+		k := fmt.Sprint(d)
+		if _, ok := groups[k]; !ok {
+			order = append(order, k)
+		}
+		groups[k] = append(groups[k], i)
+	}
+	for _, k := range order {
+		idx := groups[k]
+		sub := make([]blobJob, len(idx))
+		for j, i := range idx {
+			sub[j] = jobs[i]
+		}
+		out := measureBlobs(sub, measure.Options{Dims: dims[idx[0]], Layers: true}, cache, stats)
+		for j, i := range idx {
+			metrics[i], deps[i] = out[j].Metrics, out[j].deps
+		}
+	}
+	return metrics, deps
+}
+
+// envError is the first measurement error caused by a missing object: the
+// environment's fault, not the model's.
+func envError(metrics []*measure.Metrics) error {
+	for _, m := range metrics {
+		if m != nil && m.Error != "" && isEnvMessage(m.Error) {
+			return &EnvError{Err: errors.New(m.Error)}
+		}
+	}
+	return nil
 }
 
 // pair indexes a change's head and base jobs; -1 when the side is absent.

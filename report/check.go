@@ -122,6 +122,9 @@ func summary(r *budget.Result) string {
 		return plural(len(r.Models), "model", "models") + " compared; no budget file, so figures and deltas only, nothing judged"
 	}
 	s := strings.Join(count(r.Models).phrases(), ", ")
+	if r.Audit && len(r.Models) == 0 {
+		s = "no models at this revision"
+	}
 	if n := len(findings(r)); n > 0 {
 		s += "; " + plural(n, "problem", "problems") + " in the budget file"
 	}
@@ -152,6 +155,15 @@ func verdict(r *budget.Result) budget.Status {
 		}
 	}
 	return v
+}
+
+// rangeText names what was judged: "base main @ 3f2a9c1 → head HEAD @
+// 9b1c2d3", or for an audit "every model at v1.2 @ 3f2a9c1".
+func rangeText(r *budget.Result) string {
+	if r.Audit {
+		return "every model at " + revisionText(r.Head)
+	}
+	return "base " + revisionText(r.Base) + " → head " + revisionText(r.Head)
 }
 
 // revisionText names a revision for people: "origin/main @ 3f2a9c1".
@@ -343,8 +355,14 @@ func findings(r *budget.Result) []finding {
 		}
 		return out
 	}
+	isNote := map[string]bool{}
+	for _, n := range r.Notes {
+		isNote[n] = true
+	}
 	for _, p := range r.Problems {
-		out = append(out, finding{budget.Warn, oneLine(p)})
+		if !isNote[p] { // notes have their own section
+			out = append(out, finding{budget.Warn, oneLine(p)})
+		}
 	}
 	return out
 }

@@ -126,8 +126,12 @@ func renderMarkdown(r *budget.Result, opt MarkdownOptions, lim mdLimits) []byte 
 		headline = "✔ loadline: within budget"
 	}
 	fmt.Fprintf(&b, "## %s\n\n", headline)
-	fmt.Fprintf(&b, "%s. Head %s against base %s.\n",
-		capitalise(summary(r)), mdCode(revisionText(r.Head)), mdCode(revisionText(r.Base)))
+	if r.Audit {
+		fmt.Fprintf(&b, "%s. Every model at %s.\n", capitalise(summary(r)), mdCode(revisionText(r.Head)))
+	} else {
+		fmt.Fprintf(&b, "%s. Head %s against base %s.\n",
+			capitalise(summary(r)), mdCode(revisionText(r.Head)), mdCode(revisionText(r.Base)))
+	}
 
 	// The table: models that changed or need attention, worst first.
 	var shown, removed []*budget.ModelResult
@@ -146,7 +150,7 @@ func renderMarkdown(r *budget.Result, opt MarkdownOptions, lim mdLimits) []byte 
 	for _, m := range models {
 		pass := m.Status == budget.Pass || m.Status == ""
 		switch {
-		case m.Change == budget.Unchanged && pass:
+		case m.Change == budget.Unchanged && pass && !r.Audit:
 			continue // counted in the headline, not news for this change
 		case m.Change == budget.Removed && len(m.Checks) == 0 && m.Error == "":
 			removed = append(removed, m)
@@ -170,7 +174,7 @@ func renderMarkdown(r *budget.Result, opt MarkdownOptions, lim mdLimits) []byte 
 			if m.Device != "" {
 				sub = append(sub, mdText(m.Device))
 			}
-			if n := changeNote(m); n != "" {
+			if n := changeNote(m); n != "" && !r.Audit {
 				sub = append(sub, mdText(n))
 			}
 			if len(sub) > 0 {
@@ -291,6 +295,15 @@ func renderMarkdown(r *budget.Result, opt MarkdownOptions, lim mdLimits) []byte 
 				until += " (" + daysLeft(opt.Now, wv.Until) + ")"
 			}
 			rows = append(rows, fmt.Sprintf("| %s | %s | %s | %s |", mdCode(wv.Path), mdText(wv.Metric), until, mdText(oneLine(wv.Reason))))
+		}
+		writeCapped(&b, rows, lim.items)
+	}
+
+	if len(r.Notes) > 0 {
+		b.WriteString("\n### Notes\n\n")
+		var rows []string
+		for _, n := range r.Notes {
+			rows = append(rows, "- "+mdText(oneLine(n)))
 		}
 		writeCapped(&b, rows, lim.items)
 	}

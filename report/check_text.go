@@ -84,7 +84,7 @@ func CheckText(w io.Writer, r *budget.Result, opt TextOptions) error {
 	}
 	v := verdict(r)
 	p.printf("loadline: %s — %s\n", paint(ansiFor(v), statusWord(v)), summary(r))
-	p.printf("base %s → head %s\n", revisionText(r.Base), revisionText(r.Head))
+	p.printf("%s\n", rangeText(r))
 
 	models := ordered(r.Models)
 	var removed []string
@@ -101,7 +101,7 @@ func CheckText(w io.Writer, r *budget.Result, opt TextOptions) error {
 		if m.Device != "" {
 			sub = append(sub, "on "+m.Device)
 		}
-		if n := changeNote(m); n != "" {
+		if n := changeNote(m); n != "" && !r.Audit {
 			sub = append(sub, n)
 		}
 		var rows []*textRow
@@ -188,6 +188,12 @@ func CheckText(w io.Writer, r *budget.Result, opt TextOptions) error {
 		for i := range r.Waivers {
 			wv := &r.Waivers[i]
 			p.printf("  %s %s%s\n", wv.Path, waiverText(wv), lineNote(wv.Line))
+		}
+	}
+	if len(r.Notes) > 0 {
+		p.printf("\nnotes\n")
+		for _, n := range r.Notes {
+			p.printf("  %s\n", oneLine(n))
 		}
 	}
 	if fs := findings(r); len(fs) > 0 {

@@ -118,15 +118,18 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 	var rf renderFlags
 	var prePush, post, postRequired bool
 	cmd := &cobra.Command{
-		Use:   "check [--base REV] [--head REV | --staged | --pre-push] [--budget FILE] [--format text|markdown|json|junit] [--out FILE]",
+		Use:   "check [--base REV] [--head REV | --staged | --pre-push] [--all] [--budget FILE] [--format text|markdown|json|junit] [--out FILE]",
 		Short: "Judge the models a change touches against the budget file",
 		Long: "Finds the models that changed between base and head, measures both sides from git\n" +
 			"objects (never the working tree), and judges them against the budget file in force:\n" +
-			"the base revision's, so that a change cannot loosen its own gate (--trust-head-budget\n" +
-			"is the explicit way out). Base by default: the pull request's base from the CI\n" +
-			"environment, else the merge-base of HEAD with the default branch.\n\n" + checkConventions + "\n\n" + conventions,
+			"each limit is the stricter of the base's and the head's, so that a change can tighten\n" +
+			"its own gate but not loosen it (--trust-head-budget is the explicit way out). A change\n" +
+			"to the budget file judges again every model its changed rules concern. Base by\n" +
+			"default: the pull request's base from the CI environment, else the merge-base of HEAD\n" +
+			"with the default branch. --all judges every model at one revision instead.\n\n" + checkConventions + "\n\n" + conventions,
 		Example: "  loadline check                       # this branch against the default branch\n" +
 			"  loadline check --staged              # what git commit would record (pre-commit hook)\n" +
+			"  loadline check --all --head v1.4     # every model at a release tag\n" +
 			"  loadline check --base origin/main --format markdown --out report.md",
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
@@ -144,6 +147,9 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 			if prePush && (o.Base != "" || o.Head != "") {
 				return &exitError{exitUsage, errors.New("--pre-push takes base and head from git's pre-push input; it does not combine with --base or --head")}
 			}
+			if o.All && (o.Staged || prePush || o.Base != "") {
+				return &exitError{exitUsage, errors.New("--all judges every model at one revision (--head, default HEAD); it does not combine with --base, --staged or --pre-push")}
+			}
 			if prePush {
 				o.PrePush = stdin
 			}
@@ -152,7 +158,11 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 			if err != nil {
 				return pipelineExit(err)
 			}
-			fmt.Fprintln(stderr, "loadline: "+stats.Line(len(res.Models), "changed"))
+			what := "changed"
+			if o.All {
+				what = "judged"
+			}
+			fmt.Fprintln(stderr, "loadline: "+stats.Line(len(res.Models), what))
 			if post {
 				if err := postResult(res, stdout, stderr); err != nil && postRequired {
 					return &exitError{exitEnviron, err}
@@ -164,6 +174,7 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 	f := cmd.Flags()
 	f.StringVar(&o.Base, "base", "", "base revision (default: the pull request's base, else the merge-base with the default branch)")
 	f.StringVar(&o.Head, "head", "", "head revision (default HEAD)")
+	f.BoolVar(&o.All, "all", false, "judge every model at the head revision (--head, default HEAD) against that revision's budget file, not only the changed ones")
 	f.BoolVar(&o.Staged, "staged", false, "compare the staged files (the index) with HEAD, for a pre-commit hook")
 	f.BoolVar(&prePush, "pre-push", false, "check the commits being pushed, read from standard input as git's pre-push hook gives them")
 	f.StringVar(&o.BudgetFile, "budget", "", "budget file, a path from the repository root (default loadline.yaml)")

@@ -7,6 +7,8 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/loadline/loadline/internal/gittest"
 )
 
 // committedRepo makes a repository with budgetYAML (or the given budget)
@@ -176,5 +178,107 @@ func TestHookFromPathAndEscape(t *testing.T) {
 	c.Stderr = &stderr
 	if err := c.Run(); err == nil || !strings.Contains(stderr.String(), "not on this hook's PATH") || !strings.Contains(stderr.String(), "--no-verify") {
 		t.Errorf("off PATH: %v\n%s", err, stderr.String())
+	}
+}
+
+// teamBudget budgets the cam folder of gittest.TeamModels. Hand-worked
+// params (build.ConvClassifier: conv 3→w 3×3 with bias 28·w, Gemm w→4 with
+// bias 4·w+4): detect (w 8) 260, classify (w 16) 516.
+const teamBudget = `version: 1
+devices:
+  doorbell:
+    ram: 256KiB
+models:
+  - path: "models/cam/*.onnx"
+    device: doorbell
+    limits: {params: PARAMS}
+`
+
+// teamRepo commits the cam models of gittest.TeamModels with teamBudget at
+// the given params limit on main, then a commit that changes no model.
+func teamRepo(t *testing.T, params string) string {
+	t.Helper()
+	dir := newRepo(t)
+	for p, data := range gittest.TeamModels(t) {
+		if strings.HasPrefix(p, "models/cam/") {
+			writeFile(t, dir, p, data)
+		}
+	}
+	writeFile(t, dir, "loadline.yaml", []byte(strings.Replace(teamBudget, "PARAMS", params, 1)))
+	git(t, dir, "add", "-A")
+	git(t, dir, "commit", "-q", "-m", "models and budget")
+	writeFile(t, dir, "README.md", []byte("notes\n"))
+	git(t, dir, "add", "-A")
+	git(t, dir, "commit", "-q", "-m", "notes")
+	return dir
+}
+
+// TestCheckAllJudgesEveryModel: a change that touches no model judges
+// nothing; --all judges every model at the revision.
+func TestCheckAllJudgesEveryModel(t *testing.T) {
+	dir := teamRepo(t, "400")
+	if code, out, errs := inDir(t, dir, "check", "--base", "HEAD~1"); code != exitOK || !strings.Contains(out, "no models changed") {
+		t.Fatalf("change check: exit %d\n%s%s", code, out, errs)
+	}
+	code, out, errs := inDir(t, dir, "check", "--all", "--no-cache")
+	if code != exitBudget {
+		t.Fatalf("--all: exit %d, want 1 (classify's 516 params > 400)\n%s%s", code, out, errs)
+	}
+	for _, want := range []string{"every model at HEAD @ ", "1 model over budget, 1 within budget", "models/cam/classify.onnx: params 516 > limit 400 by 116", "models/cam/detect.onnx"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("--all output lacks %q:\n%s", want, out)
+		}
+	}
+	if !strings.Contains(errs, "loadline: 2 models judged; 0 of 2 figures from cache") {
+		t.Errorf("stderr:\n%s", errs)
+	}
+	// At an earlier revision, and never with a base.
+	if code, out, _ := inDir(t, dir, "check", "--all", "--head", "HEAD~1"); code != exitBudget || !strings.Contains(out, "every model at HEAD~1 @ ") {
+		t.Errorf("--all --head HEAD~1: exit %d\n%s", code, out)
+	}
+	if code, _, errs := inDir(t, dir, "check", "--all", "--base", "main"); code != exitUsage || !strings.Contains(errs, "does not combine") {
+		t.Errorf("--all --base: exit %d\n%s", code, errs)
+	}
+}
+
+// TestBudgetTighteningJudgesUnchangedModels: a pull request that only
+// tightens a limit is judged by the tighter limit at once, on every model
+// the rule covers, though none of them changed.
+func TestBudgetTighteningJudgesUnchangedModels(t *testing.T) {
+	dir := teamRepo(t, "600")
+	git(t, dir, "checkout", "-q", "-b", "tighten")
+	writeFile(t, dir, "loadline.yaml", []byte(strings.Replace(teamBudget, "PARAMS", "400", 1)))
+	git(t, dir, "commit", "-q", "-am", "params limit 400")
+	code, out, errs := inDir(t, dir, "check", "--base", "main")
+	if code != exitBudget {
+		t.Fatalf("exit %d, want 1: the tightened limit is in force on its own change\n%s%s", code, out, errs)
+	}
+	for _, want := range []string{"models/cam/classify.onnx: params 516 > limit 400", "not changed: judged again because the budget file's rules for it changed", "models[0].limits.params"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("output lacks %q:\n%s", want, out)
+		}
+	}
+}
+
+// TestBudgetLooseningNotInForce: a pull request that raises a limit is
+// still judged by the base's, and the report says which edits are not in
+// force and how to land them; --trust-head-budget applies them.
+func TestBudgetLooseningNotInForce(t *testing.T) {
+	dir := teamRepo(t, "400")
+	git(t, dir, "checkout", "-q", "-b", "loosen")
+	writeFile(t, dir, "loadline.yaml", []byte(strings.Replace(teamBudget, "PARAMS", "600", 1)))
+	git(t, dir, "commit", "-q", "-am", "params limit 600")
+	code, out, errs := inDir(t, dir, "check", "--base", "main")
+	if code != exitBudget {
+		t.Fatalf("exit %d, want 1: a change cannot loosen its own gate\n%s%s", code, out, errs)
+	}
+	for _, want := range []string{"params 516 > limit 400", "not in force until it merges: models[0].limits.params (models/cam/*.onnx)",
+		"two steps", "--trust-head-budget", "LOOSENED"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("output lacks %q:\n%s", want, out)
+		}
+	}
+	if code, out, errs := inDir(t, dir, "check", "--base", "main", "--trust-head-budget"); code != exitOK || !strings.Contains(out, "judged by the head's budget file") {
+		t.Errorf("--trust-head-budget: exit %d\n%s%s", code, out, errs)
 	}
 }
