@@ -2,6 +2,7 @@ package check
 
 import (
 	"fmt"
+	"io"
 	"time"
 
 	"github.com/loadline/loadline/budget"
@@ -36,47 +37,62 @@ func Audit(r *Repo, rev string, o Options) (*budget.Result, *Stats, error) {
 	if bf == nil {
 		return nil, nil, &BudgetFileError{Err: fmt.Errorf("no budget file: %s is not in %s (write one with loadline init, or name it with --budget)", bpath, rev)}
 	}
-	tree, err := snap.Paths()
+	var cache *Cache
+	if !o.NoCache {
+		cache = NewCache(r)
+	}
+	today := o.Today
+	if today.IsZero() {
+		today = time.Now()
+	}
+	stats := &Stats{}
+	res, err := judgeSnapshot(snap, bf, bpath, budget.EvalOptions{Strict: o.Strict, Today: today}, cache, stats, o.Progress)
 	if err != nil {
 		return nil, nil, err
 	}
-	want := judged(bpath, bf)
+	res.Audit = true
+	res.Head = budget.Revision{Ref: rev, Commit: commitOf(snap)}
+	return res, stats, nil
+}
+
+// judgeSnapshot measures every model of a snapshot (through the cache)
+// and judges each, unchanged, against the budget file f: the state of a
+// revision, not a change. A rule that matches no file of the snapshot is
+// a warning. It is the core of Audit (check --all) and of the sign-off's
+// every model at every release.
+func judgeSnapshot(s *Snapshot, f *budget.File, bpath string, eo budget.EvalOptions, cache *Cache, stats *Stats, progress io.Writer) (*budget.Result, error) {
+	tree, err := s.Paths()
+	if err != nil {
+		return nil, err
+	}
+	want := judged(bpath, f)
 	var paths []string
 	for _, p := range tree {
 		if want(p) {
 			paths = append(paths, p)
 		}
 	}
-	if o.Progress != nil && len(paths) > 0 {
-		fmt.Fprintf(o.Progress, "loadline: measuring %s\n", plural(len(paths), "model", "models"))
+	if progress != nil && len(paths) > 0 {
+		fmt.Fprintf(progress, "loadline: measuring %s\n", plural(len(paths), "model", "models"))
 	}
-	var cache *Cache
-	if !o.NoCache {
-		cache = NewCache(r)
-	}
-	stats := &Stats{}
 	jobs := make([]blobJob, len(paths))
 	dims := make([]map[string]int64, len(paths))
 	for i, p := range paths {
-		jobs[i], dims[i] = blobJob{snap, p}, dimsOf(p, bf)
+		jobs[i], dims[i] = blobJob{s, p}, dimsOf(p, f)
 	}
 	metrics, _ := measureJobs(jobs, dims, cache, stats)
 	if err := envError(metrics); err != nil {
-		return nil, nil, err
+		return nil, err
 	}
 	inputs := make([]budget.Input, len(paths))
 	for i, p := range paths {
 		inputs[i] = budget.Input{Path: p, Change: budget.Unchanged, Head: Figures(metrics[i]), Error: metrics[i].Error}
 	}
-	today := o.Today
-	if today.IsZero() {
-		today = time.Now()
-	}
-	res := bf.Evaluate(inputs, budget.EvalOptions{Strict: o.Strict, Today: today, Tree: tree})
+	eo.Tree = tree
+	res := f.Evaluate(inputs, eo)
 	for i := range res.Models {
 		res.Models[i].Detail = DetailOf(metrics[i])
 	}
 	res.Audit = true
-	res.Head = budget.Revision{Ref: rev, Commit: commitOf(snap)}
-	return res, stats, nil
+	return res, nil
 }

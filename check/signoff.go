@@ -14,7 +14,6 @@ import (
 	"github.com/go-git/go-git/v5/plumbing/object"
 
 	"github.com/loadline/loadline/budget"
-	"github.com/loadline/loadline/measure"
 )
 
 // SignoffOptions are the choices of `loadline signoff`.
@@ -155,68 +154,9 @@ func oneLineErr(err error) string {
 // judgeAll measures every model of a snapshot and judges each, unchanged,
 // against the budget file: the state of a revision, not a change.
 // Waivers expire by the revision's own date, as they stood when it was
-// made.
+// made. It is the audit's core (judgeSnapshot), as check --all runs it.
 func judgeAll(s *Snapshot, f *budget.File, bpath string, day time.Time, strict bool, cache *Cache, stats *Stats) (*budget.Result, error) {
-	paths, err := s.Paths()
-	if err != nil {
-		return nil, err
-	}
-	var models []string
-	for _, p := range paths {
-		if p == bpath || !IsModelPath(p) {
-			continue
-		}
-		// A TFLite file is a model only where a rule names it, as in a
-		// change check.
-		if strings.EqualFold(path.Ext(p), ".tflite") && len(f.Match(p)) == 0 {
-			continue
-		}
-		models = append(models, p)
-	}
-	metrics := make([]*measure.Metrics, len(models))
-	groups := map[string][]int{}
-	dims := make([]map[string]int64, len(models))
-	for i, p := range models {
-		dims[i], _ = f.Dims(p)
-		k := fmt.Sprint(dims[i])
-		groups[k] = append(groups[k], i)
-	}
-	keys := make([]string, 0, len(groups))
-	for k := range groups {
-		keys = append(keys, k)
-	}
-	sort.Strings(keys)
-	for _, k := range keys {
-		idx := groups[k]
-		jobs := make([]blobJob, len(idx))
-		for j, i := range idx {
-			jobs[j] = blobJob{s, models[i]}
-		}
-		res := measureBlobs(jobs, measure.Options{Dims: dims[idx[0]], Layers: true}, cache, stats)
-		for j, i := range idx {
-			metrics[i] = res[j].Metrics
-		}
-	}
-	inputs := make([]budget.Input, len(models))
-	for i, p := range models {
-		m := metrics[i]
-		if m != nil && m.Error != "" && isEnvMessage(m.Error) {
-			return nil, &EnvError{Err: errors.New(m.Error)}
-		}
-		inputs[i] = budget.Input{Path: p, Change: budget.Unchanged, Head: Figures(m)}
-		if m != nil && m.Error != "" {
-			inputs[i].Error = m.Error
-		}
-	}
-	res := f.Evaluate(inputs, budget.EvalOptions{Strict: strict, Today: day})
-	for i := range res.Models {
-		for j, p := range models {
-			if p == res.Models[i].Path {
-				res.Models[i].Detail = DetailOf(metrics[j])
-			}
-		}
-	}
-	return res, nil
+	return judgeSnapshot(s, f, bpath, budget.EvalOptions{Strict: strict, Today: day}, cache, stats, nil)
 }
 
 type releaseTag struct {
