@@ -47,8 +47,14 @@ func FuzzParse(f *testing.F) {
 		if len(res.Models) != len(inputs) {
 			t.Fatalf("%d results for %d inputs", len(res.Models), len(inputs))
 		}
-		Diff(file, file)
-		Diff(nil, file)
+		if changes := Diff(file, file); len(changes) != 0 {
+			t.Fatalf("a file compared with itself has changes: %+v", changes)
+		}
+		for _, c := range Diff(nil, file) {
+			if c.Key == "" {
+				t.Fatalf("a change without a key: %+v", c)
+			}
+		}
 	})
 }
 

@@ -156,8 +156,10 @@ func TestHostileRunawayLoop(t *testing.T) {
 }
 
 // FuzzInfer decodes arbitrary bytes as an ONNX model and, when that
-// succeeds, infers shapes: neither may panic. Seeded from the backend test
-// suite when it is installed.
+// succeeds, infers shapes: neither may panic. When inference succeeds,
+// Measure must too (unless a weight's bytes cannot be read, which it
+// reports naming the weight), with no negative figure. Seeded from the
+// backend test suite when it is installed.
 func FuzzInfer(f *testing.F) {
 	if dir := corpus.Dir(); dir != "" {
 		for _, name := range []string{"node/test_reshape_reordered_all_dims", "node/test_loop11", "node/test_if", "node/test_conv_with_strides_padding",
@@ -174,10 +176,31 @@ func FuzzInfer(f *testing.F) {
 		if err != nil {
 			return
 		}
-		res, err := Infer(m, InferOptions{})
-		if err == nil {
-			Measure(m, int64(len(data)), Options{})
-			_ = res
+		if _, err := Infer(m, InferOptions{}); err != nil {
+			return
+		}
+		got, err := Measure(m, int64(len(data)), Options{})
+		if err != nil {
+			if !strings.HasPrefix(err.Error(), "weight \"") {
+				t.Fatalf("inference succeeded but Measure failed: %v", err)
+			}
+			return
+		}
+		for _, f := range []struct {
+			name string
+			v    int64
+		}{
+			{"file_bytes", got.FileBytes}, {"external_bytes", got.ExternalBytes}, {"params", got.Params}, {"param_bytes", got.ParamBytes},
+			{"macs", got.MACs}, {"flops", got.FLOPs},
+			{"memory.graph.peak_live_bytes", got.Memory.Graph.PeakLiveBytes}, {"memory.graph.arena_bytes", got.Memory.Graph.ArenaBytes},
+			{"memory.deployed.peak_live_bytes", got.Memory.Deployed.PeakLiveBytes}, {"memory.deployed.arena_bytes", got.Memory.Deployed.ArenaBytes},
+		} {
+			if f.v < 0 {
+				t.Errorf("%s is %d", f.name, f.v)
+			}
+		}
+		if got.Sparsity != -1 && (got.Sparsity < 0 || got.Sparsity > 1) {
+			t.Errorf("sparsity is %g", got.Sparsity)
 		}
 	})
 }
@@ -357,8 +380,17 @@ func TestHostileNodeWithoutOutputs(t *testing.T) {
 				},
 				Outputs: []*model.ValueInfo{{Name: "y"}},
 			}
-			if _, err := Infer(graphModel(g), InferOptions{}); err != nil {
-				t.Logf("error (fine): %v", err)
+			res, err := Infer(graphModel(g), InferOptions{})
+			if err != nil {
+				t.Fatalf("Infer: %v", err)
+			}
+			// The node is listed as unresolved with the reason, and the
+			// graph around it is still inferred: y is x's copy.
+			if len(res.Unresolved) != 1 || res.Unresolved[0].Node != "n" || res.Unresolved[0].Reason != "the node declares no outputs" {
+				t.Errorf("unresolved %+v, want node n: the node declares no outputs", res.Unresolved)
+			}
+			if got := res.Values["y"].String(); got != "int64[4]" {
+				t.Errorf("y is %s, want int64[4]", got)
 			}
 		})
 	}

@@ -650,10 +650,12 @@ func TestMemoryCorpus(t *testing.T) {
 	for _, path := range paths {
 		sc, err := prepareCase(t, path)
 		if err != nil {
-			continue // the shape score reports these
+			t.Errorf("%s: %v", shortPath(path), err)
+			continue
 		}
 		inf, err := Infer(sc.model, InferOptions{})
 		if err != nil {
+			t.Errorf("%s: %v", shortPath(path), err)
 			continue
 		}
 		planned++
@@ -684,4 +686,7 @@ func TestMemoryCorpus(t *testing.T) {
 		}
 	}
 	t.Logf("%d of %d corpus models planned, %d with every tensor sized, %d with subgraphs", planned, len(paths), complete, withBodies)
+	if planned != len(paths) {
+		t.Errorf("planned %d of %d corpus models; every one must be", planned, len(paths))
+	}
 }
