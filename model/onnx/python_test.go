@@ -47,6 +47,7 @@ type pyTensor struct {
 	Vals  []string `json:"vals"`
 	B64   []string `json:"b64"`
 	Skip  string   `json:"skip"`
+	Whole string   `json:"sha256"` // every value, hashed (onnx_dump.py whole())
 	Error string   `json:"error"`
 	Load  string   `json:"load_error"`
 }
@@ -62,6 +63,7 @@ type pyModel struct {
 	Constants    []pyTensor    `json:"constants"`
 	Inputs       []pyValueInfo `json:"inputs"`
 	Outputs      []pyValueInfo `json:"outputs"`
+	Lines        []string      `json:"lines"` // the canonical text (canonical_test.go)
 }
 
 // runDump runs testdata/onnx_dump.py over requests ("model PATH" or
@@ -140,11 +142,15 @@ func compareValueInfo(vi *model.ValueInfo, py pyValueInfo) string {
 	return ""
 }
 
-// compareTensor compares name, dtype, dims and the first values with what
+// compareTensor compares name, dtype, dims, a hash of all the values and
+// the first values one by one (for a readable message) with what
 // numpy_helper.to_array gave. It returns which kind of values it compared.
 func compareTensor(tn *model.Tensor, py pyTensor) (string, error) {
 	if tn.Name != py.Name || int32(tn.DType) != py.DType || fmt.Sprint(tn.Dims) != fmt.Sprint(py.Dims) {
 		return "", fmt.Errorf("tensor %q %s%v, python %q dtype %d %v", tn.Name, tn.DType, tn.Dims, py.Name, py.DType, py.Dims)
+	}
+	if got := wholeSHA256(tn); got != py.Whole {
+		return "", fmt.Errorf("tensor %q (%s, %s): the values hash to %s, python %s", tn.Name, tn.DType, encodingField(tn.Data.Encoding), got, py.Whole)
 	}
 	switch {
 	case py.Skip != "":
@@ -209,10 +215,14 @@ func decodeJSON(line []byte, v any) error {
 
 // TestAgainstPythonONNX compares the Go decode of every corpus model (ONNX
 // backend test suite, Debian libonnx-testdata) with what ONNX's own Python
-// reader (Debian python3-onnx: onnx.load, numpy_helper.to_array) sees: node
-// count, op types in order, initializer names, dtypes, dims and first
-// values, graph input and output names, elem types and dims, opset imports.
-// It then does the same for every tensor .pb file (onnx.load_tensor).
+// reader (Debian python3-onnx: onnx.load, numpy_helper.to_array) sees: IR
+// version and opset imports; then the whole graph in a canonical text
+// (canonical_test.go, testdata/onnx_dump.py): every node's name, domain, op
+// type, input and output names and attributes, subgraphs included, every
+// initializer and Constant tensor's name, dtype, dims and all its values
+// (hashed), graph inputs, outputs and value_info with their types, and the
+// model-local functions. It then does the same for every tensor .pb file
+// (onnx.load_tensor).
 func TestAgainstPythonONNX(t *testing.T) {
 	paths := corpus.Models(t)
 	requirePython(t)
@@ -239,6 +249,10 @@ func TestAgainstPythonONNX(t *testing.T) {
 		if msg := compareModel(m, &py); msg != "" {
 			t.Errorf("%s: %s", paths[i], msg)
 		}
+		if msg := compareLines(canonicalModel(m), py.Lines); msg != "" {
+			t.Errorf("%s: the canonical text differs at %s", paths[i], msg)
+		}
+		compared["canonical lines"] += len(py.Lines)
 		for j, ti := range m.Graph.Initializers {
 			kind, err := compareTensor(ti, py.Initializers[j])
 			if err != nil {
