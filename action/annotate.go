@@ -8,6 +8,7 @@ import (
 	"strings"
 
 	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/internal/display"
 )
 
 // Annotation is one workflow annotation: a message GitHub shows on a file
@@ -60,8 +61,15 @@ func Annotations(res *budget.Result) []Annotation {
 	if res == nil {
 		return nil
 	}
+	// The file property is the path as git names it, for GitHub to find
+	// the file; the title and message are for people and show every
+	// outside string escaped. A path that needs escaping (a control
+	// character, "##[", a leading "::") gets no file property: its
+	// annotation is on the run, naming the path escaped in the message.
+	shown := display.Copy(res)
 	var out []Annotation
-	for _, m := range res.Models {
+	for i := range shown.Models {
+		m := &shown.Models[i]
 		var level string
 		switch {
 		case m.Error != "" || m.Status == budget.Fail:
@@ -97,7 +105,12 @@ func Annotations(res *budget.Result) []Annotation {
 		if len(lines) == 0 {
 			lines = append(lines, "budget verdict: "+string(m.Status))
 		}
-		out = append(out, Annotation{Level: level, File: m.Path, Title: title, Message: strings.Join(lines, "\n")})
+		file := res.Models[i].Path
+		if file != m.Path {
+			file = ""
+			lines = append([]string{m.Path + ":"}, lines...)
+		}
+		out = append(out, Annotation{Level: level, File: file, Title: title, Message: strings.Join(lines, "\n")})
 	}
 	return out
 }

@@ -338,6 +338,15 @@ func (s *Snapshot) notThere(p string) error {
 	if _, link, ok := s.entry(p); ok && link {
 		return fmt.Errorf("%s at %s is a symbolic link that dangles, loops or leaves the repository: point it at a file inside the repository", p, s.Label)
 	}
+	if s.tree != nil {
+		s.treeMu.Lock()
+		_, err := s.tree.FindEntry(p)
+		s.treeMu.Unlock()
+		if err != nil && !errors.Is(err, object.ErrEntryNotFound) && !errors.Is(err, object.ErrDirectoryNotFound) {
+			// go-git refuses some names git stores (control characters).
+			return fmt.Errorf("%s at %s cannot be read: %w", p, s.Label, err)
+		}
+	}
 	return fmt.Errorf("%s: not in %s", p, s.Label)
 }
 

@@ -1,10 +1,12 @@
 package report
 
 import (
+	"bytes"
 	"encoding/json"
 	"io"
 
 	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/internal/display"
 )
 
 // CheckJSON writes the loadline.check/v1 document: the schema name, then
@@ -31,10 +33,17 @@ func CheckJSON(w io.Writer, r *budget.Result) error {
 		Schema string `json:"schema"`
 		*budget.Result
 	}{CheckSchema, &out}
-	enc := json.NewEncoder(w)
+	var buf bytes.Buffer
+	enc := json.NewEncoder(&buf)
 	enc.SetIndent("", "  ")
 	enc.SetEscapeHTML(false) // reasons read "ram 498 KiB > limit …", not "\u003e"
-	return enc.Encode(doc)
+	if err := enc.Encode(doc); err != nil {
+		return err
+	}
+	// Paths stay exactly as git names them; only the CI command opener
+	// is written in another JSON spelling of the same string.
+	_, err := w.Write(display.GuardJSON(buf.Bytes()))
+	return err
 }
 
 func orEmpty[T any](s []T) []T {

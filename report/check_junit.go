@@ -7,6 +7,7 @@ import (
 	"strings"
 
 	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/internal/display"
 )
 
 // CheckJUnit writes the result as JUnit XML for CI test views: one
@@ -20,6 +21,7 @@ import (
 // failing finding (an expired waiver, rules that disagree) a <failure>, a
 // warning a passing case with the problem in <system-out>.
 func CheckJUnit(w io.Writer, r *budget.Result) error {
+	r = display.Copy(r) // paths and names from outside, escaped
 	doc := junitSuites{Name: "loadline check", Time: "0"}
 	for _, m := range ordered(r.Models) {
 		s := junitSuite{Name: m.Path}

@@ -204,7 +204,8 @@ func TestCheckJUnitMany(t *testing.T) {
 }
 
 // TestCheckJUnitEscapes puts markup in a path and a reason: the reader must
-// get them back unchanged.
+// get them back unchanged, but for the line break, shown escaped as every
+// control character from outside is.
 func TestCheckJUnitEscapes(t *testing.T) {
 	path := `models/<b>&"quoted"]]>.onnx`
 	reason := "over by 5 KiB <script>alert(1)</script> & more\nsecond line"
@@ -223,7 +224,7 @@ func TestCheckJUnitEscapes(t *testing.T) {
 	if len(suites) != 1 || suites[0].Name != path || len(suites[0].Tests) != 1 {
 		t.Fatalf("suites %+v", suites)
 	}
-	if got := suites[0].Tests[0].Message; got != "over by 5 KiB <script>alert(1)</script> & more second line" {
+	if got := suites[0].Tests[0].Message; got != `over by 5 KiB <script>alert(1)</script> & more\nsecond line` {
 		t.Errorf("message %q", got)
 	}
 }

@@ -12,6 +12,7 @@ import (
 	"unicode/utf8"
 
 	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/internal/display"
 )
 
 // MarkdownLimit is the most characters CheckMarkdown writes by default: a
@@ -49,6 +50,7 @@ const (
 // problems, and a footer on how the figures were computed. The document
 // stays within opt.MaxChars however many models the result holds.
 func CheckMarkdown(w io.Writer, r *budget.Result, opt MarkdownOptions) error {
+	r = display.Copy(r) // paths and names from outside, escaped
 	limit := opt.MaxChars
 	if limit <= 0 {
 		limit = MarkdownLimit

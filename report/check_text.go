@@ -8,6 +8,7 @@ import (
 	"unicode/utf8"
 
 	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/internal/display"
 )
 
 // TextOptions choose how CheckText writes.
@@ -75,6 +76,7 @@ func statusWord(s budget.Status) string {
 // that did not simply pass, budget-file changes, waivers in force and
 // problems.
 func CheckText(w io.Writer, r *budget.Result, opt TextOptions) error {
+	r = display.Copy(r) // paths and names from outside, escaped
 	p := &printer{w: w}
 	paint := func(code, s string) string {
 		if !opt.Color || code == "" || s == "" {

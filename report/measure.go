@@ -3,6 +3,7 @@
 package report
 
 import (
+	"bytes"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -10,6 +11,7 @@ import (
 	"strings"
 	"text/tabwriter"
 
+	"github.com/loadline/loadline/internal/display"
 	"github.com/loadline/loadline/measure"
 )
 
@@ -25,14 +27,20 @@ func MeasureJSON(w io.Writer, entries []*measure.Metrics) error {
 	if doc.Models == nil {
 		doc.Models = []*measure.Metrics{}
 	}
-	enc := json.NewEncoder(w)
+	var buf bytes.Buffer
+	enc := json.NewEncoder(&buf)
 	enc.SetIndent("", "  ")
-	return enc.Encode(doc)
+	if err := enc.Encode(doc); err != nil {
+		return err
+	}
+	_, err := w.Write(display.GuardJSON(buf.Bytes()))
+	return err
 }
 
 // MeasureText writes one block per model: its figures in units people read,
 // its inputs and outputs, and the nodes whose shapes stayed unknown.
 func MeasureText(w io.Writer, entries []*measure.Metrics) error {
+	entries = display.Copy(entries) // paths and names from outside, escaped
 	for i, m := range entries {
 		if i > 0 {
 			fmt.Fprintln(w)

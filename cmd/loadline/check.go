@@ -16,6 +16,7 @@ import (
 	"github.com/loadline/loadline/action"
 	"github.com/loadline/loadline/budget"
 	"github.com/loadline/loadline/check"
+	"github.com/loadline/loadline/internal/display"
 	"github.com/loadline/loadline/report"
 )
 
@@ -203,13 +204,13 @@ func postResult(res *budget.Result, stdout, stderr io.Writer) error {
 	}
 	warnings, err := poster.Post(context.Background(), body.String(), res)
 	for _, w := range warnings {
-		fmt.Fprintln(stderr, "loadline: warning:", w)
+		fmt.Fprintln(stderr, "loadline: warning:", display.Escape(w))
 	}
 	switch {
 	case errors.Is(err, action.ErrNothingPosted):
-		fmt.Fprintln(stderr, "loadline:", err)
+		sayError(stderr, "loadline: ", err)
 	case err != nil:
-		fmt.Fprintln(stderr, "loadline: posting the report failed (the verdict stands):", err)
+		sayError(stderr, "loadline: posting the report failed (the verdict stands): ", err)
 	}
 	return err
 }
@@ -334,7 +335,7 @@ func newHookCmd(stdout io.Writer) *cobra.Command {
 			if err != nil {
 				return hookExit(err)
 			}
-			fmt.Fprintln(stdout, "installed", p)
+			fmt.Fprintln(stdout, "installed", display.Escape(p))
 			return nil
 		},
 	}
@@ -355,7 +356,7 @@ func newHookCmd(stdout io.Writer) *cobra.Command {
 			if err != nil {
 				return hookExit(err)
 			}
-			fmt.Fprintln(stdout, "removed", p)
+			fmt.Fprintln(stdout, "removed", display.Escape(p))
 			return nil
 		},
 	}

@@ -15,6 +15,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/loadline/loadline/check"
+	"github.com/loadline/loadline/internal/display"
 	"github.com/loadline/loadline/measure"
 	"github.com/loadline/loadline/report"
 )
@@ -95,12 +96,49 @@ func runWith(args []string, stdin io.Reader, stdout, stderr io.Writer) int {
 	var ee *exitError
 	if errors.As(err, &ee) {
 		if ee.err != nil && ee.err.Error() != "" {
-			fmt.Fprintln(stderr, "loadline:", ee.err)
+			sayError(stderr, "loadline: ", ee.err)
 		}
 		return ee.code
 	}
-	fmt.Fprintln(stderr, "loadline:", err)
+	sayError(stderr, "loadline: ", err)
 	return exitUsage
+}
+
+// sayError writes err to w, one line per part, each after prefix; every
+// part shows outside strings (paths, names, revisions) escaped, so that no
+// file name can start a line of its own in a CI log. The parts are an
+// errors.Join's or a budget file's findings, and an environment error's
+// hint.
+func sayError(w io.Writer, prefix string, err error) {
+	for _, line := range errorLines(err) {
+		fmt.Fprintln(w, prefix+line)
+		prefix = "  "
+	}
+}
+
+func errorLines(err error) []string {
+	if env, ok := err.(*check.EnvError); ok {
+		lines := errorLines(env.Err)
+		if env.Hint != "" {
+			lines = append(lines, "hint: "+display.Escape(env.Hint))
+		}
+		return lines
+	}
+	if m, ok := err.(interface{ Unwrap() []error }); ok {
+		var lines []string
+		for _, e := range m.Unwrap() {
+			if e != nil {
+				lines = append(lines, errorLines(e)...)
+			}
+		}
+		return lines
+	}
+	// A wrapper that adds nothing to its cause's message (a budget-file
+	// error around the file's findings) is seen through.
+	if u := errors.Unwrap(err); u != nil && u.Error() == err.Error() {
+		return errorLines(u)
+	}
+	return []string{display.Escape(err.Error())}
 }
 
 func newRoot(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
