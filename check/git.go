@@ -288,6 +288,11 @@ func (s *Snapshot) Paths() ([]string, error) {
 	defer s.treeMu.Unlock()
 	w := object.NewTreeWalker(s.tree, true, nil)
 	defer w.Close()
+	// Listing only: no name reaches the file system, so a name git
+	// stores and go-git will not check out (a control character) is
+	// listed rather than stopping the walk; reading it is refused later,
+	// as an error of that model alone.
+	w.SkipPathValidation()
 	for {
 		name, e, err := w.Next()
 		if errors.Is(err, io.EOF) {
