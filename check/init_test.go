@@ -3,9 +3,11 @@ package check
 import (
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/internal/gittest"
 )
 
 // TestStarterBudgetGlobMatchesItsFolder: a folder whose name holds glob
@@ -40,5 +42,53 @@ func TestStarterBudgetGlobMatchesItsFolder(t *testing.T) {
 		if n := len(f.Match(p)); n != 0 {
 			t.Errorf("%s: matched by %d rules of other folders", p, n)
 		}
+	}
+}
+
+// TestStarterBudgetCoversEveryModelOnce: a folder whose models need
+// different dims gets a rule per model, a file that cannot be read a
+// commented-out rule with the reason, and every measurable model is
+// matched by exactly one rule.
+func TestStarterBudgetCoversEveryModelOnce(t *testing.T) {
+	dir := t.TempDir()
+	files := map[string][]byte{"mixed/a.onnx": smallModel(t, 8), "mixed/broken.onnx": []byte("not a model")}
+	for p, d := range gittest.TeamModels(t) {
+		if strings.HasPrefix(p, "models/kws/") {
+			files["mixed/spot.onnx"] = d
+		}
+	}
+	for p, d := range files {
+		full := filepath.Join(dir, filepath.FromSlash(p))
+		if err := os.MkdirAll(filepath.Dir(full), 0o755); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(full, d, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	text, _, err := StarterBudget(InitOptions{Dir: dir, Headroom: 0.1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	f, err := budget.Parse("loadline.yaml", []byte(text))
+	if err != nil {
+		t.Fatalf("%v\n%s", err, text)
+	}
+	for _, p := range []string{"mixed/a.onnx", "mixed/spot.onnx"} {
+		if n := len(f.Match(p)); n != 1 {
+			t.Errorf("%s: matched by %d rules, want 1:\n%s", p, n, text)
+		}
+	}
+	if n := len(f.Match("mixed/broken.onnx")); n != 0 {
+		t.Errorf("the unreadable model has a live rule:\n%s", text)
+	}
+	if !strings.Contains(text, "# broken.onnx could not be measured:") || !strings.Contains(text, `# - path: "mixed/broken.onnx"`) {
+		t.Errorf("no commented-out rule for the unreadable model:\n%s", text)
+	}
+	if d, _ := f.Dims("mixed/spot.onnx"); d["N"] != 1 || d["frames"] != 1 || len(d) != 2 {
+		t.Errorf("spot dims %v, want its own N and frames", d)
+	}
+	if d, _ := f.Dims("mixed/a.onnx"); len(d) != 0 {
+		t.Errorf("a.onnx dims %v, want none", d)
 	}
 }

@@ -248,9 +248,13 @@ func newInitCmd(stdout, stderr io.Writer) *cobra.Command {
 	cmd := &cobra.Command{
 		Use:   "init [--headroom PCT] [--force] [--stdout]",
 		Short: "Write a starter loadline.yaml for the models under the current folder",
-		Long: "Finds the .onnx files under the current folder, measures them, and writes loadline.yaml\n" +
-			"with limits at today's figures plus the headroom, one rule per folder, and comments\n" +
-			"that explain each key. Edit the device capacities to your hardware's.",
+		Long: "Finds the model files under the current folder, measures them (each with its own\n" +
+			"symbolic dims bound to 1, marked to be set), and writes loadline.yaml that today's models\n" +
+			"pass without a warning: each limit is today's figure plus the headroom, raised so that\n" +
+			"this stays below warn_at (90%) of it. One rule per folder where its models share their\n" +
+			"dims, else one per model, so that every model is covered once; a figure that needs an\n" +
+			"input's value gets a commented-out limit naming it. The device's capacities are\n" +
+			"commented-out placeholders to fill in, and no limit is a share of them until you do.",
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if headroom < 0 || headroom > 1000 {

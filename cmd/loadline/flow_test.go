@@ -248,15 +248,16 @@ func TestInitWritesAParsableBudget(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, want := range []string{`"models/cam/*.onnx"`, `"models/kws/*.onnx"`, "params: 286", "warn_at"} {
-		// 260 params + 10 % headroom, rounded up = 286 (hand-worked).
+	for _, want := range []string{`"models/cam/*.onnx"`, `"models/kws/*.onnx"`, "params: 318", "warn_at: 90%"} {
+		// Hand-worked: 260 params + 10 % headroom = 286, and 286 must stay
+		// within warn_at 90 % of the limit: ⌈286 / 0.9⌉ = ⌈317.8⌉ = 318.
 		if !strings.Contains(string(text), want) {
 			t.Errorf("starter budget lacks %q:\n%s", want, text)
 		}
 	}
-	// --headroom 0 sets the limits at today's figures: 260 params.
-	if code, out, errs := inDir(t, dir, "init", "--headroom", "0", "--stdout"); code != exitOK || !strings.Contains(out, "params: 260\n") {
-		t.Errorf("init --headroom 0: exit %d, want the limits at today's params (260):\n%s%s", code, out, errs)
+	// --headroom 0: today's figure at warn_at, ⌈260 / 0.9⌉ = ⌈288.9⌉ = 289.
+	if code, out, errs := inDir(t, dir, "init", "--headroom", "0", "--stdout"); code != exitOK || !strings.Contains(out, "params: 289\n") {
+		t.Errorf("init --headroom 0: exit %d, want today's params (260) at warn_at of the limit (289):\n%s%s", code, out, errs)
 	}
 	if code, _, _ := inDir(t, dir, "init"); code != exitUsage {
 		t.Errorf("init over an existing file: exit %d, want %d", code, exitUsage)

@@ -8,6 +8,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/loadline/loadline/budget"
 	"github.com/loadline/loadline/internal/gittest"
 )
 
@@ -280,5 +281,67 @@ func TestBudgetLooseningNotInForce(t *testing.T) {
 	}
 	if code, out, errs := inDir(t, dir, "check", "--base", "main", "--trust-head-budget"); code != exitOK || !strings.Contains(out, "judged by the head's budget file") {
 		t.Errorf("--trust-head-budget: exit %d\n%s%s", code, out, errs)
+	}
+}
+
+// TestInitThenCheckAllPasses: the starter budget for a repository of
+// several models, committed as written, passes check --all with no warning:
+// limits sit below warn_at, each model is measured with its own dims, the
+// figures that need an input's value have no limit but a comment naming
+// it, and no limit is a share of a placeholder capacity.
+func TestInitThenCheckAllPasses(t *testing.T) {
+	dir := newRepo(t)
+	for p, data := range gittest.TeamModels(t) {
+		writeFile(t, dir, p, data)
+	}
+	if code, _, errs := inDir(t, dir, "init"); code != exitOK {
+		t.Fatalf("init: exit %d\n%s", code, errs)
+	}
+	text, err := os.ReadFile(filepath.Join(dir, "loadline.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	starter := string(text)
+	for _, want := range []string{
+		`dims: {"N": 1, frames: 1}`, // the spotter's own dim names
+		"# macs: not limited: cannot be computed until the value of input target_shape is bound",
+		"# ram: 512KiB", "PLACEHOLDER",
+		`"models/cam/*.onnx"`, `"models/kws/*.onnx"`, `"models/misc/*.onnx"`,
+	} {
+		if !strings.Contains(starter, want) {
+			t.Errorf("starter lacks %q:\n%s", want, starter)
+		}
+	}
+	if strings.Contains(starter, "batch") {
+		t.Errorf("starter binds a dim the models lack:\n%s", starter)
+	}
+	bf, err := budget.Parse("loadline.yaml", text)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, d := range bf.Devices {
+		if d.RAM != nil || d.Flash != nil {
+			t.Errorf("device %s has a capacity that is no placeholder", d.Name)
+		}
+	}
+	for _, r := range bf.Rules {
+		for m, l := range r.Limits {
+			if l.Kind == budget.Percent {
+				t.Errorf("%s: %s limit %s is a share of a placeholder", r.Path, m, l.Text)
+			}
+		}
+	}
+	git(t, dir, "add", "-A")
+	git(t, dir, "commit", "-q", "-m", "models and starter budget")
+	code, out, errs := inDir(t, dir, "check", "--all", "--no-cache")
+	if code != exitOK {
+		t.Fatalf("check --all: exit %d, want 0\n%s%s\n%s", code, out, errs, starter)
+	}
+	if !strings.Contains(out, "loadline: pass — 4 models within budget") || strings.Contains(out, "WARN") || strings.Contains(out, "unknown") {
+		t.Errorf("check --all warns or leaves a figure unjudged:\n%s\n%s", out, starter)
+	}
+	// The same with the strictest fail-on: no warning to fail on.
+	if code, out, _ := inDir(t, dir, "check", "--all", "--fail-on", "warn"); code != exitOK {
+		t.Errorf("check --all --fail-on warn: exit %d\n%s", code, out)
 	}
 }
