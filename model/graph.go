@@ -2,7 +2,7 @@ package model
 
 // Model is one decoded model file.
 type Model struct {
-	Format          string // "onnx"
+	Format          string // "onnx" or "tflite"
 	IRVersion       int64
 	Opsets          map[string]int64 // operator set version per domain; "" is the default ONNX domain
 	ProducerName    string
@@ -13,6 +13,11 @@ type Model struct {
 	Metadata        map[string]string
 	Graph           *Graph
 	Functions       []*Function // model-local functions
+	// DimDefaults are the sizes the file itself gives its symbolic dims
+	// (TFLite: the stored shape behind a shape_signature's -1); a size
+	// bound with --dim takes precedence. Nil for ONNX, whose symbols have
+	// no size until bound.
+	DimDefaults map[string]int64
 }
 
 // Opset returns the operator set version the model imports for domain, with
@@ -50,6 +55,21 @@ type Graph struct {
 	ValueInfo    []*ValueInfo // declared types of intermediate values
 	Initializers []*Tensor
 	Sparse       []*SparseTensor // sparse initializers
+
+	// The fields below are filled by formats that describe how a runtime
+	// holds the graph's tensors (TFLite); they are empty for ONNX.
+
+	// TensorOrder lists every tensor of the graph in the file's tensor
+	// table order, which a runtime's memory planner follows.
+	TensorOrder []string
+	// State are the tensors that keep their values from one invocation to
+	// the next (TFLite variable tensors), with their types: neither
+	// weights nor activations.
+	State []*ValueInfo
+	// PlannedOffsets are the arena offsets of the tensors an offline
+	// memory plan places (TFLite OfflineMemoryAllocation metadata), by
+	// tensor name.
+	PlannedOffsets map[string]int64
 }
 
 // Initializer returns the initializer named name, or nil.

@@ -85,3 +85,42 @@ func Models(t testing.TB) []string {
 	sort.Strings(out)
 	return out
 }
+
+// TFLiteDir returns the folder of real TFLite models shared beside the
+// repository (../shared/models/tflite from the module root, found by
+// walking up from the working directory to go.mod), skipping the test
+// with a visible message when it is absent, or failing it when Required.
+func TFLiteDir(t testing.TB) string {
+	t.Helper()
+	dir, err := os.Getwd()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for {
+		if _, err := os.Stat(filepath.Join(dir, "go.mod")); err == nil {
+			break
+		}
+		parent := filepath.Dir(dir)
+		if parent == dir {
+			Missing(t, "no go.mod above the working directory: cannot find ../shared/models/tflite")
+			return ""
+		}
+		dir = parent
+	}
+	p := filepath.Join(dir, "..", "shared", "models", "tflite")
+	if st, err := os.Stat(p); err != nil || !st.IsDir() {
+		Missing(t, "shared TFLite models not found at "+p)
+	}
+	return p
+}
+
+// TFLiteModels returns the paths of the .tflite files of TFLiteDir, sorted.
+func TFLiteModels(t testing.TB) []string {
+	t.Helper()
+	paths, _ := filepath.Glob(filepath.Join(TFLiteDir(t), "*.tflite"))
+	if len(paths) == 0 {
+		Missing(t, "no .tflite file in "+TFLiteDir(t))
+	}
+	sort.Strings(paths)
+	return paths
+}

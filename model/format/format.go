@@ -20,6 +20,7 @@ import (
 
 	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/model/onnx"
+	"github.com/loadline/loadline/model/tflite"
 )
 
 // The formats loadline reads, as model.Model.Format and the JSON contract
@@ -80,7 +81,7 @@ func Open(name string, data []byte, opts Options) (*model.Model, error) {
 	hint := Hint(name)
 	switch Detect(data) {
 	case TFLite:
-		return openTFLite(name, data)
+		return tflite.Decode(data, tflite.Options{Path: name})
 	}
 	if hint == TFLite {
 		return nil, fmt.Errorf("%s: not a TFLite model: no %q identifier at byte 4 (loadline reads %s files)", name, tfliteIdentifier, Readable)
@@ -93,8 +94,4 @@ func Open(name string, data []byte, opts Options) (*model.Model, error) {
 		return nil, err
 	}
 	return m, nil
-}
-
-func openTFLite(name string, data []byte) (*model.Model, error) {
-	return nil, fmt.Errorf("%s: a TFLite model, which this build of loadline cannot measure yet (it reads ONNX)", name)
 }

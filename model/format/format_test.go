@@ -7,6 +7,7 @@ import (
 
 	"github.com/loadline/loadline/model/build"
 	"github.com/loadline/loadline/model/onnx"
+	"github.com/loadline/loadline/model/tflite"
 )
 
 func onnxBytes(t *testing.T) []byte {
@@ -56,5 +57,33 @@ func TestOpenByContent(t *testing.T) {
 	_, err = Open("m.onnx", []byte("\xff\xff\xff\xff garbage"), Options{})
 	if err == nil || errors.Is(err, ErrUnknown) || !strings.Contains(err.Error(), "m.onnx") {
 		t.Errorf("garbage named .onnx: %v; want the ONNX decoder's error", err)
+	}
+}
+
+// TestOpenTFLite: TFLite content opens with the TFLite decoder, whatever
+// the name says.
+func TestOpenTFLite(t *testing.T) {
+	data, err := tflite.Encode(&tflite.Model{Version: 3,
+		OperatorCodes: []tflite.OperatorCode{{DeprecatedBuiltinCode: 19, BuiltinCode: 19, Version: 1}},
+		Subgraphs: []tflite.Subgraph{{
+			Tensors:   []tflite.Tensor{{Shape: []int32{1, 4}, Name: "x"}, {Shape: []int32{1, 4}, Name: "y"}},
+			Inputs:    []int32{0},
+			Outputs:   []int32{1},
+			Operators: []tflite.Operator{{OpcodeIndex: 0, Inputs: []int32{0}, Outputs: []int32{1}}},
+		}},
+		Buffers: []tflite.Buffer{{}},
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, name := range []string{"m.tflite", "m.bin", "m.onnx"} {
+		m, err := Open(name, data, Options{})
+		if err != nil || m.Format != TFLite || m.Graph.Nodes[0].Op != "RELU" {
+			t.Fatalf("%s: %v", name, err)
+		}
+	}
+	_, err = Open("m.tflite", data[:20], Options{})
+	if err == nil || !strings.Contains(err.Error(), "m.tflite") {
+		t.Errorf("truncated: %v", err)
 	}
 }
