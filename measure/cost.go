@@ -288,8 +288,40 @@ func (c *costCtx) inElems(i int) (int64, error) {
 	return product(d...)
 }
 
-// convMACs: output elements × (C_in / group) × kernel area, with W
-// [M, C_in/group, k1, ..., kn] at input wi.
+// The MAC formulas. Each is defined once, here, on layout-neutral
+// arguments; the cost rows of every format (ONNX's below, TFLite's in
+// tflite_ops.go) read the arguments out of their own layouts and call
+// these, so that a convolution costs the same whatever file it comes from.
+
+// convMACsOf: output elements × (C_in / group) × kernel area.
+func convMACsOf(outElems, inPerGroup, kernelArea int64) (int64, error) {
+	return product(outElems, inPerGroup, kernelArea)
+}
+
+// convTransposeMACsOf: input elements × (C_out / group) × kernel area:
+// every input element is spread over a kernel of every output channel of
+// its group.
+func convTransposeMACsOf(inElems, outPerGroup, kernelArea int64) (int64, error) {
+	return product(inElems, outPerGroup, kernelArea)
+}
+
+// matmulMACsOf: output elements × K, the length of the reduced dim.
+func matmulMACsOf(outElems, k int64) (int64, error) {
+	return product(outElems, k)
+}
+
+// recurrentMACsOf: gates × (input + hidden) × hidden × steps × batch ×
+// directions: each step multiplies [x, h] by the gates' stacked input and
+// recurrent weights.
+func recurrentMACsOf(gates, input, hidden, steps, batch, dirs int64) (int64, error) {
+	width, ok := addChecked(input, hidden)
+	if !ok {
+		return 0, fmt.Errorf("input + hidden overflows int64")
+	}
+	return product(gates, width, hidden, steps, batch, dirs)
+}
+
+// convMACs: convMACsOf with W [M, C_in/group, k1, ..., kn] at input wi.
 func convMACs(xi, wi int) func(c *costCtx) (int64, error) {
 	return func(c *costCtx) (int64, error) {
 		out, err := c.outElems(0)
@@ -303,14 +335,17 @@ func convMACs(xi, wi int) func(c *costCtx) (int64, error) {
 		if len(ws) < 2 {
 			return 0, fmt.Errorf("weights have rank %d", len(ws))
 		}
-		return product(append([]int64{out}, ws[1:]...)...)
+		area, err := product(ws[2:]...)
+		if err != nil {
+			return 0, err
+		}
+		return convMACsOf(out, ws[1], area)
 	}
 }
 
-// convTransposeMACs: input elements × (C_out / group) × kernel area, with
-// W [C_in, C_out/group, k1, ..., kn]: every input element is spread over
-// a kernel of every output channel of its group. Output padding and
-// output_shape only add untouched output elements.
+// convTransposeMACs: convTransposeMACsOf with W [C_in, C_out/group, k1,
+// ..., kn]. Output padding and output_shape only add untouched output
+// elements.
 func convTransposeMACs(c *costCtx) (int64, error) {
 	in, err := c.inElems(0)
 	if err != nil {
@@ -323,7 +358,11 @@ func convTransposeMACs(c *costCtx) (int64, error) {
 	if len(ws) < 2 {
 		return 0, fmt.Errorf("weights have rank %d", len(ws))
 	}
-	return product(append([]int64{in}, ws[1:]...)...)
+	area, err := product(ws[2:]...)
+	if err != nil {
+		return 0, err
+	}
+	return convTransposeMACsOf(in, ws[1], area)
 }
 
 // gemmMACs: output elements × K, K being A's dim 1 (dim 0 with transA).
@@ -343,7 +382,7 @@ func gemmMACs(c *costCtx) (int64, error) {
 	if c.attrInt("transA", 0) != 0 {
 		k = as[0]
 	}
-	return product(out, k)
+	return matmulMACsOf(out, k)
 }
 
 // matmulMACs: output elements × K, K being the last dim of A (input ai);
@@ -361,7 +400,7 @@ func matmulMACs(ai int) func(c *costCtx) (int64, error) {
 		if len(as) == 0 {
 			return 0, fmt.Errorf("A is a scalar")
 		}
-		return product(out, as[len(as)-1])
+		return matmulMACsOf(out, as[len(as)-1])
 	}
 }
 
@@ -420,8 +459,8 @@ func einsumMACs(c *costCtx) (int64, error) {
 	return product(dims...)
 }
 
-// rnnMACs: gates × (input + hidden) × hidden × steps × batch × directions:
-// each step multiplies [x, h] by the gates' stacked W and R.
+// rnnMACs: recurrentMACsOf with X [steps, batch, input] ([batch, steps,
+// input] with layout 1) and hidden_size (or R's or W's dims).
 func rnnMACs(gates int64) func(c *costCtx) (int64, error) {
 	return func(c *costCtx) (int64, error) {
 		xs, err := c.inDims(0)
@@ -449,17 +488,17 @@ func rnnMACs(gates int64) func(c *costCtx) (int64, error) {
 				return 0, fmt.Errorf("hidden size is not known: %v", err)
 			}
 		}
-		width, ok := addChecked(input, hidden)
-		if !ok {
-			return 0, fmt.Errorf("input + hidden overflows int64")
-		}
-		return product(gates, width, hidden, steps, batch, dirs)
+		return recurrentMACsOf(gates, input, hidden, steps, batch, dirs)
 	}
 }
 
 // windowArea is a pool's window size: kernel_shape, or for a global pool
 // the spatial area of input 0.
 func windowArea(c *costCtx) (int64, error) {
+	if c.node.Domain == "tflite" {
+		// TFLite's Pool2DOptions.
+		return product(c.attrInt("filter_height", 0), c.attrInt("filter_width", 0))
+	}
 	if strings.HasPrefix(c.node.Op, "Global") {
 		xs, err := c.inDims(0)
 		if err != nil {
@@ -659,6 +698,20 @@ func (k *coster) node(n *model.Node, i int, sc scopes) *tally {
 	case flopsSubgraph:
 		return k.control(n, i, c, sc)
 	}
+	if a := n.Attr("fused_activation_function"); a != nil && n.Domain == "tflite" && a.String != "NONE" && a.String != "" {
+		// A fused activation: one per output element, as an activation
+		// node would count.
+		act, err := c.outElems(0)
+		if err == nil {
+			var ok bool
+			if t.flops, ok = addChecked(t.flops, act); !ok {
+				err = fmt.Errorf("the count overflows int64")
+			}
+		}
+		if err != nil {
+			return k.fail(n, i, "FLOPs unknown: fused activation: %v", err)
+		}
+	}
 	t.byOp[n.Op] = OpCost{Nodes: 1, MACs: t.macs, FLOPs: t.flops}
 	return t
 }
@@ -707,7 +760,14 @@ func (k *coster) control(n *model.Node, i int, c *costCtx, sc scopes) *tally {
 		return k.graph(a.Graph, sc)
 	}
 	var t *tally
-	if n.Op == "If" {
+	if n.Op == "CALL_ONCE" { // TFLite: its init subgraph runs once
+		t, ok := body("init")
+		if !ok {
+			return k.fail(n, i, "MACs unknown: its init subgraph was not read")
+		}
+		return t
+	}
+	if n.Op == "If" || n.Op == "IF" {
 		th, ok1 := body("then_branch")
 		el, ok2 := body("else_branch")
 		if !ok1 || !ok2 {
@@ -723,6 +783,11 @@ func (k *coster) control(n *model.Node, i int, c *costCtx, sc scopes) *tally {
 	t, ok := body("body")
 	if !ok {
 		return k.fail(n, i, "MACs unknown: its body was not inferred")
+	}
+	if n.Op == "WHILE" { // TFLite: the condition subgraph runs once more than the body
+		if cond, ok := body("cond"); ok {
+			t.add(cond)
+		}
 	}
 	trip, reason := k.tripCount(n, c)
 	if trip < 0 {
@@ -797,6 +862,8 @@ func (k *coster) tripCount(n *model.Node, c *costCtx) (int64, string) {
 			return trip, ""
 		}
 		return s[ax], ""
+	case "WHILE":
+		return -1, "a TFLite WHILE runs until its condition subgraph says stop"
 	case "SequenceMap":
 		s := c.in(0)
 		if s == nil || !s.SeqKnown {

@@ -104,6 +104,9 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 	if m == nil || m.Graph == nil {
 		return nil, errors.New("model has no graph")
 	}
+	if m.Format == "tflite" {
+		return inferStored(m, opts)
+	}
 	e := &engine{m: m, opts: opts, subgraphs: map[*model.Graph]map[string]*Value{}, calls: map[*model.Node]*CallBody{}, poisoned: map[string]string{}}
 	g := m.Graph
 	sc := &scope{vals: map[string]*Value{}}

@@ -41,11 +41,17 @@ import (
 // disjoint bytes of it.
 
 // MemoryFigures are a model's activation memory figures as the JSON
-// contract names them: the graph view, and the deployed view (what an
-// embedded runtime allocates after its rewrites).
+// contract names them: the graph view, the deployed view (what an
+// embedded runtime allocates after its rewrites), and for TFLite models
+// the runtime view (the arena the microcontroller runtime plans,
+// runtime.go) with the persistent bytes of variable tensors.
 type MemoryFigures struct {
-	Graph    MemoryView `json:"graph"`
-	Deployed MemoryView `json:"deployed"`
+	Graph    MemoryView   `json:"graph"`
+	Deployed MemoryView   `json:"deployed"`
+	Runtime  *RuntimeView `json:"runtime,omitempty"`
+	// PersistentBytes are the bytes of state kept from one invocation to
+	// the next (TFLite variable tensors, runtime.go); 0 for ONNX.
+	PersistentBytes int64 `json:"persistent_bytes"`
 }
 
 // MemoryView is one view's peak_live_bytes and arena_bytes.
@@ -523,8 +529,10 @@ func (t *stepTree) q(node, l, r, a, b int, mark int32, stamp []int32, out []int3
 }
 
 // staticValues tells which values of g take no activation memory: the
-// initializers and sparse initializers, and whatever inference knows
-// statically (Value.Const) or found stored in the file (Value.Weight).
+// initializers and sparse initializers, whatever inference knows
+// statically (Value.Const) or found stored in the file (Value.Weight), and
+// state kept between invocations (Value.State, counted apart as
+// persistent bytes).
 // Both memory views plan only the other tensors. The map is returned so
 // that a planner can mark the outputs it folds as static too.
 func staticValues(g *model.Graph, vals map[string]*Value) (map[string]bool, func(name string) bool) {
@@ -542,6 +550,6 @@ func staticValues(g *model.Graph, vals map[string]*Value) (map[string]bool, func
 			return true
 		}
 		v := vals[name]
-		return v != nil && (v.Const != nil || v.Weight)
+		return v != nil && (v.Const != nil || v.Weight || v.State)
 	}
 }

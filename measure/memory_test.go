@@ -559,16 +559,24 @@ func TestMemoryMeasureJSON(t *testing.T) {
 		t.Fatal(err)
 	}
 	var got struct {
-		Memory map[string]map[string]int64 `json:"memory"`
+		Memory struct {
+			Graph      map[string]int64 `json:"graph"`
+			Deployed   map[string]int64 `json:"deployed"`
+			Runtime    *RuntimeView     `json:"runtime"`
+			Persistent *int64           `json:"persistent_bytes"`
+		} `json:"memory"`
 	}
 	if err := json.Unmarshal(js, &got); err != nil {
 		t.Fatal(err)
 	}
-	g := got.Memory["graph"]
+	if got.Memory.Runtime != nil || got.Memory.Persistent == nil || *got.Memory.Persistent != 0 {
+		t.Errorf("memory.runtime %v, persistent_bytes %v: an ONNX model has no runtime view and 0 persistent bytes", got.Memory.Runtime, got.Memory.Persistent)
+	}
+	g := got.Memory.Graph
 	if g["peak_live_bytes"] != 9_633_792 || g["arena_bytes"] < g["peak_live_bytes"] { // hand-derived in TestMemoryMobileNetV2
 		t.Errorf("memory.graph = %v, want peak_live_bytes 9633792 and arena_bytes ≥ it", g)
 	}
-	d := got.Memory["deployed"]
+	d := got.Memory.Deployed
 	if d["peak_live_bytes"] != 6_021_120 || d["arena_bytes"] < d["peak_live_bytes"] { // derived in TestDeployedMobileNetV2
 		t.Errorf("memory.deployed = %v, want peak_live_bytes 6021120 and arena_bytes ≥ it", d)
 	}

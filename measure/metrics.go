@@ -107,6 +107,11 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	out.Memory.Deployed = MemoryView{PeakLiveBytes: dep.PeakLiveBytes, ArenaBytes: dep.ArenaBytes}
 	out.Unresolved = appendUnresolved(out.Unresolved, plan.Unresolved)
 	out.Unresolved = appendUnresolved(out.Unresolved, dep.Unresolved)
+	if rt, persistent, unres, ok := planRuntime(inf); ok {
+		out.Memory.Runtime = &rt
+		out.Memory.PersistentBytes = persistent
+		out.Unresolved = appendUnresolved(out.Unresolved, unres)
+	}
 	out.MemoryDetail = MemoryDetail{
 		PeakStep:      plan.PeakStep,
 		LiveAtPeak:    plan.LiveAtPeak,

@@ -52,7 +52,11 @@ func isShapeOperand(n *model.Node, i int) bool {
 	if n.Op == "Gather" && i == 1 {
 		return true
 	}
-	for _, j := range shapeOperands[n.Op] {
+	key := n.Op
+	if n.Domain == "tflite" {
+		key = "tflite:" + n.Op // TFLite's rows, from tfliteOps
+	}
+	for _, j := range shapeOperands[key] {
 		if j == i {
 			return true
 		}

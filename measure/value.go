@@ -20,6 +20,10 @@ type Value struct {
 	Weight bool
 	// Absent marks an optional value known to hold nothing.
 	Absent bool
+	// State marks a tensor that keeps its value from one invocation to
+	// the next (a TFLite variable tensor): neither a weight nor an
+	// activation; the runtime view counts it as persistent bytes.
+	State bool
 }
 
 // Data holds the contents of a small constant tensor in row-major order.
