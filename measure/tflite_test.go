@@ -15,10 +15,10 @@ import (
 // computed apart from this project from flatc's decoding of each file, with
 // the definitions of that folder's README.
 type sharedReference map[string]struct {
-	Params        int64 `json:"params"`
-	MACs          int64 `json:"macs"`
-	ArenaBytes    int64 `json:"arena_bytes"`
-	PeakLiveBytes int64 `json:"peak_live_bytes"`
+	Params        int64          `json:"params"`
+	MACs          int64          `json:"macs"`
+	ArenaBytes    int64          `json:"arena_bytes"`
+	PeakLiveBytes int64          `json:"peak_live_bytes"`
 	VariableBytes int64          `json:"variable_bytes"`
 	Operators     int            `json:"operators"`
 	Ops           map[string]int `json:"ops"`
