@@ -292,7 +292,17 @@ func (e *evaluation) model(in Input) ModelResult {
 	if mr.Change == Removed && in.OldPath != "" {
 		p = cleanPath(in.OldPath)
 	}
-	b := f.merge(f.Match(p))
+	matched := f.Match(p)
+	movedFrom := ""
+	if len(matched) == 0 && in.OldPath != "" && mr.Change != Removed {
+		// Moved out of every rule: judged by the rules that covered it
+		// at its old path, or moving it would turn a failure into an
+		// unbudgeted warning.
+		if old := f.Match(cleanPath(in.OldPath)); len(old) > 0 {
+			matched, movedFrom = old, cleanPath(in.OldPath)
+		}
+	}
+	b := f.merge(matched)
 	deviceConflict := false
 	for _, r := range b.rules {
 		deviceConflict = deviceConflict || r.Device != b.rules[0].Device
@@ -302,6 +312,9 @@ func (e *evaluation) model(in Input) ModelResult {
 		globs[i] = r.Path
 	}
 	mr.Rule = strings.Join(globs, ", ")
+	if movedFrom != "" {
+		mr.Notes = append(mr.Notes, fmt.Sprintf("moved from %s, out of every budget rule: judged by the rule that covered it there (%s)", movedFrom, mr.Rule))
+	}
 	switch {
 	case deviceConflict:
 		why := "the rules matching this model disagree on its device"

@@ -1,5 +1,7 @@
 package budget
 
+import "slices"
+
 // Stricter joins the judgements of one change under the base revision's
 // budget file (base) and under the head's (head), both made from the same
 // inputs in the same order, into the judgement in force on a pull request:
@@ -109,9 +111,11 @@ func stricterModel(b, h *ModelResult) ModelResult {
 			out.Checks = append(out.Checks, h.Checks[i])
 		}
 	}
-	out.Notes = append(append([]string{}, b.Notes...), h.Notes...)
-	if len(out.Notes) == 0 {
-		out.Notes = nil
+	out.Notes = nil
+	for _, n := range append(append([]string{}, b.Notes...), h.Notes...) {
+		if !slices.Contains(out.Notes, n) { // both files say it: once
+			out.Notes = append(out.Notes, n)
+		}
 	}
 	if out.Error == "" {
 		out.Error = b.Error

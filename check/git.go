@@ -572,6 +572,11 @@ func narrowRename(c FileChange, want func(string) bool) (FileChange, bool) {
 		return c, true
 	case to:
 		return FileChange{Path: c.Path, Kind: "added", NewHash: c.NewHash}, true
+	case from && IsModelPath(c.Path):
+		// A model moved to a model path that is not wanted (a .tflite
+		// file no rule names) is the same model: it stays a rename, to be
+		// judged by the rule of its old path.
+		return c, true
 	case from:
 		return FileChange{Path: c.OldPath, Kind: "removed", OldHash: c.OldHash}, true
 	}

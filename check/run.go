@@ -346,6 +346,15 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	if err != nil {
 		return nil, nil, err
 	}
+	covered := func(p string) bool {
+		for _, f := range files {
+			if len(f.Match(p)) > 0 {
+				return true
+			}
+		}
+		return false
+	}
+	all = pairMoves(all, covered)
 	changes, err := withDataChanges(rg, all, want)
 	if err != nil {
 		return nil, nil, err
@@ -393,6 +402,9 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	for i, c := range changes {
 		pairs[i] = pair{-1, -1}
 		rulePath := c.Path
+		if c.OldPath != "" && !covered(c.Path) {
+			rulePath = c.OldPath // moved out of every rule: judged by its old one
+		}
 		if c.Kind != "removed" {
 			pairs[i].head = len(jobs)
 			jobs = append(jobs, blobJob{rg.Head, c.Path})
@@ -496,6 +508,46 @@ func wayOut(bpath string, changes []budget.BudgetChange) []string {
 // budgets does not fail every change that touches it. A folder glob
 // ("models/**") also matches the notes and external data beside the
 // models, which are no models to measure.
+// pairMoves finds models moved out of every rule: a removed model file
+// that a rule covers and an added model file that no rule covers, with the
+// same file name, the only such pair for that name, become one rename, so
+// that the model is judged by the rule that covered it. Git's rename
+// detection pairs a moved file only while its content stays similar; a
+// model moved and grown at once would otherwise escape its budget as a new,
+// unbudgeted file (a warning).
+func pairMoves(all []FileChange, covered func(string) bool) []FileChange {
+	removed := map[string][]int{}
+	added := map[string][]int{}
+	for i, c := range all {
+		switch {
+		case c.Kind == "removed" && IsModelPath(c.Path) && covered(c.Path):
+			removed[path.Base(c.Path)] = append(removed[path.Base(c.Path)], i)
+		case c.Kind == "added" && IsModelPath(c.Path) && !covered(c.Path):
+			added[path.Base(c.Path)] = append(added[path.Base(c.Path)], i)
+		}
+	}
+	drop := map[int]bool{}
+	for name, rs := range removed {
+		as := added[name]
+		if len(rs) != 1 || len(as) != 1 {
+			continue
+		}
+		r, a := &all[rs[0]], &all[as[0]]
+		*a = FileChange{Path: a.Path, OldPath: r.Path, Kind: "renamed", OldHash: r.OldHash, NewHash: a.NewHash}
+		drop[rs[0]] = true
+	}
+	if len(drop) == 0 {
+		return all
+	}
+	out := make([]FileChange, 0, len(all)-len(drop))
+	for i, c := range all {
+		if !drop[i] {
+			out = append(out, c)
+		}
+	}
+	return out
+}
+
 func judged(bpath string, files ...*budget.File) func(string) bool {
 	return func(p string) bool {
 		if p == bpath || !IsModelPath(p) {
