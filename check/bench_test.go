@@ -9,6 +9,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/loadline/loadline/internal/corpus"
 	"github.com/loadline/loadline/measure/benchmodel"
 	"github.com/loadline/loadline/model/onnx"
 )
@@ -23,9 +24,7 @@ func makeBenchRepo(b *testing.B) string {
 	if benchRepoDir != "" {
 		return benchRepoDir
 	}
-	if _, err := exec.LookPath("git"); err != nil {
-		b.Skip("git is not installed")
-	}
+	corpus.Tool(b, "git", "git")
 	dir, err := os.MkdirTemp("", "loadline-bench-")
 	if err != nil {
 		b.Fatal(err)

@@ -3,9 +3,9 @@ package check
 import (
 	"errors"
 	"fmt"
+	"github.com/loadline/loadline/internal/corpus"
 	"github.com/loadline/loadline/internal/gittest"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"strings"
 	"sync"
@@ -255,13 +255,8 @@ func TestStagedOnly(t *testing.T) {
 }
 
 func TestLFS(t *testing.T) {
-	if _, err := exec.LookPath("git-lfs"); err != nil {
-		if os.Getenv("LOADLINE_REQUIRE_CORPUS") == "1" {
-			t.Fatal("git-lfs is not installed (apt-get install git-lfs) (LOADLINE_REQUIRE_CORPUS=1)")
-		}
-		t.Skip("git-lfs is not installed (apt-get install git-lfs)")
-	}
 	g := newGitRepo(t)
+	corpus.Tool(t, "git-lfs", "git-lfs")
 	g.git("lfs", "install", "--local")
 	g.git("lfs", "track", "*.onnx")
 	want := smallModel(t, 8)
@@ -430,9 +425,7 @@ func TestLFSPointerThatDoesNotParse(t *testing.T) {
 // TestBareRepositorySaysWhatToDo: a bare repository is an environment
 // error with a hint.
 func TestBareRepositorySaysWhatToDo(t *testing.T) {
-	if _, err := exec.LookPath("git"); err != nil {
-		t.Skip("git is not installed")
-	}
+	corpus.Tool(t, "git", "git")
 	dir := t.TempDir()
 	runGit(t, dir, "init", "-q", "--bare")
 	_, err := OpenRepo(dir)

@@ -1,11 +1,14 @@
 // Package corpus locates ONNX's own backend test suite, the models and
 // tensors of Debian's libonnx-testdata package, for tests that check
-// loadline against the outside world.
+// loadline against the outside world, and the other outside programs tests
+// run (git, git-lfs, python3-onnx): each is skipped with a message when
+// absent, or failed when LOADLINE_REQUIRE_CORPUS=1.
 package corpus
 
 import (
 	"io/fs"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"sort"
 	"testing"
@@ -42,6 +45,18 @@ func Missing(t testing.TB, msg string) {
 		t.Fatalf("%s (LOADLINE_REQUIRE_CORPUS=1)", msg)
 	}
 	t.Skip(msg)
+}
+
+// Tool returns the path of the command name (git, git-lfs, …) for tests
+// that run it, skipping the test with a message naming the Debian package
+// that installs it, or failing it when LOADLINE_REQUIRE_CORPUS=1.
+func Tool(t testing.TB, name, pkg string) string {
+	t.Helper()
+	p, err := exec.LookPath(name)
+	if err != nil {
+		Missing(t, name+" is not installed (apt-get install "+pkg+")")
+	}
+	return p
 }
 
 // Require returns Dir, skipping the test with a visible message when the

@@ -7,6 +7,8 @@ import (
 	"os/exec"
 	"strings"
 	"testing"
+
+	"github.com/loadline/loadline/internal/corpus"
 )
 
 // Run runs git in dir, isolated from the user's and the system's git
@@ -26,12 +28,11 @@ func Run(t testing.TB, dir string, args ...string) string {
 
 // Init makes an empty repository on branch main in a temporary folder,
 // with an identity to commit as (the invented Wrenfield Dev), and returns
-// its path. It skips the test when git is not installed.
+// its path. It skips the test when git is not installed, or fails it when
+// LOADLINE_REQUIRE_CORPUS=1 (corpus.Tool).
 func Init(t testing.TB) string {
 	t.Helper()
-	if _, err := exec.LookPath("git"); err != nil {
-		t.Skip("git is not installed")
-	}
+	corpus.Tool(t, "git", "git")
 	dir := t.TempDir()
 	Run(t, dir, "init", "-q", "-b", "main")
 	Run(t, dir, "config", "user.email", "dev@wrenfield.example")

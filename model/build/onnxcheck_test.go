@@ -8,6 +8,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/loadline/loadline/internal/corpus"
 	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/model/build"
 	"github.com/loadline/loadline/model/onnx"
@@ -37,11 +38,7 @@ func python(t *testing.T) string {
 	const py = "/usr/bin/python3"
 	out, err := exec.Command(py, "-c", "import onnx; print(onnx.__version__)").CombinedOutput()
 	if err != nil {
-		msg := fmt.Sprintf("python3-onnx is not available (%v: %s); install the Debian package python3-onnx", err, strings.TrimSpace(string(out)))
-		if os.Getenv("LOADLINE_REQUIRE_CORPUS") == "1" {
-			t.Fatal(msg)
-		}
-		t.Skip(msg)
+		corpus.Missing(t, fmt.Sprintf("python3-onnx is not available (%v: %s); install the Debian package python3-onnx", err, strings.TrimSpace(string(out))))
 	}
 	t.Logf("onnx %s", strings.TrimSpace(string(out)))
 	return py
