@@ -114,3 +114,44 @@ func show(c BudgetChange) string {
 	}
 	return s
 }
+
+// TestDiffDeviceMove: a rule moved to another device is marked loosened
+// when the new device lets more through: a capacity bigger or gone, or
+// weights moved out of RAM (so ram no longer counts them); a smaller or an
+// added capacity, or weights moved into RAM, is not loosening.
+func TestDiffDeviceMove(t *testing.T) {
+	doc := func(a, b string) string {
+		return "version: 1\ndevices:\n  a: {" + a + "}\n  b: {" + b + "}\nmodels:\n  - path: m.onnx\n    device: %s\n"
+	}
+	for _, tc := range []struct {
+		name, a, b string
+		loosened   bool
+	}{
+		{"smaller ram", "ram: 320KiB", "ram: 256KiB", false},
+		{"bigger ram", "ram: 256KiB", "ram: 320KiB", true},
+		{"same capacities", "ram: 256KiB, flash: 2MiB", "ram: 256KiB, flash: 2MiB", false},
+		{"bigger flash", "ram: 256KiB, flash: 1MiB", "ram: 256KiB, flash: 2MiB", true},
+		{"flash gone", "ram: 256KiB, flash: 2MiB", "ram: 256KiB", true},
+		{"flash added", "ram: 256KiB", "ram: 256KiB, flash: 2MiB", false},
+		{"weights leave ram", "ram: 256KiB, weights: ram", "ram: 256KiB, weights: flash", true},
+		{"weights enter ram", "ram: 256KiB, weights: flash", "ram: 256KiB, weights: ram", false},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			d := doc(tc.a, tc.b)
+			base, head := mustParse(t, fmt.Sprintf(d, "a")), mustParse(t, fmt.Sprintf(d, "b"))
+			var got []BudgetChange
+			for _, c := range Diff(base, head) {
+				if strings.HasSuffix(c.Key, ".device") {
+					got = append(got, c)
+				}
+			}
+			if len(got) != 1 || got[0].Old != "a" || got[0].New != "b" || got[0].Loosened != tc.loosened {
+				t.Errorf("device changes %+v; want one a → b, loosened %v", got, tc.loosened)
+			}
+		})
+	}
+	// A device the file does not define cannot be compared: a reviewer looks.
+	if !deviceLooser(nil, &Device{}) || !deviceLooser(&Device{}, nil) {
+		t.Error("a missing device must count as loosening")
+	}
+}

@@ -1,0 +1,62 @@
+package report
+
+import (
+	"bytes"
+	"strings"
+	"testing"
+
+	"github.com/loadline/loadline/measure"
+)
+
+// TestMeasureTextLayers renders the text form of `loadline measure
+// --layers` for a hand-made three-node chain and reads back each part: a
+// row per node (an output outside the arena shows offset "-"), the top
+// contributors to MACs (nodes with none left out) and to live memory, and
+// the peak with what is live there.
+func TestMeasureTextLayers(t *testing.T) {
+	// The figures are the renderer's input, hand-made for a Conv 3→8, 3×3,
+	// pads 1, on a float32 1×3×8×8 image: 512 outputs × 3 × 9 = 13,824 MACs;
+	// its output 1×8×8×8×4 = 2,048 B, live with the 768 B input: 2,816 B.
+	m := &measure.Metrics{
+		Path: "chain.onnx", Format: "onnx", Nodes: 3, Opsets: map[string]int64{"": 13}, Sparsity: -1,
+		Inputs: []measure.IOInfo{}, Outputs: []measure.IOInfo{}, Unresolved: []measure.Unresolved{},
+		Layers: []measure.Layer{
+			{Step: 0, Node: "conv", Op: "Conv", Shape: "float32[1,8,8,8]", MACs: 13824, Bytes: 2048, LiveBytes: 2816, Offset: 0},
+			{Step: 1, Node: "relu", Op: "Relu", Shape: "float32[1,8,8,8]", Bytes: 2048, LiveBytes: 4096, Offset: 2048},
+			{Step: 2, Node: "flat", Op: "Flatten", Shape: "float32[1,512]", MACs: 0, Bytes: 0, LiveBytes: 2048, Offset: -1},
+		},
+	}
+	m.Memory.Graph.PeakLiveBytes = 4096
+	m.MemoryDetail.PeakStep = 1
+	m.MemoryDetail.LiveAtPeak = []string{"c", "r"}
+	var b bytes.Buffer
+	if err := MeasureText(&b, []*measure.Metrics{m}); err != nil {
+		t.Fatal(err)
+	}
+	out := b.String()
+	rows := map[string]string{}
+	for _, line := range strings.Split(out, "\n") {
+		if f := strings.Fields(line); len(f) >= 8 && (f[1] == "conv" || f[1] == "relu" || f[1] == "flat") {
+			rows[f[0]] = strings.Join(f, " ")
+		}
+	}
+	for step, want := range map[string]string{
+		"0": "0 conv Conv float32[1,8,8,8] 13.8 k 2.00 KiB 2.75 KiB 0",
+		"1": "1 relu Relu float32[1,8,8,8] 0 2.00 KiB 4.00 KiB 2048",
+		"2": "2 flat Flatten float32[1,512] 0 0 B 2.00 KiB -",
+	} {
+		if rows[step] != want {
+			t.Errorf("row %s: %q, want %q\n%s", step, rows[step], want, out)
+		}
+	}
+	for _, want := range []string{
+		"\n  layers (schedule = file order; live = graph-view bytes live at the step; offset = graph-view arena)\n",
+		"\n  top MACs\n    13.8 k     conv (Conv, step 0)\n\n",
+		"\n  top live memory (graph view)\n    4.00 KiB   relu (Relu, step 1)\n    2.75 KiB   conv (Conv, step 0)\n    2.00 KiB   flat (Flatten, step 2)\n",
+		"\n  graph-view peak 4.00 KiB at step 1; live there: c, r\n",
+	} {
+		if !strings.Contains(out, want) {
+			t.Errorf("missing %q in:\n%s", want, out)
+		}
+	}
+}
