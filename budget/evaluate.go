@@ -242,6 +242,7 @@ func (f *File) merge(rules []*Rule) *budgetFor {
 	b := &budgetFor{rules: rules, limits: map[string][]source{}, growth: map[string][]source{}, warnAt: DefaultWarnAt}
 	var devRule, warnRule *Rule
 	dims := map[string]*Rule{}
+	inputs := map[string]Binding{}
 	for _, r := range rules {
 		if devRule == nil {
 			devRule, b.dev = r, f.Devices[r.Device]
@@ -255,6 +256,17 @@ func (f *File) merge(rules []*Rule) *budgetFor {
 					name, f.ruleAt(first), first.Dims[name], f.ruleAt(r), r.Dims[name]))
 			} else if !ok {
 				dims[name] = r
+			}
+		}
+		for _, bd := range r.Bindings {
+			if bd.Kind == "dim" {
+				continue // above
+			}
+			k := bd.Kind + " " + bd.Name
+			if first, ok := inputs[k]; ok && (fmt.Sprint(first.Shape) != fmt.Sprint(bd.Shape) || fmt.Sprint(first.Value) != fmt.Sprint(bd.Value)) {
+				b.conflicts = append(b.conflicts, fmt.Sprintf("rules disagree on input %s's %s: %s and %s", bd.Name, bd.Kind, first.Place(f.Name), bd.Place(f.Name)))
+			} else if !ok {
+				inputs[k] = bd
 			}
 		}
 		if r.WarnAtSet {

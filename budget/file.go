@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"regexp"
 	"sort"
@@ -87,14 +88,36 @@ type Rule struct {
 	Path   string // doublestar glob from the repository root ("models/**/*.onnx")
 	Device string
 	Dims   map[string]int64
-	Limits map[string]Setting
-	Growth map[string]Setting
+	// Bindings are the rule's dims: and inputs: entries in file order,
+	// each with its place, what check hands to measuring.
+	Bindings []Binding
+	Limits   map[string]Setting
+	Growth   map[string]Setting
 	// WarnAt is the share of a limit, in millionths, past which a figure
 	// warns; 900000 (90%) when the rule does not say. WarnAtSet tells
 	// whether it did.
 	WarnAt       int64
 	WarnAtSet    bool
 	Line, Column int
+}
+
+// Binding is one entry of a rule's dims: (Kind "dim": a symbolic dim's
+// size) or inputs: (Kind "shape": an input's whole shape, or "value": a
+// small input's contents), with its place in the file.
+type Binding struct {
+	Kind         string
+	Name         string
+	Dim          int64
+	Shape        []int64
+	Value        []float64
+	Key          string // "models[0].inputs.audio"
+	Line, Column int
+}
+
+// Place prints where the binding is written: "loadline.yaml:12:11:
+// models[0].dims.batch".
+func (b Binding) Place(file string) string {
+	return fmt.Sprintf("%s:%d:%d: %s", file, b.Line, b.Column, b.Key)
 }
 
 // Setting is one limit or growth entry with its place in the file.
@@ -112,7 +135,7 @@ const DefaultWarnAt = 900_000
 var (
 	topKeys    = []string{"version", "devices", "models", "waivers"}
 	deviceKeys = []string{"ram", "flash", "weights", "target"}
-	ruleKeys   = []string{"path", "device", "dims", "limits", "growth", "warn_at"}
+	ruleKeys   = []string{"path", "device", "dims", "inputs", "limits", "growth", "warn_at"}
 	waiverKeys = []string{"path", "metric", "until", "reason"}
 	placements = []string{WeightsFlash, WeightsRAM}
 )
@@ -695,6 +718,12 @@ func (d *decoder) rule(f *File, i int, n *yaml.Node) *Rule {
 					continue
 				}
 				r.Dims[de.name] = n
+				r.Bindings = append(r.Bindings, Binding{Kind: "dim", Name: de.name, Dim: n, Key: sub(ekey, de.name), Line: de.k.Line, Column: de.k.Column})
+			}
+		case "inputs":
+			ins, _ := d.mapping(e.v, ekey)
+			for _, ie := range ins {
+				r.Bindings = append(r.Bindings, d.inputBindings(ie, sub(ekey, ie.name))...)
 			}
 		case "limits":
 			limits, _ = d.mapping(e.v, ekey)
@@ -989,4 +1018,147 @@ func (f *File) ruleAt(r *Rule) string {
 
 func cleanPath(p string) string {
 	return strings.TrimPrefix(strings.ReplaceAll(p, `\`, "/"), "./")
+}
+
+// Bounds of an inputs: entry.
+const (
+	maxBoundSize   = 1 << 40
+	maxBoundValues = 1 << 16
+)
+
+// inputBindings reads one inputs: entry: a sequence is the input's shape
+// ([1, 512]), a number its value (16000), and a mapping spells both out
+// ({shape: [1, 512]}, {value: 16000}, {value: [1, 2]}).
+func (d *decoder) inputBindings(e entry, key string) []Binding {
+	at := func(kind string) Binding {
+		return Binding{Kind: kind, Name: e.name, Key: key, Line: e.k.Line, Column: e.k.Column}
+	}
+	n := d.visit(e.v)
+	if n == nil {
+		return nil
+	}
+	switch n.Kind {
+	case yaml.SequenceNode:
+		if s, ok := d.sizes(n, key); ok {
+			b := at("shape")
+			b.Shape = s
+			return []Binding{b}
+		}
+	case yaml.ScalarNode:
+		if v, ok := d.numbers(n, key); ok {
+			b := at("value")
+			b.Value = v
+			return []Binding{b}
+		}
+	case yaml.MappingNode:
+		fields, _ := d.mapping(n, key)
+		var out []Binding
+		for _, f := range fields {
+			fkey := sub(key, f.name)
+			switch f.name {
+			case "shape":
+				fv := d.visit(f.v)
+				if fv == nil || fv.Kind != yaml.SequenceNode {
+					d.add(f.v, fkey, "want a list of sizes, e.g. [1, 512]", "")
+					continue
+				}
+				if s, ok := d.sizes(fv, fkey); ok {
+					b := at("shape")
+					b.Shape, b.Key, b.Line, b.Column = s, fkey, f.k.Line, f.k.Column
+					out = append(out, b)
+				}
+			case "value":
+				if v, ok := d.numbers(f.v, fkey); ok {
+					b := at("value")
+					b.Value, b.Key, b.Line, b.Column = v, fkey, f.k.Line, f.k.Column
+					out = append(out, b)
+				}
+			default:
+				d.unknownKey(f, key, []string{"shape", "value"})
+			}
+		}
+		return out
+	default:
+		d.add(e.v, key, "want a shape ([1, 512]), a value (16000) or {shape: …, value: …}, found "+describe(n), "")
+	}
+	return nil
+}
+
+// sizes reads a sequence of whole numbers from 1 up.
+func (d *decoder) sizes(n *yaml.Node, key string) ([]int64, bool) {
+	if len(n.Content) > 64 {
+		d.add(n, key, fmt.Sprintf("%d dims; a shape may have at most 64", len(n.Content)), "")
+		return nil, false
+	}
+	out := make([]int64, 0, len(n.Content))
+	for i, c := range n.Content {
+		v, ok := d.scalar(c, fmt.Sprintf("%s[%d]", key, i))
+		if !ok {
+			return nil, false
+		}
+		x, err := strconv.ParseInt(v, 10, 64)
+		if err != nil || x < 1 || x > maxBoundSize {
+			d.add(c, fmt.Sprintf("%s[%d]", key, i), fmt.Sprintf("%q: a size is a whole number from 1 up", v), "")
+			return nil, false
+		}
+		out = append(out, x)
+	}
+	return out, true
+}
+
+// numbers reads a number or a sequence of numbers.
+func (d *decoder) numbers(n *yaml.Node, key string) ([]float64, bool) {
+	n = d.visit(n)
+	if n == nil {
+		return nil, false
+	}
+	items := []*yaml.Node{n}
+	if n.Kind == yaml.SequenceNode {
+		items = n.Content
+		if len(items) > maxBoundValues {
+			d.add(n, key, fmt.Sprintf("%d values; a value binding may hold at most %d", len(items), maxBoundValues), "")
+			return nil, false
+		}
+	}
+	out := make([]float64, 0, len(items))
+	for i, c := range items {
+		ikey := key
+		if n.Kind == yaml.SequenceNode {
+			ikey = fmt.Sprintf("%s[%d]", key, i)
+		}
+		v, ok := d.scalar(c, ikey)
+		if !ok {
+			return nil, false
+		}
+		x, err := strconv.ParseFloat(v, 64)
+		if err != nil || math.IsNaN(x) || math.IsInf(x, 0) {
+			d.add(c, ikey, fmt.Sprintf("%q: want a number", v), "")
+			return nil, false
+		}
+		out = append(out, x)
+	}
+	return out, true
+}
+
+// Bindings returns the dims: and inputs: entries of every rule matching a
+// model path, the first rule's where two name the same dim or input; an
+// error when two rules disagree.
+func (f *File) Bindings(p string) ([]Binding, error) {
+	var out []Binding
+	first := map[string]int{}
+	for _, r := range f.Match(p) {
+		for _, b := range r.Bindings {
+			k := b.Kind + "\x00" + b.Name
+			if j, ok := first[k]; ok {
+				o := out[j]
+				if o.Dim != b.Dim || fmt.Sprint(o.Shape) != fmt.Sprint(b.Shape) || fmt.Sprint(o.Value) != fmt.Sprint(b.Value) {
+					return out, fmt.Errorf("%s: rules disagree on %s %s: %s and %s", cleanPath(p), b.Kind, b.Name, o.Place(f.Name), b.Place(f.Name))
+				}
+				continue
+			}
+			first[k] = len(out)
+			out = append(out, b)
+		}
+	}
+	return out, nil
 }

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"os"
 	"path/filepath"
+	"reflect"
 	"strings"
 	"testing"
 )
@@ -109,6 +110,14 @@ devices:
 `, []string{
 			`loadline.yaml:12:19: models[0].dims.batch: "0": a dim is a whole number from 1 up`,
 			`loadline.yaml:12:27: models[0].dims.seq: "n": a dim is a whole number from 1 up`,
+		}},
+		{"inputs", head + `  - path: models/a.onnx
+    device: porch-cam
+    inputs: {audio: [1, 0], rate: fast, mode: {shape: [1], speed: 2}}
+`, []string{
+			`loadline.yaml:12:25: models[0].inputs.audio[1]: "0": a size is a whole number from 1 up`,
+			`loadline.yaml:12:35: models[0].inputs.rate: "fast": want a number`,
+			`loadline.yaml:12:60: models[0].inputs.mode: unknown key "speed"`,
 		}},
 		{"negative growth", head + `  - path: models/a.onnx
     device: porch-cam
@@ -409,5 +418,39 @@ func TestErrorsPrint(t *testing.T) {
 	want := "loadline.yaml:3:5: devices.d: unknown key \"rma\" (did you mean \"ram\"?)\nloadline.yaml: empty budget file\nloadline.yaml:7: not valid YAML: x"
 	if es.Error() != want {
 		t.Errorf("got\n%s\nwant\n%s", es.Error(), want)
+	}
+}
+
+// TestParseBindings: dims: and inputs: entries, in their compact and
+// spelled-out forms, each with the place of its key.
+func TestParseBindings(t *testing.T) {
+	f, err := Parse("loadline.yaml", []byte(`version: 1
+devices:
+  kws: {ram: 64KiB}
+models:
+  - path: "models/**"
+    device: kws
+    dims: {batch: 1}
+    inputs: {audio: [1, 512], rate: 16000, mode: {value: [0, 1]}, feats: {shape: [1, 40]}}
+`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	got, err := f.Bindings("models/kws.onnx")
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []Binding{
+		{Kind: "dim", Name: "batch", Dim: 1, Key: "models[0].dims.batch", Line: 7, Column: 12},
+		{Kind: "shape", Name: "audio", Shape: []int64{1, 512}, Key: "models[0].inputs.audio", Line: 8, Column: 14},
+		{Kind: "value", Name: "rate", Value: []float64{16000}, Key: "models[0].inputs.rate", Line: 8, Column: 31},
+		{Kind: "value", Name: "mode", Value: []float64{0, 1}, Key: "models[0].inputs.mode.value", Line: 8, Column: 51},
+		{Kind: "shape", Name: "feats", Shape: []int64{1, 40}, Key: "models[0].inputs.feats.shape", Line: 8, Column: 75},
+	}
+	if !reflect.DeepEqual(got, want) {
+		t.Errorf("bindings\n got %+v\nwant %+v", got, want)
+	}
+	if p := got[1].Place(f.Name); p != "loadline.yaml:8:14: models[0].inputs.audio" {
+		t.Errorf("place %q", p)
 	}
 }

@@ -46,7 +46,7 @@ func Audit(r *Repo, rev string, o Options) (*budget.Result, *Stats, error) {
 		today = time.Now()
 	}
 	stats := &Stats{}
-	res, err := judgeSnapshot(snap, bf, bpath, budget.EvalOptions{Strict: o.Strict, Today: today}, cache, stats, o.Progress)
+	res, err := judgeSnapshot(snap, bf, bpath, budget.EvalOptions{Strict: o.Strict, Today: today}, o.Bindings, cache, stats, o.Progress)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -60,7 +60,7 @@ func Audit(r *Repo, rev string, o Options) (*budget.Result, *Stats, error) {
 // revision, not a change. A rule that matches no file of the snapshot is
 // a warning. It is the core of Audit (check --all) and of the sign-off's
 // every model at every release.
-func judgeSnapshot(s *Snapshot, f *budget.File, bpath string, eo budget.EvalOptions, cache *Cache, stats *Stats, progress io.Writer) (*budget.Result, error) {
+func judgeSnapshot(s *Snapshot, f *budget.File, bpath string, eo budget.EvalOptions, cli Bindings, cache *Cache, stats *Stats, progress io.Writer) (*budget.Result, error) {
 	tree, err := s.Paths()
 	if err != nil {
 		return nil, err
@@ -76,9 +76,9 @@ func judgeSnapshot(s *Snapshot, f *budget.File, bpath string, eo budget.EvalOpti
 		fmt.Fprintf(progress, "loadline: measuring %s\n", plural(len(paths), "model", "models"))
 	}
 	jobs := make([]blobJob, len(paths))
-	dims := make([]map[string]int64, len(paths))
+	dims := make([]*boundSet, len(paths))
 	for i, p := range paths {
-		jobs[i], dims[i] = blobJob{s, p}, dimsOf(p, f)
+		jobs[i], dims[i] = blobJob{s, p}, bindingsOf(p, cli, f)
 	}
 	metrics, _ := measureJobs(jobs, dims, cache, stats)
 	if err := envError(metrics); err != nil {

@@ -54,6 +54,17 @@ func cacheKey(blob string, opts measure.Options) string {
 	for _, k := range names {
 		fmt.Fprintf(h, "%s=%d\x00", k, opts.Dims[k])
 	}
+	// Shapes and values, when given, and lenient binding (what check
+	// uses) change the figures or their binding issues.
+	for _, k := range sortedKeys(opts.Shapes) {
+		fmt.Fprintf(h, "shape %s=%v\x00", k, opts.Shapes[k])
+	}
+	for _, k := range sortedKeys(opts.Values) {
+		fmt.Fprintf(h, "value %s=%v\x00", k, opts.Values[k])
+	}
+	if opts.Lenient {
+		fmt.Fprintf(h, "lenient\x00")
+	}
 	deploy := measure.DefaultDeployOptions()
 	if opts.Deploy != nil {
 		deploy = *opts.Deploy
@@ -122,4 +133,13 @@ func (c *Cache) Put(key string, m *measure.Metrics, deps map[string]string) {
 	if os.Rename(tmp.Name(), f) != nil {
 		os.Remove(tmp.Name())
 	}
+}
+
+func sortedKeys[V any](m map[string]V) []string {
+	out := make([]string, 0, len(m))
+	for k := range m {
+		out = append(out, k)
+	}
+	sort.Strings(out)
+	return out
 }

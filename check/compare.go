@@ -20,6 +20,8 @@ type CompareOptions struct {
 	As     string
 	Strict bool
 	Today  time.Time
+	// Bindings from the command line, over the budget rule's.
+	Bindings Bindings
 }
 
 // Compare judges two model files outside git: OLD as the base, NEW as the
@@ -42,12 +44,20 @@ func Compare(o CompareOptions) (*budget.Result, error) {
 	if as == "" {
 		as = filepath.ToSlash(filepath.Clean(o.New))
 	}
-	// Rules that disagree on a dim are reported by Evaluate.
-	var dims map[string]int64
+	// Rules that disagree on a binding are reported by Evaluate.
+	var rule []budget.Binding
+	name := ""
 	if f != nil {
-		dims, _ = f.Dims(as)
+		rule, _ = f.Bindings(as)
+		name = f.Name
 	}
-	ms := MeasureFiles([]string{o.Old, o.New}, measure.Options{Dims: dims, Layers: true})
+	// The files are named on the command line: a --dim, --shape or
+	// --value naming nothing in them is an error.
+	bound := bindingsFor(name, rule, o.Bindings, true)
+	ms := MeasureFiles([]string{o.Old, o.New}, bound.options(measure.Options{Layers: true}))
+	for _, m := range ms {
+		bound.judge(m)
+	}
 	in := budget.Input{Path: as, Change: budget.Modified}
 	if ms[0].Error != "" {
 		return nil, fmt.Errorf("%s", ms[0].Error)

@@ -40,6 +40,9 @@ type Options struct {
 	Getenv          func(string) string // the environment; nil is os.Getenv
 	Today           time.Time           // for waiver expiry; zero is now
 	Progress        io.Writer           // progress lines; nil is quiet
+	// Bindings from the command line apply to every model, over the
+	// budget rules' dims: and inputs:.
+	Bindings Bindings
 }
 
 // BudgetFileError is a budget file that cannot be used (exit 2).
@@ -392,12 +395,12 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	}
 	stats := &Stats{}
 	var jobs []blobJob
-	var dims []map[string]int64
+	var dims []*boundSet
 	pairs := make([]pair, len(changes))
-	dimsFor := func(p string) map[string]int64 {
-		// Rules that disagree on a dim are reported by Evaluate, which
+	dimsFor := func(p string) *boundSet {
+		// Rules that disagree on a binding are reported by Evaluate, which
 		// fails the model; measure it with what the rules give meanwhile.
-		return dimsOf(p, files...)
+		return bindingsOf(p, o.Bindings, files...)
 	}
 	for i, c := range changes {
 		pairs[i] = pair{-1, -1}
@@ -569,17 +572,23 @@ func judged(bpath string, files ...*budget.File) func(string) bool {
 // value of each dim, then the next file's for dims it leaves unbound (the
 // base's before the head's, so that a change cannot shrink a dim to pass,
 // but can bind one a new model needs).
-func dimsOf(p string, files ...*budget.File) map[string]int64 {
-	out := map[string]int64{}
+func bindingsOf(p string, cli Bindings, files ...*budget.File) *boundSet {
+	var all []budget.Binding
+	name := ""
+	seen := map[string]bool{}
 	for _, f := range files {
-		d, _ := f.Dims(p)
-		for k, v := range d {
-			if _, ok := out[k]; !ok {
-				out[k] = v
+		if name == "" {
+			name = f.Name
+		}
+		bs, _ := f.Bindings(p)
+		for _, b := range bs {
+			if k := b.Kind + "\x00" + b.Name; !seen[k] {
+				seen[k] = true
+				all = append(all, b)
 			}
 		}
 	}
-	return out
+	return bindingsFor(name, all, cli, false)
 }
 
 // concerns reports whether one of the budget changes can change how the
@@ -611,13 +620,13 @@ func concerns(changes []budget.BudgetChange, base, head *budget.File, p string) 
 // measureJobs measures blobs, each with its dims, sharing one pool per set
 // of dims, with the cache; it returns each job's figures and the files
 // besides the model that its measurement read.
-func measureJobs(jobs []blobJob, dims []map[string]int64, cache *Cache, stats *Stats) ([]*measure.Metrics, [][]string) {
+func measureJobs(jobs []blobJob, dims []*boundSet, cache *Cache, stats *Stats) ([]*measure.Metrics, [][]string) {
 	metrics := make([]*measure.Metrics, len(jobs))
 	deps := make([][]string, len(jobs))
 	groups := map[string][]int{}
 	var order []string
 	for i, d := range dims {
-		k := fmt.Sprint(d)
+		k := d.key()
 		if _, ok := groups[k]; !ok {
 			order = append(order, k)
 		}
@@ -629,9 +638,10 @@ func measureJobs(jobs []blobJob, dims []map[string]int64, cache *Cache, stats *S
 		for j, i := range idx {
 			sub[j] = jobs[i]
 		}
-		out := measureBlobs(sub, measure.Options{Dims: dims[idx[0]], Layers: true}, cache, stats)
+		out := measureBlobs(sub, dims[idx[0]].options(measure.Options{Layers: true}), cache, stats)
 		for j, i := range idx {
 			metrics[i], deps[i] = out[j].Metrics, out[j].deps
+			dims[i].judge(metrics[i])
 		}
 	}
 	return metrics, deps

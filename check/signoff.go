@@ -156,7 +156,7 @@ func oneLineErr(err error) string {
 // Waivers expire by the revision's own date, as they stood when it was
 // made. It is the audit's core (judgeSnapshot), as check --all runs it.
 func judgeAll(s *Snapshot, f *budget.File, bpath string, day time.Time, strict bool, cache *Cache, stats *Stats) (*budget.Result, error) {
-	return judgeSnapshot(s, f, bpath, budget.EvalOptions{Strict: strict, Today: day}, cache, stats, nil)
+	return judgeSnapshot(s, f, bpath, budget.EvalOptions{Strict: strict, Today: day}, Bindings{}, cache, stats, nil)
 }
 
 type releaseTag struct {

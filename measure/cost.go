@@ -33,7 +33,9 @@ import (
 // movement (Reshape, Transpose, Concat, Gather, Pad, …) is 0 by
 // definition. A 1-GMAC model is a 2-GFLOP model.
 //
-// Subgraphs: If counts its most expensive branch (by MACs, then FLOPs);
+// Subgraphs: If counts the branch it runs when its condition is known
+// statically (from constants or a --value binding), else its most
+// expensive branch (by MACs, then FLOPs);
 // Loop counts its body × the trip count M when M is known statically,
 // Scan its body × the scan length (× the batch before opset 9),
 // SequenceMap its body × the sequence length. When the count is not known
@@ -768,6 +770,14 @@ func (k *coster) control(n *model.Node, i int, c *costCtx, sc scopes) *tally {
 		return t
 	}
 	if n.Op == "If" || n.Op == "IF" {
+		// A known condition runs one branch; inference inferred only it.
+		if taken := takenBranch(n, c.in(0)); taken != "" {
+			t, ok := body(taken)
+			if !ok {
+				return k.fail(n, i, "MACs unknown: its %s was not inferred", taken)
+			}
+			return t
+		}
 		th, ok1 := body("then_branch")
 		el, ok2 := body("else_branch")
 		if !ok1 || !ok2 {
@@ -800,6 +810,22 @@ func (k *coster) control(n *model.Node, i int, c *costCtx, sc scopes) *tally {
 		return k.fail(n, i, "MACs unknown: body × trip count %d overflows int64", trip)
 	}
 	return t
+}
+
+// takenBranch is the attribute name of the branch an If node runs when its
+// condition cond is known statically, else "".
+func takenBranch(n *model.Node, cond *Value) string {
+	if n.Op != "If" || cond == nil {
+		return ""
+	}
+	x, ok := cond.Const.KnownInts()
+	if !ok || len(x) != 1 {
+		return ""
+	}
+	if x[0] != 0 {
+		return "then_branch"
+	}
+	return "else_branch"
 }
 
 // tripCount is how many times a Loop, Scan or SequenceMap runs its body,

@@ -16,7 +16,11 @@ type ctx struct {
 	sc    *scope
 	path  string
 	opset int64
+	idx   int // the node's index in its graph
 }
+
+// label names the node in messages: its name, else op#index.
+func (c *ctx) label() string { return nodeLabel(c.node, c.idx) }
 
 // opRule is one row of the operator table.
 type opRule struct {

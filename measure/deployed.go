@@ -224,7 +224,7 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 				r.last = i
 			}
 		}
-		hasBody[i] = plan.bodies(n, i, depth, subs, bodyPeak, bodyArena,
+		hasBody[i] = plan.bodies(n, i, depth, vals, subs, bodyPeak, bodyArena,
 			func(name string) {
 				if r := recs[name]; r != nil {
 					r.last = i

@@ -14,6 +14,15 @@ type InferOptions struct {
 	// Dims gives values for symbolic dimensions of the graph inputs, by name
 	// ("batch": 1). Unbound symbols stay symbols.
 	Dims map[string]int64
+	// Shapes gives graph inputs their whole shape, by input name; the
+	// symbols on their axes are bound for every input that uses them.
+	Shapes map[string][]int64
+	// Values gives small graph inputs their contents, by input name, used
+	// by constant folding as an initializer's are (bind.go).
+	Values map[string][]float64
+	// Lenient collects the bindings that do not fit the model in
+	// Inference.BindingIssues instead of failing, and ignores them.
+	Lenient bool
 	// IgnoreDeclared makes inference ignore the value_info and output types
 	// the file declares, so that every shape is derived (used when scoring
 	// inference against ground truth).
@@ -45,6 +54,35 @@ type Inference struct {
 	// as instantiated for it, with the values inference found there, for
 	// cost counting.
 	Calls map[*model.Node]*CallBody
+	// BindingIssues are the bindings that did not fit the model, with
+	// InferOptions.Lenient (they were ignored).
+	BindingIssues []BindingIssue
+	// Has lists the runtime inputs and the names that bind them, for
+	// messages.
+	Has string
+	// Dims are the dim bindings in force: InferOptions.Dims and those the
+	// shape bindings imply.
+	Dims map[string]int64
+	// Decided lists the If nodes whose condition was known, so that only
+	// one branch was inferred, in the order met.
+	Decided []DecidedIf
+	// Undecided lists the If nodes whose condition was not known, with
+	// the graph inputs it depends on, in the order met.
+	Undecided []UndecidedIf
+}
+
+// DecidedIf is an If node whose condition inference knew: only Branch
+// ("then_branch" or "else_branch") was inferred, costed and planned.
+type DecidedIf struct {
+	Node   string `json:"node"`
+	Branch string `json:"branch"`
+}
+
+// UndecidedIf is an If node whose condition inference did not know, with
+// the runtime inputs of the main graph its condition depends on.
+type UndecidedIf struct {
+	Node   string   `json:"node"`
+	Inputs []string `json:"inputs"`
 }
 
 // CallBody is a model-local function's body instantiated for one call
@@ -82,6 +120,14 @@ type engine struct {
 	// poisoned maps a value produced by an unresolved node to the name of
 	// the first unresolved node upstream, so reasons point at the cause.
 	poisoned map[string]string
+	// producers maps each value name met to the node making it, and
+	// inputs holds the main graph's runtime inputs, so that a condition
+	// can be traced to the inputs that decide it.
+	producers map[string]*model.Node
+	inputs    map[string]bool
+	decided   []DecidedIf
+	undecided []UndecidedIf
+	cur       int // index of the node being inferred in its graph
 }
 
 type scope struct {
@@ -107,7 +153,8 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 	if m.Format == "tflite" {
 		return inferStored(m, opts)
 	}
-	e := &engine{m: m, opts: opts, subgraphs: map[*model.Graph]map[string]*Value{}, calls: map[*model.Node]*CallBody{}, poisoned: map[string]string{}}
+	e := &engine{m: m, opts: opts, subgraphs: map[*model.Graph]map[string]*Value{}, calls: map[*model.Node]*CallBody{}, poisoned: map[string]string{},
+		producers: map[string]*model.Node{}, inputs: map[string]bool{}}
 	g := m.Graph
 	sc := &scope{vals: map[string]*Value{}}
 	res := &Inference{Model: m, Subgraphs: e.subgraphs, Calls: e.calls}
@@ -120,17 +167,29 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 			sc.vals[sp.Values.Name] = &Value{Type: model.TensorType(sp.Values.DType, model.KnownShape(sp.Dims...)), Weight: true}
 		}
 	}
+	var ins []*model.ValueInfo
 	for _, in := range g.Inputs {
 		if _, isInit := sc.vals[in.Name]; isInit {
 			continue // IR < 4 lists initializers among the inputs too
 		}
-		v := &Value{Type: bindDims(in.Type, opts.Dims)}
-		sc.vals[in.Name] = v
-		res.Inputs = append(res.Inputs, NamedValue{in.Name, v})
+		ins = append(ins, in)
+	}
+	vals, dims, issues, err := boundInputs(g, ins, opts, !opts.Lenient)
+	if err != nil {
+		return nil, err
+	}
+	e.opts.Dims = dims
+	res.Dims, res.BindingIssues = dims, issues
+	res.Has = inputsText(ins, vals)
+	for i, in := range ins {
+		sc.vals[in.Name] = vals[i]
+		e.inputs[in.Name] = true
+		res.Inputs = append(res.Inputs, NamedValue{in.Name, vals[i]})
 	}
 	if err := e.inferNodes(g, sc, "graph"); err != nil {
 		return nil, err
 	}
+	res.Decided, res.Undecided = e.decided, e.undecided
 	e.applyDeclared(g, sc, true)
 	res.Values = sc.vals
 	for _, out := range g.Outputs {
@@ -237,6 +296,12 @@ func (e *engine) inferNodes(g *model.Graph, sc *scope, path string) error {
 			}
 			ins[j] = v
 		}
+		for _, o := range n.Outputs {
+			if o != "" {
+				e.producers[o] = n
+			}
+		}
+		e.cur = i
 		outs, err := e.inferNode(n, ins, sc, fmt.Sprintf("%s.node[%d]", path, i))
 		if err != nil {
 			if errors.Is(err, errDepth) || errors.Is(err, errFatal) {
@@ -321,7 +386,7 @@ func (e *engine) inferNode(n *model.Node, ins []*Value, sc *scope, path string) 
 		// Rules name what they make after the first output.
 		return nil, fmt.Errorf("the node declares no outputs")
 	}
-	c := &ctx{e: e, node: n, in: ins, sc: sc, path: path, opset: e.opsetFor(domain)}
+	c := &ctx{e: e, node: n, in: ins, sc: sc, path: path, opset: e.opsetFor(domain), idx: e.cur}
 	outs, err := rule.infer(c)
 	if err != nil {
 		return nil, err
@@ -450,4 +515,38 @@ func (r *Inference) UnresolvedSummary() string {
 	}
 	sort.Strings(lines)
 	return strings.Join(lines, "\n")
+}
+
+// inputsOf lists the main graph's runtime inputs that value name depends
+// on, through the nodes met so far (and the subgraphs they hold), sorted.
+func (e *engine) inputsOf(name string) []string {
+	seen := map[string]bool{}
+	var out []string
+	stack := []string{name}
+	for len(stack) > 0 && len(seen) < 1<<16 {
+		v := stack[len(stack)-1]
+		stack = stack[:len(stack)-1]
+		if v == "" || seen[v] {
+			continue
+		}
+		seen[v] = true
+		if e.inputs[v] {
+			out = append(out, v)
+			continue
+		}
+		n := e.producers[v]
+		if n == nil {
+			continue
+		}
+		stack = append(stack, n.Inputs...)
+		for _, a := range n.Attrs {
+			for _, g := range append([]*model.Graph{a.Graph}, a.Graphs...) {
+				if g != nil {
+					forEachNestedInput(g, func(s string) { stack = append(stack, s) })
+				}
+			}
+		}
+	}
+	sort.Strings(out)
+	return out
 }

@@ -29,7 +29,8 @@ import (
 //     sequences) is left out and listed as unresolved, so that an
 //     incomplete figure says so rather than counting it as zero.
 //   - Subgraph bodies (If, Loop, Scan): the body's own graph-view peak is
-//     added at the control-flow node's step (for If, the larger branch's),
+//     added at the control-flow node's step (for If, the branch it runs
+//     when its condition is known, else the larger branch's),
 //     and in the arena the body is one block of its own arena size live at
 //     that step. Loop iterations reuse one body's memory.
 //
@@ -165,7 +166,7 @@ func planGraph(g *model.Graph, vals map[string]*Value, subs map[*model.Graph]map
 				r.last = i
 			}
 		}
-		hasBody := plan.bodies(n, i, depth, subs, bodyPeak, bodyArena,
+		hasBody := plan.bodies(n, i, depth, vals, subs, bodyPeak, bodyArena,
 			func(name string) {
 				if r := recs[name]; r != nil {
 					r.last = i
@@ -226,10 +227,28 @@ func planGraph(g *model.Graph, vals map[string]*Value, subs map[*model.Graph]map
 // largest body peak and arena at step i, and calls use with every name the
 // bodies read, so that outer tensors stay live through the node. It
 // reports whether n has a subgraph.
-func (plan *MemoryPlan) bodies(n *model.Node, i, depth int, subs map[*model.Graph]map[string]*Value, bodyPeak, bodyArena map[int]int64,
+func (plan *MemoryPlan) bodies(n *model.Node, i, depth int, vals map[string]*Value, subs map[*model.Graph]map[string]*Value, bodyPeak, bodyArena map[int]int64,
 	use func(string), planBody func(*model.Graph, map[string]*Value) *MemoryPlan) bool {
 	hasBody := false
+	// An If whose condition is known runs one branch; the other was not
+	// inferred and takes no memory.
+	taken := takenBranch(n, vals[n.Input(0)])
+	if n.Op == "If" && taken == "" {
+		// The condition may come from an enclosing graph: the branch
+		// inference alone inferred is the one taken.
+		th, el := n.Attr("then_branch"), n.Attr("else_branch")
+		if th != nil && el != nil && th.Graph != nil && el.Graph != nil {
+			_, tOK := subs[th.Graph]
+			_, eOK := subs[el.Graph]
+			if tOK != eOK {
+				taken = map[bool]string{true: "then_branch", false: "else_branch"}[tOK]
+			}
+		}
+	}
 	for _, a := range n.Attrs {
+		if taken != "" && a.Name != taken {
+			continue
+		}
 		bodies := a.Graphs
 		if a.Graph != nil {
 			bodies = append([]*model.Graph{a.Graph}, bodies...)

@@ -25,6 +25,15 @@ type Metrics struct {
 	Outputs       []IOInfo     `json:"outputs"`
 	Unresolved    []Unresolved `json:"unresolved"`
 	Error         string       `json:"error"`
+	// MissingBindings says, one entry per binding, which bindings the
+	// unresolved figures wait for (bind.go).
+	MissingBindings []MissingBinding `json:"missing_bindings"`
+	// BindingIssues are the bindings that did not fit the model, with
+	// Options.Lenient (they were ignored).
+	BindingIssues []BindingIssue `json:"binding_issues,omitempty"`
+	// DecidedIfs lists the If nodes whose condition was known: only the
+	// branch taken is inferred, costed and planned.
+	DecidedIfs []DecidedIf `json:"decided_ifs,omitempty"`
 
 	// ParamsByDType breaks param_bytes down by dtype.
 	ParamsByDType []DTypeBytes `json:"params_by_dtype"`
@@ -55,8 +64,14 @@ type IOInfo struct {
 
 // Options steers measuring.
 type Options struct {
-	// Dims binds symbolic dims by name.
-	Dims map[string]int64
+	// Dims binds symbolic dims by name, Shapes whole input shapes and
+	// Values small inputs' contents, by input name (bind.go).
+	Dims   map[string]int64
+	Shapes map[string][]int64
+	Values map[string][]float64
+	// Lenient ignores the bindings that do not fit the model, listing them
+	// in Metrics.BindingIssues, instead of failing.
+	Lenient bool
 	// Deploy chooses the deployed view's rewrites; nil is
 	// DefaultDeployOptions.
 	Deploy *DeployOptions
@@ -67,7 +82,7 @@ type Options struct {
 // Measure infers shapes and computes the figures of a decoded model.
 // fileBytes is the size of the model file as stored.
 func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
-	inf, err := Infer(m, InferOptions{Dims: opts.Dims})
+	inf, err := Infer(m, InferOptions{Dims: opts.Dims, Shapes: opts.Shapes, Values: opts.Values, Lenient: opts.Lenient})
 	if err != nil {
 		return nil, err
 	}
@@ -128,6 +143,8 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	for _, in := range inf.Inputs {
 		out.Inputs = append(out.Inputs, ioInfo(in))
 	}
+	out.BindingIssues, out.DecidedIfs = inf.BindingIssues, inf.Decided
+	out.MissingBindings = missingBindings(inf, out.Unresolved)
 	for _, o := range inf.Outputs {
 		out.Outputs = append(out.Outputs, ioInfo(o))
 	}

@@ -2,6 +2,7 @@ package measure
 
 import (
 	"fmt"
+	"strings"
 
 	"github.com/loadline/loadline/model"
 )
@@ -101,22 +102,63 @@ func inferIf(c *ctx) ([]*Value, error) {
 	if err != nil {
 		return nil, err
 	}
+	// A known condition runs one branch: only that one is inferred, and
+	// so costed and planned.
+	if cond, ok := c.constInts(0); ok && len(cond) == 1 {
+		taken, name := elseG, "else_branch"
+		if cond[0] != 0 {
+			taken, name = thenG, "then_branch"
+		}
+		outs, _, err := c.e.inferSubgraph(taken, c.sc, nil, c.path+"."+name)
+		if err != nil {
+			return nil, err
+		}
+		if c.e.quiet == 0 {
+			c.e.decided = append(c.e.decided, DecidedIf{Node: c.label(), Branch: name})
+		}
+		return outs, nil
+	}
+	deps := c.e.inputsOf(c.node.Input(0))
+	start := len(c.e.unresolved)
+	mark := start
 	thenOut, _, err := c.e.inferSubgraph(thenG, c.sc, nil, c.path+".then_branch")
 	if err != nil {
 		return nil, err
 	}
+	thenBad := c.e.unresolved[mark:len(c.e.unresolved):len(c.e.unresolved)]
+	mark = len(c.e.unresolved)
 	elseOut, _, err := c.e.inferSubgraph(elseG, c.sc, nil, c.path+".else_branch")
 	if err != nil {
 		return nil, err
 	}
+	elseBad := c.e.unresolved[mark:len(c.e.unresolved):len(c.e.unresolved)]
 	if len(thenOut) != len(elseOut) {
 		return nil, fmt.Errorf("then_branch has %d outputs, else_branch %d", len(thenOut), len(elseOut))
 	}
-	if cond, ok := c.constInts(0); ok && len(cond) == 1 {
-		if cond[0] != 0 {
-			return thenOut, nil
+	if c.e.quiet == 0 {
+		c.e.undecided = append(c.e.undecided, UndecidedIf{Node: c.label(), Inputs: deps})
+		// A branch that cannot be inferred for the bound inputs is said
+		// to be so, with the binding that would decide the condition,
+		// ahead of its nodes' own entries.
+		var head []Unresolved
+		for _, b := range []struct {
+			name string
+			bad  []Unresolved
+		}{{"then_branch", thenBad}, {"else_branch", elseBad}} {
+			if len(b.bad) == 0 {
+				continue
+			}
+			head = append(head, Unresolved{Node: c.label(), Op: "If",
+				Reason: fmt.Sprintf("%s cannot be inferred for the bound inputs (%d node(s), first %s: %s); %s",
+					b.name, len(b.bad), b.bad[0].Node, b.bad[0].Reason, decideHint(deps))})
 		}
-		return elseOut, nil
+		if len(head) > 0 {
+			tail := append([]Unresolved{}, c.e.unresolved[start:]...)
+			for j := range tail {
+				tail[j].Reason += fmt.Sprintf(" (in a branch of If %s; %s)", c.label(), decideHint(deps))
+			}
+			c.e.unresolved = append(c.e.unresolved[:start:start], append(head, tail...)...)
+		}
 	}
 	outs := make([]*Value, len(thenOut))
 	for i := range outs {
@@ -127,6 +169,19 @@ func inferIf(c *ctx) ([]*Value, error) {
 		outs[i] = mergeValues(thenOut[i], elseOut[i], name)
 	}
 	return outs, nil
+}
+
+// decideHint says which bindings would decide a condition depending on
+// the runtime inputs deps.
+func decideHint(deps []string) string {
+	if len(deps) == 0 {
+		return "its condition is computed at run time from no graph input"
+	}
+	flags := make([]string, len(deps))
+	for i, d := range deps {
+		flags[i] = "--value " + d + "=V"
+	}
+	return "its condition depends on input(s) " + strings.Join(deps, ", ") + ": bind " + strings.Join(flags, " ") + " to decide which branch runs"
 }
 
 // stack prepends a dim to every element of a per-iteration output.

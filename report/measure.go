@@ -73,24 +73,63 @@ func MeasureText(w io.Writer, entries []*measure.Metrics) error {
 		for _, io := range m.Outputs {
 			fmt.Fprintf(w, "  output  %s %s%s\n", io.Name, io.DType, shapeText(io.Shape))
 		}
-		if n := len(m.Unresolved); n > 0 {
-			if syms := inputSymbols(m); len(syms) > 0 {
-				fmt.Fprintf(w, "  note: input dims %s are symbolic; bind them (--dim %s=1) to count MACs and memory\n", strings.Join(syms, ", "), syms[0])
-			}
-			fmt.Fprintf(w, "  unresolved: %d node(s); figures marked ≥ leave them out\n", n)
-			for j, u := range m.Unresolved {
-				if j == 10 {
-					fmt.Fprintf(w, "    … and %d more (see --json)\n", n-10)
-					break
-				}
-				fmt.Fprintf(w, "    %s (%s): %s\n", u.Node, u.Op, u.Reason)
-			}
+		if len(m.Unresolved) > 0 || len(m.MissingBindings) > 0 {
+			unresolvedText(w, m)
 		}
 		if len(m.Layers) > 0 {
 			layersText(w, m)
 		}
 	}
 	return nil
+}
+
+// unresolvedText says what the figures marked ≥ wait for: one line per
+// missing binding (input, axis, what it blocks, the flag that gives it),
+// the count of unresolved nodes, and those no missing binding explains
+// (at most 10; --json keeps the full list).
+func unresolvedText(w io.Writer, m *measure.Metrics) {
+	n := len(m.Unresolved)
+	if len(m.MissingBindings) > 0 {
+		fmt.Fprintln(w, "  needs bindings:")
+		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+		for _, b := range m.MissingBindings {
+			where := fmt.Sprintf("input %s, axis %d", b.Input, b.Axis)
+			if b.Axis < 0 {
+				where = fmt.Sprintf("input %s, its value", b.Input)
+			}
+			fmt.Fprintf(tw, "    %s\t%s\t%s\tbind with %s\n", b.Name, where, b.Blocks, b.Bind)
+		}
+		tw.Flush()
+	}
+	if n == 0 {
+		return
+	}
+	explained := map[string]bool{}
+	for _, u := range m.Unresolved {
+		for _, b := range m.MissingBindings {
+			if measure.Waits(u, b) {
+				explained[u.Node+"\x00"+u.Reason] = true
+			}
+		}
+	}
+	var rest []measure.Unresolved
+	for _, u := range m.Unresolved {
+		if !explained[u.Node+"\x00"+u.Reason] {
+			rest = append(rest, u)
+		}
+	}
+	fmt.Fprintf(w, "  unresolved: %d node(s); figures marked ≥ leave them out", n)
+	if len(rest) < n {
+		fmt.Fprintf(w, " (%d wait for the bindings above; --json lists every one)", n-len(rest))
+	}
+	fmt.Fprintln(w)
+	for j, u := range rest {
+		if j == 10 {
+			fmt.Fprintf(w, "    … and %d more (see --json)\n", len(rest)-10)
+			break
+		}
+		fmt.Fprintf(w, "    %s (%s): %s\n", u.Node, u.Op, u.Reason)
+	}
 }
 
 // layersText writes the per-node table, the top contributors to MACs and to
@@ -153,19 +192,4 @@ func shapeText(s []any) string {
 		parts[i] = fmt.Sprint(d)
 	}
 	return "[" + strings.Join(parts, ",") + "]"
-}
-
-// inputSymbols lists the symbolic dims of the graph inputs, in order.
-func inputSymbols(m *measure.Metrics) []string {
-	var out []string
-	seen := map[string]bool{}
-	for _, in := range m.Inputs {
-		for _, d := range in.Shape {
-			if s, ok := d.(string); ok && !seen[s] {
-				seen[s] = true
-				out = append(out, s)
-			}
-		}
-	}
-	return out
 }

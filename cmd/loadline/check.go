@@ -117,6 +117,7 @@ func pipelineExit(err error) error {
 func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 	var o check.Options
 	var rf renderFlags
+	var bind bindFlags
 	var prePush, post, postRequired bool
 	cmd := &cobra.Command{
 		Use:   "check [--base REV] [--head REV | --staged | --pre-push] [--all] [--budget FILE] [--format text|markdown|json|junit] [--out FILE]",
@@ -154,6 +155,10 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 			if prePush {
 				o.PrePush = stdin
 			}
+			var err error
+			if o.Bindings, err = bind.parse(); err != nil {
+				return &exitError{exitUsage, err}
+			}
 			o.Progress = stderr
 			res, stats, err := check.Run(o)
 			if err != nil {
@@ -183,6 +188,7 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 	f.BoolVar(&o.Strict, "strict", false, "fail models that no budget rule covers (default: warn)")
 	f.BoolVar(&o.NoCache, "no-cache", false, "measure everything again instead of using cached figures")
 	f.BoolVar(&post, "post", false, "post the report where reviewers look (pull-request comment, job summary, annotations), detected from the CI environment")
+	bind.register(cmd)
 	f.BoolVar(&postRequired, "post-required", false, "with --post, exit 3 when posting fails or nothing could be posted: no CI platform detected, no token and no job summary file (default: warn and keep the verdict)")
 	rf.register(cmd)
 	return cmd
@@ -218,6 +224,7 @@ func postResult(res *budget.Result, stdout, stderr io.Writer) error {
 func newCompareCmd(stdout io.Writer) *cobra.Command {
 	var o check.CompareOptions
 	var rf renderFlags
+	var bind bindFlags
 	cmd := &cobra.Command{
 		Use:   "compare OLD NEW [--budget FILE] [--as PATH] [--format text|markdown|json|junit]",
 		Short: "Judge two model files outside git, OLD as the base and NEW as the head",
@@ -228,6 +235,10 @@ func newCompareCmd(stdout io.Writer) *cobra.Command {
 				return &exitError{exitUsage, err}
 			}
 			o.Old, o.New = args[0], args[1]
+			var err error
+			if o.Bindings, err = bind.parse(); err != nil {
+				return &exitError{exitUsage, err}
+			}
 			res, err := check.Compare(o)
 			if err != nil {
 				return pipelineExit(err)
@@ -238,6 +249,7 @@ func newCompareCmd(stdout io.Writer) *cobra.Command {
 	cmd.Flags().StringVar(&o.BudgetFile, "budget", "", "budget file (default ./loadline.yaml)")
 	cmd.Flags().StringVar(&o.As, "as", "", "the repository path whose budget rule applies (default NEW's path)")
 	cmd.Flags().BoolVar(&o.Strict, "strict", false, "fail when no budget rule covers the model")
+	bind.register(cmd)
 	rf.register(cmd)
 	return cmd
 }

@@ -8,6 +8,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"strconv"
 	"strings"
@@ -54,10 +55,11 @@ const conventions = `Figures (static estimates from the model file; measure on t
                normalisation and quantization ops, one per window element per
                output of pooling, one per input element of reductions; data
                movement (Reshape, Transpose, Concat, …) is 0. A 1-GMAC model is a
-               2-GFLOP model. If counts its costlier branch, Loop and Scan their
-               body × trip count (once, and listed as unresolved, when unknown).
-               Nodes whose shapes have unbound symbolic dims are listed as
-               unresolved and left out; bind them with --dim batch=1.
+               2-GFLOP model. If runs only its branch when the condition is known
+               (constants, --value), else counts its costlier branch; Loop and Scan
+               their body × trip count (once, and listed as unresolved, when
+               unknown). Nodes whose shapes have unbound symbolic dims are listed
+               as unresolved and left out; bind them with --dim batch=1.
   sparsity     share of weight elements exactly zero, read from the weight bytes.
   activations  graph view: in the file's node order, each run-time tensor is live
                from its producer's step through its last consumer's; peak live =
@@ -71,9 +73,17 @@ const conventions = `Figures (static estimates from the model file; measure on t
                and x*Relu6(x+3)/6; GELU with Erf or Tanh; Mish). Views: Reshape,
                Flatten, Squeeze, Unsqueeze, Identity, a Cast to the same dtype, an
                inference Dropout; fusions see through chains of them.
-  shapes       inferred for every tensor; symbolic dims stay symbols unless bound
-               with --dim NAME=VALUE. Nodes whose shapes cannot be inferred are
-               listed as unresolved, with the reason.
+  shapes       inferred for every tensor; symbolic dims stay symbols unless bound.
+               Nodes whose shapes cannot be inferred are listed as unresolved, with
+               the reason.
+  bindings     --dim NAME=N sizes a symbolic input dim (an unnamed one is INPUT.AXIS,
+               e.g. audio.1); --shape NAME=1x512 gives input NAME its whole shape;
+               --value NAME=16000 (or 1,2,3) gives a small input its contents for
+               constant folding. A budget rule's dims: and inputs: ({audio: [1, 512],
+               rate: 16000}) do the same. Sizes are from 1 up; a binding naming
+               nothing, or not fitting the input, is an error listing the inputs (in
+               check: only for a model still waiting for a binding). Unbound models
+               list each missing binding with what waits for it.
 Units: B, KiB, MiB (1024-based) for bytes; k, M, G (1000-based) for counts.`
 
 func main() {
@@ -161,21 +171,23 @@ func newRoot(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 
 func newMeasureCmd(stdout io.Writer) *cobra.Command {
 	var asJSON, layers bool
-	var dims []string
+	var bind bindFlags
 	var deploy deployFlags
 	cmd := &cobra.Command{
-		Use:   "measure [--json] [--dim NAME=VALUE]... FILE...",
+		Use:   "measure [--json] [--layers] [--dim NAME=N]... [--shape NAME=1x512]... [--value NAME=V]... FILE...",
 		Short: "Print the figures of model files (no git, no budget)",
 		Long:  "Decode each model file, infer every tensor's shape and print its figures.\n\n" + conventions,
 		Example: "  loadline measure models/kws.onnx\n" +
-			"  loadline measure --dim batch=1 --json models/*.onnx",
+			"  loadline measure --dim batch=1 --json models/*.onnx\n" +
+			"  loadline measure --shape audio=1x16000 --value rate=16000 models/kws.onnx",
 		Args: cobra.MinimumNArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			bound, err := parseDims(dims)
+			bound, err := bind.parse()
 			if err != nil {
 				return &exitError{exitUsage, err}
 			}
-			entries := check.MeasureFiles(args, measure.Options{Dims: bound, Layers: layers, Deploy: deploy.options()})
+			entries := check.MeasureFiles(args, measure.Options{Dims: bound.Dims, Shapes: bound.Shapes, Values: bound.Values,
+				Layers: layers, Deploy: deploy.options()})
 			if asJSON {
 				err = report.MeasureJSON(stdout, entries)
 			} else {
@@ -197,7 +209,7 @@ func newMeasureCmd(stdout io.Writer) *cobra.Command {
 		},
 	}
 	cmd.Flags().BoolVar(&asJSON, "json", false, "print the "+report.MeasureSchema+" JSON document")
-	cmd.Flags().StringArrayVar(&dims, "dim", nil, "bind a symbolic dimension, NAME=VALUE (repeatable)")
+	bind.register(cmd)
 	cmd.Flags().BoolVar(&layers, "layers", false, "add the per-node table, the top contributors to MACs and memory, and the peak's live tensors")
 	deploy.register(cmd)
 	return cmd
@@ -227,20 +239,79 @@ func (d *deployFlags) options() *measure.DeployOptions {
 	return &o
 }
 
-// parseDims reads --dim NAME=VALUE flags.
-func parseDims(flags []string) (map[string]int64, error) {
-	out := map[string]int64{}
-	for _, f := range flags {
-		name, val, ok := strings.Cut(f, "=")
-		name = strings.TrimSpace(name)
-		if !ok || name == "" {
-			return nil, fmt.Errorf("--dim %q: want NAME=VALUE, e.g. --dim batch=1", f)
+// bindFlags are --dim, --shape and --value: bindings of models' inputs.
+type bindFlags struct {
+	dims, shapes, values []string
+}
+
+func (b *bindFlags) register(cmd *cobra.Command) {
+	f := cmd.Flags()
+	f.StringArrayVar(&b.dims, "dim", nil, "bind a symbolic input dim, NAME=N (N from 1; an unnamed dim is INPUT.AXIS, e.g. audio.1) (repeatable)")
+	f.StringArrayVar(&b.shapes, "shape", nil, "give input NAME its whole shape, NAME=1x512 (repeatable)")
+	f.StringArrayVar(&b.values, "value", nil, "give small input NAME its value for constant folding, NAME=16000 or NAME=1,2,3 (repeatable)")
+}
+
+// parse reads the flags.
+func (b *bindFlags) parse() (check.Bindings, error) {
+	out := check.Bindings{Dims: map[string]int64{}, Shapes: map[string][]int64{}, Values: map[string][]float64{}}
+	split := func(flag, f, example string) (string, string, error) {
+		i := strings.LastIndex(f, "=")
+		if i <= 0 || strings.TrimSpace(f[:i]) == "" {
+			return "", "", fmt.Errorf("--%s %q: want NAME=VALUE, e.g. --%s %s", flag, f, flag, example)
 		}
-		v, err := strconv.ParseInt(strings.TrimSpace(val), 10, 64)
-		if err != nil || v < 0 {
-			return nil, fmt.Errorf("--dim %q: the value must be a non-negative integer", f)
+		return strings.TrimSpace(f[:i]), strings.TrimSpace(f[i+1:]), nil
+	}
+	size := func(flag, f, v string) (int64, error) {
+		n, err := strconv.ParseInt(v, 10, 64)
+		if err != nil || n < 1 || n > 1<<40 {
+			return 0, fmt.Errorf("--%s %q: %q is not a size (a whole number from 1 up)", flag, f, v)
 		}
-		out[name] = v
+		return n, nil
+	}
+	for _, f := range b.dims {
+		name, v, err := split("dim", f, "batch=1")
+		if err != nil {
+			return out, err
+		}
+		if out.Dims[name], err = size("dim", f, v); err != nil {
+			return out, err
+		}
+	}
+	for _, f := range b.shapes {
+		name, v, err := split("shape", f, "audio=1x512")
+		if err != nil {
+			return out, err
+		}
+		parts := strings.FieldsFunc(v, func(r rune) bool { return r == 'x' || r == 'X' || r == ',' })
+		if len(parts) == 0 || len(parts) > 64 {
+			return out, fmt.Errorf("--shape %q: want sizes joined by x, e.g. --shape audio=1x512", f)
+		}
+		shape := make([]int64, len(parts))
+		for i, p := range parts {
+			if shape[i], err = size("shape", f, strings.TrimSpace(p)); err != nil {
+				return out, err
+			}
+		}
+		out.Shapes[name] = shape
+	}
+	for _, f := range b.values {
+		name, v, err := split("value", f, "rate=16000")
+		if err != nil {
+			return out, err
+		}
+		parts := strings.Split(v, ",")
+		if len(parts) > 1<<16 {
+			return out, fmt.Errorf("--value %q: at most %d values", f, 1<<16)
+		}
+		vals := make([]float64, len(parts))
+		for i, p := range parts {
+			x, err := strconv.ParseFloat(strings.TrimSpace(p), 64)
+			if err != nil || math.IsNaN(x) || math.IsInf(x, 0) {
+				return out, fmt.Errorf("--value %q: %q is not a number", f, p)
+			}
+			vals[i] = x
+		}
+		out.Values[name] = vals
 	}
 	return out, nil
 }
