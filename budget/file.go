@@ -12,6 +12,7 @@ import (
 	"strconv"
 	"strings"
 	"time"
+	"unicode/utf8"
 
 	"github.com/bmatcuk/doublestar/v4"
 	"go.yaml.in/yaml/v3"
@@ -211,6 +212,9 @@ var parserProblems = map[string]string{
 
 // document reads the single YAML document of a budget file.
 func (d *decoder) document(data []byte) (*yaml.Node, *Error) {
+	if line, col, msg, bad := badChar(data); bad {
+		return nil, &Error{File: d.name, Line: line, Column: col, Msg: msg, Hint: "a budget file is UTF-8 text: remove it"}
+	}
 	dec := yaml.NewDecoder(bytes.NewReader(data))
 	var doc yaml.Node
 	if err := dec.Decode(&doc); err != nil {
@@ -248,9 +252,122 @@ func (d *decoder) yamlError(err error, data []byte) *Error {
 			// line of the construct being parsed: make it 1-based.
 			line++
 		}
-		return &Error{File: d.name, Line: line, Msg: "not valid YAML: " + m[2], Hint: hint}
+		return &Error{File: d.name, Line: line, Column: problemColumn(data, line, m[2]), Msg: "not valid YAML: " + m[2], Hint: hint}
 	}
-	return &Error{File: d.name, Msg: "not valid YAML: " + strings.TrimPrefix(msg, "yaml: ")}
+	problem := strings.TrimPrefix(msg, "yaml: ")
+	e := &Error{File: d.name, Msg: "not valid YAML: " + problem}
+	switch a := yamlAnchor.FindStringSubmatch(problem); {
+	case a != nil:
+		// yaml.v3 gives no place for an alias: the first "*name" in the
+		// file is it.
+		e.Line, e.Column = find(data, "*"+a[1]+a[2])
+	case problem == "document contains excessive aliasing":
+		e.Line, e.Column = find(data, "*")
+	}
+	if e.Line == 0 {
+		// yaml.v3 leaves out the line of a scanner or parser error on
+		// the first line (its 0-based line 0).
+		e.Line, e.Column = 1, problemColumn(data, 1, problem)
+	}
+	return e
+}
+
+var yamlAnchor = regexp.MustCompile(`^(?:unknown anchor '([^']*)' referenced|anchor '([^']*)' value contains itself)$`)
+
+// problemColumn places a YAML error that yaml.v3 gives only a line for:
+// on the character the scanner stopped at where its words say which
+// (a reserved indicator, an unknown escape, a ':' out of place) or on the
+// opening of the construct left unfinished ('{', '[', '-'), else on the
+// first character of the line, where the construct it names starts.
+// Columns count characters, as yaml.v3's do, from 1.
+func problemColumn(data []byte, line int, problem string) int {
+	lines := bytes.Split(data, []byte("\n"))
+	if line < 1 || line > len(lines) {
+		return 1
+	}
+	text := string(lines[line-1])
+	at := -1
+	switch {
+	case strings.HasPrefix(problem, "found character that cannot start any token"):
+		at = strings.IndexAny(text, "@`")
+	case strings.HasPrefix(problem, "found unknown escape character"):
+		for i := 0; i+1 < len(text); i++ {
+			if text[i] == '\\' {
+				if !strings.ContainsRune("0abtnvfre \"/\\N_LPxuU\t", rune(text[i+1])) {
+					at = i
+					break
+				}
+				i++
+			}
+		}
+	case problem == "did not find expected ',' or '}'":
+		at = strings.IndexByte(text, '{')
+	case problem == "did not find expected ',' or ']'":
+		at = strings.IndexByte(text, '[')
+	case problem == "did not find expected '-' indicator":
+		at = strings.IndexByte(text, '-')
+	case strings.HasPrefix(problem, "mapping values are not allowed"):
+		if i := strings.Index(text, ": "); i >= 0 {
+			at = i
+		} else if strings.HasSuffix(text, ":") {
+			at = len(text) - 1
+		}
+	}
+	if at < 0 {
+		at = len(text) - len(strings.TrimLeft(text, " "))
+	}
+	return utf8.RuneCountInString(text[:at]) + 1
+}
+
+// find returns the 1-based line and column (in characters) of the first
+// occurrence of s in data; 0, 0 when there is none.
+func find(data []byte, s string) (line, col int) {
+	i := bytes.Index(data, []byte(s))
+	if i < 0 {
+		return 0, 0
+	}
+	before := data[:i]
+	line = bytes.Count(before, []byte("\n")) + 1
+	start := bytes.LastIndexByte(before, '\n') + 1
+	return line, utf8.RuneCount(before[start:]) + 1
+}
+
+// badChar finds the first character a YAML stream may not hold, with its
+// 1-based line and column in characters: invalid UTF-8, and any character
+// outside YAML's printable set (YAML 1.2.2, 5.1 Character Set, c-printable:
+// tab, LF, CR, U+0020-U+007E, U+0085, U+00A0-U+D7FF, U+E000-U+FFFD,
+// U+10000 and above), a NUL byte among them. yaml.v3 names no place for
+// these.
+func badChar(data []byte) (line, col int, msg string, bad bool) {
+	line, col = 1, 1
+	for i := 0; i < len(data); {
+		r, n := utf8.DecodeRune(data[i:])
+		switch {
+		case r == utf8.RuneError && n <= 1:
+			return line, col, fmt.Sprintf("invalid UTF-8 (byte 0x%02x)", data[i]), true
+		case r == 0:
+			return line, col, "a NUL byte", true
+		case !yamlPrintable(r):
+			return line, col, fmt.Sprintf("control character %U, which YAML does not allow", r), true
+		}
+		if r == '\n' {
+			line, col = line+1, 1
+		} else {
+			col++
+		}
+		i += n
+	}
+	return 0, 0, "", false
+}
+
+func yamlPrintable(r rune) bool {
+	switch {
+	case r == '\t' || r == '\n' || r == '\r' || r == 0x85:
+		return true
+	case r >= 0x20 && r <= 0x7E, r >= 0xA0 && r <= 0xD7FF, r >= 0xE000 && r <= 0xFFFD, r >= 0x10000 && r <= 0x10FFFF:
+		return true
+	}
+	return false
 }
 
 // tabColumn returns the 1-based column of the first tab on a 1-based line

@@ -1,6 +1,7 @@
 package budget
 
 import (
+	"errors"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -27,6 +28,9 @@ func FuzzParse(f *testing.F) {
 	f.Add([]byte(diffHead))
 	f.Add([]byte("version: 1\nmodels: &a [*a]\n"))
 	f.Add([]byte("a: &a {<<: [*a, *a]}\n"))
+	f.Add([]byte("version: 1\nmodels:\n  - path: \"a\x00b\"\n"))
+	f.Add([]byte("version: 1\nx: 'open\n"))
+	f.Add([]byte("version: 1\nmodels: *nope\n"))
 	inputs := []Input{
 		{Path: "models/porch/bird.onnx", Change: Modified, Base: fig(1000, 10, 2000, 5), Head: fig(2000, 20, 4000, 10)},
 		{Path: "models/kitchen/stop.onnx", Change: Added, Head: &Figures{Unknown: map[string]string{MetricArena: "x"}}},
@@ -40,6 +44,16 @@ func FuzzParse(f *testing.F) {
 			}
 			if strings.TrimSpace(err.Error()) == "" {
 				t.Fatal("an empty error")
+			}
+			// A YAML syntax error, a bad byte or character is placed.
+			var es Errors
+			if errors.As(err, &es) {
+				for _, e := range es {
+					if (strings.HasPrefix(e.Msg, "not valid YAML") || strings.Contains(e.Msg, "UTF-8") || strings.Contains(e.Msg, "NUL") ||
+						strings.HasPrefix(e.Msg, "control character")) && (e.Line <= 0 || e.Column <= 0) {
+						t.Fatalf("%q: no line and column: %v", data, e)
+					}
+				}
 			}
 			return
 		}

@@ -193,13 +193,13 @@ devices:
 		{"yaml syntax", `version: 1
 devices:
   porch-cam: {ram: 1
-`, []string{`loadline.yaml:3: not valid YAML: did not find expected ',' or '}' (is a { } mapping starting on this line left open?)`}},
+`, []string{`loadline.yaml:3:14: not valid YAML: did not find expected ',' or '}' (is a { } mapping starting on this line left open?)`}},
 		{"yaml indentation", `version: 1
 models:
   - path: a
     device: porch-cam
    limits: {}
-`, []string{`loadline.yaml:3: not valid YAML: did not find expected '-' indicator (check the indentation of the list starting on this line)`}},
+`, []string{`loadline.yaml:3:3: not valid YAML: did not find expected '-' indicator (check the indentation of the list starting on this line)`}},
 		{"two documents", `version: 1
 ---
 version: 1
@@ -207,7 +207,23 @@ version: 1
 		{"empty", ``, []string{`loadline.yaml: empty budget file (start with version: 1)`}},
 		{"unknown anchor", `version: 1
 models: *nope
-`, []string{`loadline.yaml: not valid YAML: unknown anchor 'nope' referenced`}},
+`, []string{`loadline.yaml:2:9: not valid YAML: unknown anchor 'nope' referenced`}},
+		// YAML 1.2.2, 5.1 Character Set: a stream holds UTF-8 text of
+		// printable characters; each bad one is placed (hand-counted).
+		{"nul byte", "version: 1\nmodels:\n  - path: \"a\x00b\"\n",
+			[]string{`loadline.yaml:3:13: a NUL byte (a budget file is UTF-8 text: remove it)`}},
+		{"invalid utf-8", "version: 1\nmodels:\n  - path: a\xffb\n",
+			[]string{`loadline.yaml:3:12: invalid UTF-8 (byte 0xff) (a budget file is UTF-8 text: remove it)`}},
+		{"control character after multibyte text", "version: 1\n# é\x07\n",
+			[]string{`loadline.yaml:2:4: control character U+0007, which YAML does not allow (a budget file is UTF-8 text: remove it)`}},
+		{"unknown escape", "version: 1\nmodels:\n  - path: \"a\\qb\"\n",
+			[]string{`loadline.yaml:3:13: not valid YAML: found unknown escape character`}},
+		{"value where a key ends", "version: 1\n  bad: indent\n",
+			[]string{`loadline.yaml:2:6: not valid YAML: mapping values are not allowed in this context`}},
+		{"reserved indicator", "version: 1\nx: @at\n",
+			[]string{`loadline.yaml:2:4: not valid YAML: found character that cannot start any token`}},
+		{"unterminated quote", "version: 1\nx: 'open\n",
+			[]string{`loadline.yaml:2:1: not valid YAML: found unexpected end of stream`}},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {

@@ -119,6 +119,10 @@ type Snapshot struct {
 	treeMu sync.Mutex
 	files  map[string]plumbing.Hash // for the index
 	links  map[string]bool          // the index's symbolic links
+	subs   []string                 // submodules (the index's, or a commit's once listed)
+	// paths and listed cache a commit's file list (see list).
+	paths  []string
+	listed bool
 }
 
 // Resolve returns the snapshot of a revision ("HEAD", "origin/main", a hash).
@@ -161,10 +165,14 @@ func (r *Repo) Index() (*Snapshot, error) {
 	}
 	files := make(map[string]plumbing.Hash, len(idx.Entries))
 	links := map[string]bool{}
+	var subs []string
 	for _, e := range idx.Entries {
 		// Submodules are no files; an unmerged path has no staged content
 		// yet; an intent-to-add entry (git add -N) names the empty blob
 		// and git commit leaves it out.
+		if e.Mode == filemode.Submodule && e.Stage == 0 {
+			subs = append(subs, e.Name)
+		}
 		if e.Mode == filemode.Submodule || e.Stage != 0 || e.IntentToAdd {
 			continue
 		}
@@ -173,7 +181,8 @@ func (r *Repo) Index() (*Snapshot, error) {
 			links[e.Name] = true
 		}
 	}
-	return &Snapshot{repo: r, Label: "index", files: files, links: links}, nil
+	sort.Strings(subs)
+	return &Snapshot{repo: r, Label: "index", files: files, links: links, subs: subs}, nil
 }
 
 // MergeBase returns the best common ancestor of two revisions.
@@ -280,12 +289,23 @@ func (s *Snapshot) Paths() ([]string, error) {
 		sort.Strings(out)
 		return out, nil
 	}
-	// Walk the trees only: tree.Files() would load every blob of the
-	// revision, all the models' bytes included, and fail in a blobless
-	// clone on a blob nobody asked for.
-	var out []string
+	if err := s.list(); err != nil {
+		return nil, err
+	}
+	return append([]string(nil), s.paths...), nil
+}
+
+// list walks a commit's trees once, keeping its file paths and its
+// submodules. It walks the trees only: tree.Files() would load every blob
+// of the revision, all the models' bytes included, and fail in a blobless
+// clone on a blob nobody asked for.
+func (s *Snapshot) list() error {
 	s.treeMu.Lock()
 	defer s.treeMu.Unlock()
+	if s.listed {
+		return nil
+	}
+	var paths, subs []string
 	w := object.NewTreeWalker(s.tree, true, nil)
 	defer w.Close()
 	// Listing only: no name reaches the file system, so a name git
@@ -299,14 +319,31 @@ func (s *Snapshot) Paths() ([]string, error) {
 			break
 		}
 		if err != nil {
-			return nil, &EnvError{Err: fmt.Errorf("listing the files of %s: %w", s.Label, err), Hint: "fetch the revision's trees (git fetch)"}
+			return &EnvError{Err: fmt.Errorf("listing the files of %s: %w", s.Label, err), Hint: "fetch the revision's trees (git fetch)"}
 		}
-		if e.Mode.IsFile() {
-			out = append(out, name)
+		switch {
+		case e.Mode.IsFile():
+			paths = append(paths, name)
+		case e.Mode == filemode.Submodule:
+			subs = append(subs, name)
 		}
 	}
-	sort.Strings(out)
-	return out, nil
+	sort.Strings(paths)
+	sort.Strings(subs)
+	s.paths, s.subs, s.listed = paths, subs, true
+	return nil
+}
+
+// Submodules returns the paths of the snapshot's submodules (gitlinks:
+// another repository's commit, no file), sorted.
+func (s *Snapshot) Submodules() ([]string, error) {
+	if s.files != nil {
+		return s.subs, nil
+	}
+	if err := s.list(); err != nil {
+		return nil, err
+	}
+	return s.subs, nil
 }
 
 // maxBlob bounds the size of a blob read into memory.
@@ -539,6 +576,18 @@ func diffTrees(base, head *Snapshot, want func(p string) bool) ([]FileChange, er
 	var out []FileChange
 	for _, c := range changes {
 		from, to := c.From.Name, c.To.Name
+		// A submodule is another repository's commit, not a file: its
+		// side of the change is no model (runRange notes it), as the
+		// index leaves submodules out for --staged.
+		if from != "" && c.From.TreeEntry.Mode == filemode.Submodule {
+			from = ""
+		}
+		if to != "" && c.To.TreeEntry.Mode == filemode.Submodule {
+			to = ""
+		}
+		if from == "" && to == "" {
+			continue
+		}
 		switch {
 		case from == "":
 			if want(to) {

@@ -130,3 +130,46 @@ func TestMovedOutOfEveryRuleJudgedByOldRule(t *testing.T) {
 		}
 	})
 }
+
+// TestSubmoduleAtModelPathSkipped: a submodule whose path a model rule
+// matches is no model file. check --base used to fail it ("not in HEAD")
+// while --staged left it out silently; both skip it now, with a note.
+func TestSubmoduleAtModelPathSkipped(t *testing.T) {
+	lib := newGitRepo(t)
+	lib.write("README", []byte("a vendored repository\n"))
+	lib.commit("lib")
+
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(movedBudget))
+	g.write("models/cam.onnx", smallModel(t, 8))
+	g.commit("base")
+	// protocol.file.allow: git refuses local submodules by default since 2.38.
+	g.git("-c", "protocol.file.allow=always", "submodule", "add", "-q", lib.dir, "models/vendor.onnx")
+	g.write("models/cam.onnx", smallModel(t, 16))
+
+	wantSkipped := func(t *testing.T, res *budget.Result) {
+		t.Helper()
+		if len(res.Models) != 1 || res.Models[0].Path != "models/cam.onnx" || res.Verdict != budget.Pass {
+			t.Fatalf("verdict %s, models %+v: want only models/cam.onnx, passing", res.Verdict, res.Models)
+		}
+		if !strings.Contains(strings.Join(res.Problems, "\n"), "models/vendor.onnx is a git submodule") {
+			t.Fatalf("problems %q: no note of the submodule", res.Problems)
+		}
+	}
+	t.Run("staged", func(t *testing.T) {
+		g.git("add", "-A")
+		res, _, err := Run(Options{Dir: g.dir, Staged: true, NoCache: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		wantSkipped(t, res)
+	})
+	t.Run("base", func(t *testing.T) {
+		g.commit("vendor a submodule")
+		res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		wantSkipped(t, res)
+	})
+}

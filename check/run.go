@@ -358,6 +358,18 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 		return false
 	}
 	all = pairMoves(all, covered)
+	// A submodule at a path a rule matches is no model file: it is left
+	// out of the change whether it moved or not (the index holds no file
+	// for it), and the report says so.
+	subs, err := rg.Head.Submodules()
+	if err != nil {
+		return nil, nil, err
+	}
+	for _, p := range subs {
+		if IsModelPath(p) && covered(p) {
+			notes = append(notes, fmt.Sprintf("%s is a git submodule, not a model file: not measured, though a budget rule matches its path", p))
+		}
+	}
 	changes, err := withDataChanges(rg, all, want)
 	if err != nil {
 		return nil, nil, err
