@@ -76,6 +76,13 @@ func TestCheckJSONContract(t *testing.T) {
 			t.Errorf("figures have no %q", key)
 		}
 	}
+	// A model no rule matches has no device: its ram and flash are listed
+	// as unknown with the reason, so that the 0 beside them is not read as a
+	// figure.
+	stray := byPath["models/experiments/tiny.onnx"]["head"].(map[string]any)
+	if u, ok := stray["unknown"].(map[string]any); !ok || u["ram"] != "no rule names a device for this model" || u["flash"] != u["ram"] {
+		t.Errorf("unbudgeted model: unknown %v; want ram and flash with the reason", stray["unknown"])
+	}
 	mem := head["memory"].(map[string]any)
 	if d := mem["deployed"].(map[string]any); d["arena_bytes"] != float64(509952) {
 		t.Errorf("memory.deployed.arena_bytes %v", d["arena_bytes"])
