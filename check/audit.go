@@ -86,7 +86,7 @@ func judgeSnapshot(s *Snapshot, f *budget.File, bpath string, eo budget.EvalOpti
 	}
 	inputs := make([]budget.Input, len(paths))
 	for i, p := range paths {
-		inputs[i] = budget.Input{Path: p, Change: budget.Unchanged, Head: Figures(metrics[i]), Error: metrics[i].Error}
+		inputs[i] = budget.Input{Path: p, Change: budget.Unchanged, Head: DeviceFigures(f, p, metrics[i]), Error: metrics[i].Error}
 	}
 	eo.Tree = tree
 	res := f.Evaluate(inputs, eo)

@@ -37,6 +37,9 @@ func Compare(o CompareOptions) (*budget.Result, error) {
 		// deltas are still worth seeing, with no verdicts.
 		f, err = nil, nil
 	}
+	if err == nil {
+		err = checkTargets(f)
+	}
 	if err != nil {
 		return nil, &BudgetFileError{Err: err}
 	}
@@ -62,8 +65,8 @@ func Compare(o CompareOptions) (*budget.Result, error) {
 	if ms[0].Error != "" {
 		return nil, fmt.Errorf("%s", ms[0].Error)
 	}
-	in.Base = Figures(ms[0])
-	in.Head = Figures(ms[1])
+	in.Base = DeviceFigures(f, as, ms[0])
+	in.Head = DeviceFigures(f, as, ms[1])
 	if ms[1].Error != "" {
 		in.Error = ms[1].Error
 	}

@@ -276,6 +276,9 @@ func loadBudget(s *Snapshot, p, ref string) (*budget.File, error) {
 		return nil, err
 	}
 	f, err := budget.Parse(p+" (at "+ref+")", data)
+	if err == nil {
+		err = checkTargets(f)
+	}
 	if err != nil {
 		return nil, &BudgetFileError{Err: err}
 	}
@@ -448,7 +451,7 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 		in := budget.Input{Path: c.Path, OldPath: c.OldPath, Change: budget.Change(c.Kind)}
 		if pairs[i].head >= 0 {
 			m := metrics[pairs[i].head]
-			in.Head = Figures(m)
+			in.Head = DeviceFigures(inForce, c.Path, m)
 			if m.Error != "" {
 				in.Error = m.Error
 			}
@@ -457,7 +460,7 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 			// A base that cannot be measured is passed on with every
 			// figure unknown and the reason, so a growth rule says why it
 			// was not judged instead of taking the model for a new one.
-			in.Base = Figures(metrics[pairs[i].base])
+			in.Base = DeviceFigures(inForce, c.Path, metrics[pairs[i].base])
 		}
 		inputs[i] = in
 	}

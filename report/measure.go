@@ -7,12 +7,15 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"math"
 	"sort"
 	"strings"
 	"text/tabwriter"
 
+	"github.com/loadline/loadline/budget"
 	"github.com/loadline/loadline/internal/display"
 	"github.com/loadline/loadline/measure"
+	"github.com/loadline/loadline/target"
 )
 
 // MeasureSchema names the JSON contract of `loadline measure --json`.
@@ -76,6 +79,9 @@ func MeasureText(w io.Writer, entries []*measure.Metrics) error {
 		if len(m.Unresolved) > 0 || len(m.MissingBindings) > 0 {
 			unresolvedText(w, m)
 		}
+		if m.Target != nil {
+			targetText(w, m.Target)
+		}
 		if len(m.Layers) > 0 {
 			layersText(w, m)
 		}
@@ -129,6 +135,60 @@ func unresolvedText(w io.Writer, m *measure.Metrics) {
 			break
 		}
 		fmt.Fprintf(w, "    %s (%s): %s\n", u.Node, u.Op, u.Reason)
+	}
+}
+
+// Millis prints an estimated latency in milliseconds in its unit ("181.9
+// ms", "850.0 µs"), as budget's latency figures print.
+func Millis(ms float64) string {
+	return Figure(budget.MetricLatency, int64(math.Round(ms*1e6)))
+}
+
+// Microjoules prints an estimated energy ("7.37 mJ", "412.0 µJ"), as
+// budget's energy figures print.
+func Microjoules(uj float64) string {
+	return Figure(budget.MetricEnergy, int64(math.Round(uj*1e3)))
+}
+
+// targetText writes the estimate on a device target: latency, energy,
+// where the time goes, and the operators the runtime lacks.
+func targetText(w io.Writer, e *target.Estimate) {
+	lower := ""
+	if len(e.Uncosted) > 0 {
+		lower = "≥ "
+	}
+	fmt.Fprintf(w, "  target %s at %s, runtime %s (estimates from a calibrated model; measure on the device before release)\n",
+		e.Name, target.FormatHz(e.ClockHz), e.Runtime)
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+	fmt.Fprintf(tw, "  latency\t%s%s\t(%s cycles)\n", lower, Millis(e.LatencyMS), Count(int64(math.Round(e.Cycles))))
+	fmt.Fprintf(tw, "  energy\t%s%s\t(%.4g mW × latency)\n", lower, Microjoules(e.EnergyUJ), e.PowerMW)
+	tw.Flush()
+	if slow := e.Slowest(5); len(slow) > 0 && e.Cycles > 0 {
+		fmt.Fprintln(w, "  where the time goes")
+		for _, l := range slow {
+			fmt.Fprintf(w, "    %-10s %5.1f %%  %s (%s, %s, step %d, %s-bound)\n", Millis(l.LatencyMS), 100*l.Cycles/e.Cycles, l.Node, l.Op, l.Class, l.Step, l.Bound)
+		}
+	}
+	if len(e.Uncosted) > 0 {
+		fmt.Fprintf(w, "  uncosted: %d node(s) left out of latency and energy\n", len(e.Uncosted))
+		for j, u := range e.Uncosted {
+			if j == 10 {
+				fmt.Fprintf(w, "    … and %d more (see --json)\n", len(e.Uncosted)-10)
+				break
+			}
+			fmt.Fprintf(w, "    %s (%s): %s\n", u.Node, u.Op, u.Reason)
+		}
+	}
+	switch {
+	case e.SupportNote != "":
+		fmt.Fprintf(w, "  operator support: %s\n", e.SupportNote)
+	case len(e.Unsupported) == 0:
+		fmt.Fprintf(w, "  operator support: every operator has a kernel in %s\n", e.Runtime)
+	default:
+		fmt.Fprintf(w, "  unsupported: %d operator(s) %s lacks\n", len(e.Unsupported), e.Runtime)
+		for _, u := range e.Unsupported {
+			fmt.Fprintf(w, "    %s (%s): %s\n", u.Node, u.Op, u.Reason)
+		}
 	}
 }
 

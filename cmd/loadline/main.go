@@ -19,6 +19,7 @@ import (
 	"github.com/loadline/loadline/internal/display"
 	"github.com/loadline/loadline/measure"
 	"github.com/loadline/loadline/report"
+	"github.com/loadline/loadline/target"
 )
 
 // Exit codes, as the README ("Exit codes", under Commands) states them.
@@ -84,7 +85,20 @@ const conventions = `Figures (static estimates from the model file; measure on t
                nothing, or not fitting the input, is an error listing the inputs (in
                check: only for a model still waiting for a binding). Unbound models
                list each missing binding with what waits for it.
-Units: B, KiB, MiB (1024-based) for bytes; k, M, G (1000-based) for counts.`
+  latency,     estimates on a device target (--target, or a budget device's
+  energy       target:): each operator is classed (conv, depthwise, dense,
+               recurrent, elementwise, pooling, movement) and costs
+               max(fixed + per_unit × work, memory cycles) cycles, work = MACs
+               for the first four classes and the larger of input and output
+               elements for the others, memory cycles = weight bytes / flash
+               (or RAM) bytes per cycle + activation bytes / RAM bytes per cycle
+               (a roofline); latency = cycles / clock, energy = power × latency.
+               Built-in targets are fitted to published MLPerf Tiny measurements;
+               these are estimates: measure on the device before release.
+  unsupported  operators the target's runtime has no kernel for (at their dtype),
+               from the runtime's operator table.
+Units: B, KiB, MiB (1024-based) for bytes; k, M, G (1000-based) for counts;
+ms, µs for latency; µJ, mJ for energy.`
 
 func main() {
 	os.Exit(runWith(os.Args[1:], os.Stdin, os.Stdout, os.Stderr))
@@ -172,22 +186,40 @@ func newRoot(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 func newMeasureCmd(stdout io.Writer) *cobra.Command {
 	var asJSON, layers bool
 	var bind bindFlags
+	var targetSpec string
 	var deploy deployFlags
 	cmd := &cobra.Command{
-		Use:   "measure [--json] [--layers] [--dim NAME=N]... [--shape NAME=1x512]... [--value NAME=V]... FILE...",
+		Use:   "measure [--json] [--layers] [--dim NAME=N]... [--shape NAME=1x512]... [--value NAME=V]... [--target NAME[@CLOCK]] FILE...",
 		Short: "Print the figures of model files (no git, no budget)",
 		Long:  "Decode each model file, infer every tensor's shape and print its figures.\n\n" + conventions,
 		Example: "  loadline measure models/kws.onnx\n" +
 			"  loadline measure --dim batch=1 --json models/*.onnx\n" +
-			"  loadline measure --shape audio=1x16000 --value rate=16000 models/kws.onnx",
+			"  loadline measure --shape audio=1x16000 --value rate=16000 models/kws.onnx\n" +
+			"  loadline measure --target m4-reference@120MHz models/kws.tflite",
 		Args: cobra.MinimumNArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			bound, err := bind.parse()
 			if err != nil {
 				return &exitError{exitUsage, err}
 			}
+			var tgt *target.Target
+			if targetSpec != "" {
+				if tgt, err = target.Lookup(targetSpec); err != nil {
+					return &exitError{exitUsage, fmt.Errorf("--target: %w", err)}
+				}
+			}
 			entries := check.MeasureFiles(args, measure.Options{Dims: bound.Dims, Shapes: bound.Shapes, Values: bound.Values,
-				Layers: layers, Deploy: deploy.options()})
+				Layers: layers || tgt != nil, Deploy: deploy.options()})
+			if tgt != nil {
+				for _, m := range entries {
+					if m.Error == "" {
+						m.Target = measure.Estimate(m, tgt, target.WeightsFlash)
+						if !layers {
+							m.Layers, m.MemoryDetail.LiveBytesByStep = nil, nil
+						}
+					}
+				}
+			}
 			if asJSON {
 				err = report.MeasureJSON(stdout, entries)
 			} else {
@@ -211,6 +243,7 @@ func newMeasureCmd(stdout io.Writer) *cobra.Command {
 	cmd.Flags().BoolVar(&asJSON, "json", false, "print the "+report.MeasureSchema+" JSON document")
 	bind.register(cmd)
 	cmd.Flags().BoolVar(&layers, "layers", false, "add the per-node table, the top contributors to MACs and memory, and the peak's live tensors")
+	cmd.Flags().StringVar(&targetSpec, "target", "", "estimate latency and energy on a device target, NAME[@CLOCK] (built-in: "+strings.Join(target.BuiltinNames(), ", ")+"; e.g. m4-reference@120MHz), and list the operators its runtime lacks")
 	deploy.register(cmd)
 	return cmd
 }
