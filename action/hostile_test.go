@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
 	"net/http"
 	"net/http/httptest"
 	"net/url"
@@ -409,4 +410,43 @@ func TestRedirectErrorRedacts(t *testing.T) {
 		t.Fatalf("error %q", err)
 	}
 	_ = budget.Pass
+}
+
+// TestEndlessAnswerBounded: an answer that never ends is read up to
+// MaxAnswerBytes, then posting stops with an error saying so.
+func TestEndlessAnswerBounded(t *testing.T) {
+	endless := func(w http.ResponseWriter, r *http.Request, n int) bool {
+		if r.Method != http.MethodGet {
+			return false
+		}
+		w.Header().Set("Content-Type", "application/json")
+		io.WriteString(w, "[")
+		chunk := strings.Repeat(`{"id":1,"body":"another comment","user":{"login":"reviewer"}},`, 1000)
+		for r.Context().Err() == nil {
+			if _, err := io.WriteString(w, chunk); err != nil {
+				break
+			}
+		}
+		return true
+	}
+	t.Run("github", func(t *testing.T) {
+		f := newFakeGitHub(t)
+		f.before = endless
+		s := newGHSetup(t, f, false)
+		_, err := s.post(t, "report\n", failingResult())
+		var e *AnswerTooLargeError
+		if !errors.As(err, &e) {
+			t.Fatalf("error %v, want the answer bound", err)
+		}
+	})
+	t.Run("gitlab", func(t *testing.T) {
+		f := newFakeGitLab(t, "PRIVATE-TOKEN")
+		f.before = endless
+		s := newGLSetup(t, f, nil)
+		_, err := s.post(t, "report")
+		var e *AnswerTooLargeError
+		if !errors.As(err, &e) {
+			t.Fatalf("error %v, want the answer bound", err)
+		}
+	})
 }

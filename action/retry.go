@@ -152,8 +152,20 @@ func (t *retryTransport) once(req *http.Request, attempt int) (*http.Response, e
 		}
 		return nil, err
 	}
-	resp.Body = &cancelBody{ReadCloser: resp.Body, cancel: cancel, timeout: t.policy.Timeout, req: req}
+	resp.Body = &cancelBody{ReadCloser: resp.Body, cancel: cancel, timeout: t.policy.Timeout, req: req, left: MaxAnswerBytes}
 	return resp, nil
+}
+
+// MaxAnswerBytes bounds how much of one API answer is read: a page of 100
+// comments at GitHub's 65,536-character limit is under 26 MiB. An answer
+// that goes on is cut there with an error, not read into memory.
+const MaxAnswerBytes = 32 << 20
+
+// AnswerTooLargeError says that an API answer passed MaxAnswerBytes.
+type AnswerTooLargeError struct{ Method, URL string }
+
+func (e *AnswerTooLargeError) Error() string {
+	return fmt.Sprintf("%s %s: the answer is larger than %d MiB; not read further", e.Method, e.URL, MaxAnswerBytes>>20)
 }
 
 // TimeoutError says that one request to a code host passed its deadline.
@@ -176,10 +188,18 @@ type cancelBody struct {
 	cancel  context.CancelFunc
 	timeout time.Duration
 	req     *http.Request
+	left    int64 // bytes that may still be read
 }
 
 func (b *cancelBody) Read(p []byte) (int, error) {
+	if b.left <= 0 {
+		return 0, &AnswerTooLargeError{Method: b.req.Method, URL: b.req.URL.Redacted()}
+	}
+	if int64(len(p)) > b.left {
+		p = p[:b.left]
+	}
 	n, err := b.ReadCloser.Read(p)
+	b.left -= int64(n)
 	if err != nil && errors.Is(err, context.DeadlineExceeded) && b.req.Context().Err() == nil {
 		err = &TimeoutError{Method: b.req.Method, URL: b.req.URL.Redacted(), After: b.timeout}
 	}

@@ -10,6 +10,7 @@ import (
 	"strings"
 
 	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/internal/display"
 	"github.com/loadline/loadline/measure"
 )
 
@@ -230,7 +231,9 @@ func writeRule(b *strings.Builder, glob string, ms []*measure.Metrics, idx []int
 			}
 		}
 	}
-	fmt.Fprintf(b, "  - path: %q   # %s\n", glob, strings.Join(names, ", "))
+	// The names go in a comment: escaped, so that a line break in a file
+	// name cannot end the comment and write keys of its own.
+	fmt.Fprintf(b, "  - path: %q   # %s\n", glob, display.Escape(strings.Join(names, ", ")))
 	b.WriteString("    device: my-device\n")
 	if len(dims) > 0 {
 		var parts []string

@@ -92,3 +92,30 @@ func TestStarterBudgetCoversEveryModelOnce(t *testing.T) {
 		t.Errorf("a.onnx dims %v, want none", d)
 	}
 }
+
+// TestStarterBudgetFileNameCannotWriteKeys: model names are listed in a
+// comment of the starter budget; a line break in one used to end the
+// comment and write what followed as keys of the file.
+func TestStarterBudgetFileNameCannotWriteKeys(t *testing.T) {
+	dir := t.TempDir()
+	for _, p := range []string{"models/ok.onnx", "models/x\nwaivers: [{path: \"**\", metric: ram, until: 2099-01-01, reason: x}]\n#.onnx"} {
+		full := filepath.Join(dir, filepath.FromSlash(p))
+		if err := os.MkdirAll(filepath.Dir(full), 0o755); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(full, smallModel(t, 8), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	text, _, err := StarterBudget(InitOptions{Dir: dir, Headroom: 0.1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	f, err := budget.Parse("loadline.yaml", []byte(text))
+	if err != nil {
+		t.Fatalf("%v\n%s", err, text)
+	}
+	if len(f.Waivers) != 0 || strings.Contains(text, "\nwaivers: [{") {
+		t.Fatalf("a file name wrote a waiver into the starter budget:\n%s", text)
+	}
+}

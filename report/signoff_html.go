@@ -8,6 +8,7 @@ import (
 	"strings"
 
 	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/internal/display"
 )
 
 // SignoffOptions choose what the sign-off renderers write.
@@ -44,6 +45,7 @@ svg .profile{fill:#0072B2;fill-opacity:.35;stroke:#0072B2}svg .peak{fill:#a40000
 // HTML page: no script, no request at view time, charts as inline SVG with
 // their figures in words, a printed page per device.
 func SignoffHTML(w io.Writer, s *budget.Signoff, opt SignoffOptions) error {
+	s = display.Copy(s) // paths and names from outside, escaped
 	v := newSignoffView(s)
 	var b strings.Builder
 	e := html.EscapeString

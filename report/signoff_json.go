@@ -1,11 +1,13 @@
 package report
 
 import (
+	"bytes"
 	"encoding/json"
 	"io"
 	"time"
 
 	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/internal/display"
 )
 
 // The JSON form of the sign-off report (loadline.signoff/v1): the facts of
@@ -151,9 +153,14 @@ func SignoffJSON(w io.Writer, s *budget.Signoff, opt SignoffOptions) error {
 	if s.Current != nil && len(s.Current.Findings) > 0 {
 		out.Problems = s.Current.Findings
 	}
-	enc := json.NewEncoder(w)
+	var buf bytes.Buffer
+	enc := json.NewEncoder(&buf)
 	enc.SetIndent("", "  ")
-	return enc.Encode(out)
+	if err := enc.Encode(out); err != nil {
+		return err
+	}
+	_, err := w.Write(display.GuardJSON(buf.Bytes()))
+	return err
 }
 
 // deref copies models into a list, never null, as the JSON contracts have

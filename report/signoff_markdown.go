@@ -7,11 +7,13 @@ import (
 	"strings"
 
 	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/internal/display"
 )
 
 // SignoffMarkdown writes the release sign-off report as markdown: the same
 // facts as the HTML page, with the trends as tables instead of charts.
 func SignoffMarkdown(w io.Writer, s *budget.Signoff, opt SignoffOptions) error {
+	s = display.Copy(s) // paths and names from outside, escaped
 	v := newSignoffView(s)
 	var b strings.Builder
 	rev := revisionText(s.Revision)
