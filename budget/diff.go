@@ -236,7 +236,11 @@ func describeRule(r *Rule) string {
 	}
 	for _, metric := range Metrics {
 		if s, ok := r.Growth[metric]; ok {
-			parts = append(parts, metric+" +"+s.Text)
+			if strings.HasPrefix(s.Text, "-") {
+				parts = append(parts, metric+" "+s.Text)
+			} else {
+				parts = append(parts, metric+" +"+s.Text)
+			}
 		}
 	}
 	return strings.Join(parts, ", ")

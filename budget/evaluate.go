@@ -516,7 +516,15 @@ func (e *evaluation) growth(p, metric string, srcs []source, base, head *Figures
 	}
 	bv, ok := base.Value(metric)
 	if !ok {
-		c.Status, c.Reason = Pass, fmt.Sprintf("%s growth not judged: the base figure cannot be computed: %s", metric, unknownWhy(base, metric))
+		// Not a pass: the growth is unknown. A warning, a failure when
+		// strict; a waiver may excuse it like any failure.
+		c.Unknown = true
+		c.Status = Warn
+		c.Reason = fmt.Sprintf("%s growth unknown: the base figure cannot be computed: %s", metric, unknownWhy(base, metric))
+		if e.strict {
+			c.Status = Fail
+			return e.waive(p, c)
+		}
 		return c
 	}
 	c.Base = &bv
@@ -547,7 +555,11 @@ func (e *evaluation) growth(p, metric string, srcs []source, base, head *Figures
 	default:
 		moved = fmt.Sprintf("%s fell %s %s", metric, FormatValue(metric, -delta), fromTo)
 	}
-	c.Reason = moved + ", allowed " + allowedText
+	if s.set.Value < 0 {
+		c.Reason = moved + ", must fall by at least " + strings.TrimPrefix(allowedText, "-")
+	} else {
+		c.Reason = moved + ", allowed " + allowedText
+	}
 	c.Status = Pass
 	if v > allowed {
 		c.Status = Fail

@@ -916,9 +916,24 @@ func (d *decoder) setting(e entry, key string, limit bool, dev *Device) (Setting
 		return Setting{}, false
 	}
 	mkey := sub(key, e.name)
+	// A growth allowance may be negative: a required shrink ("-5%": the
+	// figure must fall by at least 5 % against the base).
+	shrink := false
+	if v := e.v; !limit && v.Kind == yaml.ScalarNode && strings.HasPrefix(strings.TrimSpace(v.Value), "-") {
+		trimmed := *v
+		trimmed.Value = strings.TrimPrefix(strings.TrimSpace(v.Value), "-")
+		e.v, shrink = &trimmed, true
+	}
 	q, ok := d.quantity(e.v, mkey)
 	if !ok {
 		return Setting{}, false
+	}
+	if shrink {
+		if q.Kind == Percent && q.Value >= PercentScale {
+			d.add(e.v, mkey, fmt.Sprintf("\"-%s\": a figure cannot fall by 100%% or more", q.Text), "write a shrink below 100%, e.g. -5%")
+			return Setting{}, false
+		}
+		q.Value, q.Text = -q.Value, "-"+q.Text
 	}
 	s := Setting{Quantity: q, Line: e.v.Line, Column: e.v.Column}
 	switch unit := UnitOf(e.name); {

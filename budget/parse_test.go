@@ -119,10 +119,16 @@ devices:
 			`loadline.yaml:12:35: models[0].inputs.rate: "fast": want a number`,
 			`loadline.yaml:12:60: models[0].inputs.mode: unknown key "speed"`,
 		}},
-		{"negative growth", head + `  - path: models/a.onnx
+		// A negative growth is a required shrink; a shrink of 100 % or
+		// more would require a figure below zero.
+		{"shrink of everything", head + `  - path: models/a.onnx
     device: porch-cam
-    growth: {macs: -5%}
-`, []string{`loadline.yaml:12:20: models[0].growth.macs: "-5%": must not be negative`}},
+    growth: {macs: -100%}
+`, []string{`loadline.yaml:12:20: models[0].growth.macs: "-100%": a figure cannot fall by 100% or more (write a shrink below 100%, e.g. -5%)`}},
+		{"negative limit", head + `  - path: models/a.onnx
+    device: porch-cam
+    limits: {macs: -5M}
+`, []string{`loadline.yaml:12:20: models[0].limits.macs: "-5M": must not be negative`}},
 		{"unknown growth metric", head + `  - path: models/a.onnx
     device: porch-cam
     growth: {memory: 5%}

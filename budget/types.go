@@ -150,6 +150,10 @@ type Check struct {
 	Reason   string `json:"reason"`
 	Headroom *int64 `json:"headroom,omitempty"` // limit − value
 	Delta    *int64 `json:"delta,omitempty"`    // value − base
+	// Unknown is set on a growth check whose base figure cannot be
+	// computed: the growth is unknown, a warning (a failure with --strict),
+	// and Reason says why.
+	Unknown bool `json:"unknown,omitempty"`
 	// Waiver is set when a waiver turned a failure into Waived.
 	Waiver *Waiver `json:"waiver,omitempty"`
 	// Source is the place in the budget file of the limit or growth entry

@@ -262,6 +262,9 @@ func cells(m *budget.ModelResult, c *budget.Check) row {
 	if r.head == "unknown" {
 		r.delta, r.headroom = none, none
 	}
+	if c.Unknown { // a growth whose base figure cannot be computed
+		r.base, r.delta = "unknown", "unknown"
+	}
 	return r
 }
 

@@ -345,3 +345,65 @@ func TestInitThenCheckAllPasses(t *testing.T) {
 		t.Errorf("check --all --fail-on warn: exit %d\n%s", code, out)
 	}
 }
+
+// growthRepo commits loadline.yaml with the given growth allowance for
+// models/cam/m.onnx, the model first as the team model `from`, then as
+// `to` (gittest.TeamModels paths).
+func growthRepo(t *testing.T, growth, from, to string) string {
+	t.Helper()
+	models := gittest.TeamModels(t)
+	dir := newRepo(t)
+	writeFile(t, dir, "loadline.yaml", []byte(`version: 1
+devices:
+  doorbell: {ram: 256KiB}
+models:
+  - path: "models/cam/*.onnx"
+    device: doorbell
+    growth: {`+growth+`}
+`))
+	writeFile(t, dir, "models/cam/m.onnx", models[from])
+	git(t, dir, "add", "-A")
+	git(t, dir, "commit", "-q", "-m", "first")
+	writeFile(t, dir, "models/cam/m.onnx", models[to])
+	git(t, dir, "add", "-A")
+	git(t, dir, "commit", "-q", "-m", "second")
+	return dir
+}
+
+// TestGrowthAgainstUnknownBase: when the base's figure cannot be computed
+// the growth is unknown, with the reason: a warning, a failure with
+// --strict; never a silent pass.
+func TestGrowthAgainstUnknownBase(t *testing.T) {
+	// The reshaper's MACs need its target_shape input's value; the
+	// detector's are known.
+	dir := growthRepo(t, "macs: 10%", "models/misc/reshaper.onnx", "models/cam/detect.onnx")
+	code, out, errs := inDir(t, dir, "check", "--base", "HEAD~1")
+	if code != exitOK {
+		t.Fatalf("exit %d, want 0 (a warning)\n%s%s", code, out, errs)
+	}
+	for _, want := range []string{"WARN", "macs growth unknown: the base figure cannot be computed: 1 node(s) unresolved, first reshape (Reshape)"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("output lacks %q:\n%s", want, out)
+		}
+	}
+	if code, out, _ := inDir(t, dir, "check", "--base", "HEAD~1", "--strict"); code != exitBudget || !strings.Contains(out, "macs growth unknown") {
+		t.Errorf("--strict: exit %d, want 1\n%s", code, out)
+	}
+}
+
+// TestRequiredShrink: a negative growth allowance requires the figure to
+// fall by at least that much.
+func TestRequiredShrink(t *testing.T) {
+	// Hand-worked params (see teamBudget): classify 516 → detect 260, a
+	// fall of 49.6 %; the other way a rise of 98.5 %.
+	dir := growthRepo(t, "params: -5%", "models/cam/classify.onnx", "models/cam/detect.onnx")
+	code, out, errs := inDir(t, dir, "check", "--base", "HEAD~1")
+	if code != exitOK || !strings.Contains(out, "pass") {
+		t.Fatalf("a fall of 49.6%% against a required 5%%: exit %d\n%s%s", code, out, errs)
+	}
+	dir = growthRepo(t, "params: -5%", "models/cam/detect.onnx", "models/cam/classify.onnx")
+	code, out, errs = inDir(t, dir, "check", "--base", "HEAD~1")
+	if code != exitBudget || !strings.Contains(out, "params grew 98.5% (260 → 516), must fall by at least 5%") {
+		t.Errorf("a rise against a required fall: exit %d\n%s%s", code, out, errs)
+	}
+}
