@@ -93,6 +93,12 @@ func judgeSnapshot(s *Snapshot, f *budget.File, bpath string, eo budget.EvalOpti
 	for i := range res.Models {
 		res.Models[i].Detail = DetailOf(metrics[i])
 	}
+	notes, err := submoduleNotes(s, func(p string) bool { return len(f.Match(p)) > 0 })
+	if err != nil {
+		return nil, err
+	}
+	res.Notes = append(res.Notes, notes...)
+	res.Problems = append(notes, res.Problems...)
 	res.Audit = true
 	return res, nil
 }

@@ -172,4 +172,15 @@ func TestSubmoduleAtModelPathSkipped(t *testing.T) {
 		}
 		wantSkipped(t, res)
 	})
+	t.Run("audit", func(t *testing.T) {
+		r, err := OpenRepo(g.dir)
+		if err != nil {
+			t.Fatal(err)
+		}
+		res, _, err := Audit(r, "HEAD", Options{NoCache: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		wantSkipped(t, res)
+	})
 }

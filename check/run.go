@@ -364,15 +364,11 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	// A submodule at a path a rule matches is no model file: it is left
 	// out of the change whether it moved or not (the index holds no file
 	// for it), and the report says so.
-	subs, err := rg.Head.Submodules()
+	subNotes, err := submoduleNotes(rg.Head, covered)
 	if err != nil {
 		return nil, nil, err
 	}
-	for _, p := range subs {
-		if IsModelPath(p) && covered(p) {
-			notes = append(notes, fmt.Sprintf("%s is a git submodule, not a model file: not measured, though a budget rule matches its path", p))
-		}
-	}
+	notes = append(notes, subNotes...)
 	changes, err := withDataChanges(rg, all, want)
 	if err != nil {
 		return nil, nil, err
@@ -526,6 +522,22 @@ func wayOut(bpath string, changes []budget.BudgetChange) []string {
 // budgets does not fail every change that touches it. A folder glob
 // ("models/**") also matches the notes and external data beside the
 // models, which are no models to measure.
+// submoduleNotes says of each submodule of s at a model path that a rule
+// covers that it is no model file and is not measured.
+func submoduleNotes(s *Snapshot, covered func(string) bool) ([]string, error) {
+	subs, err := s.Submodules()
+	if err != nil {
+		return nil, err
+	}
+	var notes []string
+	for _, p := range subs {
+		if IsModelPath(p) && covered(p) {
+			notes = append(notes, fmt.Sprintf("%s is a git submodule, not a model file: not measured, though a budget rule matches its path", p))
+		}
+	}
+	return notes, nil
+}
+
 // pairMoves finds models moved out of every rule: a removed model file
 // that a rule covers and an added model file that no rule covers, with the
 // same file name, the only such pair for that name, become one rename, so
