@@ -59,8 +59,15 @@ type Device struct {
 	// name ("m4-reference@120MHz") or a mapping; nil when the device names
 	// none. Package target reads it (target.FromYAML); the budget only
 	// keeps it, with its place.
-	Target       *yaml.Node
-	Line, Column int
+	Target *yaml.Node
+	// What the firmware runs together (devices.go): the models, how it
+	// runs them (RunsOneAtATime, the default, or RunsConcurrent), whether
+	// identical weights are linked once, and limits on the totals.
+	Models        []DeviceModel
+	Runs          string
+	SharedWeights bool
+	Limits        map[string]Setting
+	Line, Column  int
 }
 
 // Capacity returns the device's capacity for a metric (ram or flash).
@@ -135,7 +142,7 @@ const DefaultWarnAt = 900_000
 
 var (
 	topKeys    = []string{"version", "devices", "models", "waivers"}
-	deviceKeys = []string{"ram", "flash", "weights", "target"}
+	deviceKeys = []string{"ram", "flash", "weights", "target", "runs", "models", "shared_weights", "limits"}
 	ruleKeys   = []string{"path", "device", "dims", "inputs", "limits", "growth", "warn_at"}
 	waiverKeys = []string{"path", "metric", "until", "reason"}
 	placements = []string{WeightsFlash, WeightsRAM}
@@ -669,7 +676,7 @@ func (d *decoder) devices(f *File, n *yaml.Node) {
 			d.add(e.k, "devices", "a device needs a name", "")
 			continue
 		}
-		dev := &Device{Name: e.name, Weights: WeightsFlash, Line: e.k.Line, Column: e.k.Column}
+		dev := &Device{Name: e.name, Weights: WeightsFlash, Runs: RunsOneAtATime, Line: e.k.Line, Column: e.k.Column}
 		fields, ok := d.mapping(e.v, key)
 		if !ok {
 			continue
@@ -714,9 +721,12 @@ func (d *decoder) devices(f *File, n *yaml.Node) {
 					dev.Target = v
 				}
 			default:
-				d.unknownKey(fe, key, deviceKeys)
+				if !d.deviceSet(dev, fe, fkey) {
+					d.unknownKey(fe, key, deviceKeys)
+				}
 			}
 		}
+		d.checkDeviceSet(dev, e.v, key)
 		f.Devices[e.name] = dev
 	}
 }

@@ -219,6 +219,10 @@ func UnitOf(metric string) Kind {
 // "850 µs") and energy from nanojoules ("7.37 mJ", "412 µJ"); one
 // decimal, two below 10.
 func FormatValue(metric string, v int64) string {
+	if metric == MetricLoad {
+		// A share of the core, in millionths: "37.5%".
+		return strconv.FormatFloat(float64(v)*100/PercentScale, 'f', 1, 64) + "%"
+	}
 	switch UnitOf(metric) {
 	case Bytes:
 		return FormatBytes(v)

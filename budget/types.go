@@ -53,6 +53,10 @@ type Figures struct {
 	// (unresolved shapes), with the reason; such a metric is not judged as
 	// a number but reported.
 	Unknown map[string]string `json:"unknown,omitempty"`
+	// Constants identify the model's stored constant tensors by content,
+	// for the device totals' shared weights (totals.go); filled only for
+	// models a device runs together with others.
+	Constants []ConstantDigest `json:"-"`
 }
 
 // TargetFigures are a model's estimated cost on its device's target, as
@@ -72,6 +76,12 @@ type TargetFigures struct {
 type MemoryFigures struct {
 	Graph    MemoryView `json:"graph"`
 	Deployed MemoryView `json:"deployed"`
+	// Runtime is the microcontroller runtime's own plan of a TFLite
+	// model's arena; nil for other formats.
+	Runtime *MemoryView `json:"runtime,omitempty"`
+	// PersistentBytes is state kept between invocations (variable
+	// tensors), allocated apart from the arena.
+	PersistentBytes int64 `json:"persistent_bytes"`
 }
 
 // MemoryView is one view's peak live bytes (lower bound) and planned arena.
@@ -251,6 +261,9 @@ type Result struct {
 	// Problems are budget-file findings that do not stop evaluation
 	// (an expired waiver, a model matched by no rule).
 	Problems []string `json:"problems"`
+	// Devices are the devices judged as a whole (totals.go): those that
+	// list the models they run and run one the change touches.
+	Devices []DeviceResult `json:"devices"`
 	// Findings are the same problems with their level and place: Fail
 	// for an expired waiver or disagreeing rules, Warn (Fail when strict)
 	// for a model matched by no rule. Problems[i] is Findings[i].Message.

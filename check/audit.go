@@ -80,7 +80,7 @@ func judgeSnapshot(s *Snapshot, f *budget.File, bpath string, eo budget.EvalOpti
 	for i, p := range paths {
 		jobs[i], dims[i] = blobJob{s, p}, bindingsOf(p, cli, f)
 	}
-	metrics, _ := measureJobs(jobs, dims, cache, stats)
+	metrics, _ := measureJobs(jobs, dims, runsTogether(f), cache, stats)
 	if err := envError(metrics); err != nil {
 		return nil, err
 	}
@@ -93,6 +93,11 @@ func judgeSnapshot(s *Snapshot, f *budget.File, bpath string, eo budget.EvalOpti
 	for i := range res.Models {
 		res.Models[i].Detail = DetailOf(metrics[i])
 	}
+	dj := &deviceJudge{file: f, cli: cli, cache: cache, stats: stats}
+	if err := dj.judge(res, nil, s, nil); err != nil {
+		return nil, err
+	}
+	res.FoldDevices()
 	notes, err := submoduleNotes(s, func(p string) bool { return len(f.Match(p)) > 0 })
 	if err != nil {
 		return nil, err

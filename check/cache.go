@@ -77,6 +77,9 @@ func cacheKey(blob string, opts measure.Options) string {
 	if opts.Layers {
 		fmt.Fprintf(h, "layers\x00")
 	}
+	if opts.Digests {
+		fmt.Fprintf(h, "digests\x00")
+	}
 	return hex.EncodeToString(h.Sum(nil))[:40]
 }
 

@@ -30,6 +30,9 @@ func Figures(m *measure.Metrics) *budget.Figures {
 			Deployed: budget.MemoryView{PeakLiveBytes: m.Memory.Deployed.PeakLiveBytes, ArenaBytes: m.Memory.Deployed.ArenaBytes},
 		},
 	}
+	for _, c := range m.Constants {
+		f.Constants = append(f.Constants, budget.ConstantDigest{Name: c.Name, Bytes: c.Bytes, Digest: c.Digest})
+	}
 	if m.Error != "" {
 		f.Unknown = map[string]string{}
 		for _, k := range budget.Metrics {

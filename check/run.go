@@ -436,7 +436,7 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 			dims = append(dims, dimsFor(rulePath))
 		}
 	}
-	metrics, deps := measureJobs(jobs, dims, cache, stats)
+	metrics, deps := measureJobs(jobs, dims, runsTogether(inForce), cache, stats)
 	changes, pairs = dropUnreadData(changes, pairs, all, metrics, deps)
 	// A missing object is the environment's fault, not the model's.
 	if err := envError(metrics); err != nil {
@@ -487,6 +487,23 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	if res.BudgetChanges == nil {
 		res.BudgetChanges = []budget.BudgetChange{}
 	}
+	// The devices that run a changed model are judged as a whole; a
+	// change to the budget file re-judges every device.
+	touched := map[string]bool{}
+	for _, c := range changes {
+		touched[c.Path] = true
+		if c.OldPath != "" {
+			touched[c.OldPath] = true
+		}
+	}
+	if len(res.BudgetChanges) > 0 {
+		touched = nil
+	}
+	dj := &deviceJudge{file: inForce, cli: o.Bindings, cache: cache, stats: stats}
+	if err := dj.judge(res, rg.Base, rg.Head, touched); err != nil {
+		return nil, nil, err
+	}
+	res.FoldDevices()
 	if both {
 		notes = append(notes, wayOut(bpath, res.BudgetChanges)...)
 	}
@@ -647,7 +664,7 @@ func concerns(changes []budget.BudgetChange, base, head *budget.File, p string) 
 // measureJobs measures blobs, each with its dims, sharing one pool per set
 // of dims, with the cache; it returns each job's figures and the files
 // besides the model that its measurement read.
-func measureJobs(jobs []blobJob, dims []*boundSet, cache *Cache, stats *Stats) ([]*measure.Metrics, [][]string) {
+func measureJobs(jobs []blobJob, dims []*boundSet, digests bool, cache *Cache, stats *Stats) ([]*measure.Metrics, [][]string) {
 	metrics := make([]*measure.Metrics, len(jobs))
 	deps := make([][]string, len(jobs))
 	groups := map[string][]int{}
@@ -665,7 +682,7 @@ func measureJobs(jobs []blobJob, dims []*boundSet, cache *Cache, stats *Stats) (
 		for j, i := range idx {
 			sub[j] = jobs[i]
 		}
-		out := measureBlobs(sub, dims[idx[0]].options(measure.Options{Layers: true}), cache, stats)
+		out := measureBlobs(sub, dims[idx[0]].options(measure.Options{Layers: true, Digests: digests}), cache, stats)
 		for j, i := range idx {
 			metrics[i], deps[i] = out[j].Metrics, out[j].deps
 			dims[i].judge(metrics[i])

@@ -52,6 +52,9 @@ type Metrics struct {
 	// Target is the estimate on a device target (measure --target), nil
 	// when none was asked for.
 	Target *target.Estimate `json:"target,omitempty"`
+	// Constants identify the stored constants by content, filled when
+	// Options.Digests is set (digests.go).
+	Constants []ConstantDigest `json:"constants,omitempty"`
 }
 
 // IOInfo is a graph input or output: name, dtype, and shape with symbolic
@@ -77,6 +80,8 @@ type Options struct {
 	Deploy *DeployOptions
 	// Layers fills Metrics.Layers, the per-node view.
 	Layers bool
+	// Digests fills Metrics.Constants (digests.go), for device totals.
+	Digests bool
 }
 
 // Measure infers shapes and computes the figures of a decoded model.
@@ -135,6 +140,11 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	}
 	if out.MemoryDetail.LiveAtPeak == nil {
 		out.MemoryDetail.LiveAtPeak = []string{}
+	}
+	if opts.Digests {
+		if out.Constants, err = ConstantDigests(m); err != nil {
+			return nil, err
+		}
 	}
 	if opts.Layers {
 		out.Layers = layersOf(inf, costs, plan)

@@ -125,6 +125,9 @@ func summary(r *budget.Result) string {
 	if r.Audit && len(r.Models) == 0 {
 		s = "no models at this revision"
 	}
+	if d := devicePhrase(r); d != "" {
+		s += "; " + d
+	}
 	if n := len(findings(r)); n > 0 {
 		s += "; " + plural(n, "problem", "problems") + " in the budget file"
 	}
@@ -195,8 +198,13 @@ func judged(c *budget.Check, status string) string {
 // metricLabel names a check: the metric, and "growth" for a growth check,
 // since one metric can have both a limit and a growth check.
 func metricLabel(c *budget.Check) string {
-	if c.Kind == "growth" {
+	switch c.Kind {
+	case "growth":
 		return c.Metric + " growth"
+	case "total":
+		return c.Metric + " total"
+	case "period":
+		return "latency/period"
 	}
 	return c.Metric
 }

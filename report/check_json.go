@@ -29,6 +29,7 @@ func CheckJSON(w io.Writer, r *budget.Result) error {
 	out.Waivers = orEmpty(out.Waivers)
 	out.Problems = orEmpty(out.Problems)
 	out.Findings = orEmpty(out.Findings)
+	out.Devices = orEmpty(out.Devices)
 	doc := struct {
 		Schema string `json:"schema"`
 		*budget.Result

@@ -122,6 +122,7 @@ func TestCheckJSONEmpty(t *testing.T) {
   "budget_changes": [],
   "waivers": [],
   "problems": [],
+  "devices": [],
   "findings": []
 }
 `

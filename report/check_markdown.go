@@ -244,6 +244,13 @@ func renderMarkdown(r *budget.Result, opt MarkdownOptions, lim mdLimits) []byte 
 		writeCapped(&b, notes, lim.items)
 	}
 
+	if len(r.Devices) > 0 {
+		b.WriteString("\n### Devices as a whole\n")
+		for i := range r.Devices {
+			writeDeviceMarkdown(&b, &r.Devices[i], lim.items)
+		}
+	}
+
 	// One collapsible section per model that brought per-layer detail.
 	details := 0
 	for _, m := range shown {

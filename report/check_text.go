@@ -169,6 +169,35 @@ func CheckText(w io.Writer, r *budget.Result, opt TextOptions) error {
 		reasons.write(p, paint)
 	}
 
+	for i := range r.Devices {
+		d := &r.Devices[i]
+		p.printf("\ndevice %s: %s\n", deviceHeadline(d), paint(ansiFor(d.Status), statusWord(d.Status)))
+		dt := &textTable{indent: "  ", right: []bool{false, true, true, true, true, true, false}}
+		dt.add("total", "base", "head", "delta", "limit", "headroom", "status").paintAll(ansiBold)
+		for j := range d.Checks {
+			c := &d.Checks[j]
+			rc := deviceCells(d, c)
+			dt.add(rc.metric, rc.base, rc.head, rc.delta, rc.limit, rc.headroom, statusWord(c.Status)).paint(6, ansiFor(c.Status))
+		}
+		if len(d.Checks) > 0 {
+			dt.write(p, paint)
+		}
+		for j := range d.Checks {
+			if c := &d.Checks[j]; c.Status != budget.Pass {
+				p.printf("  %s  %s\n", paint(ansiFor(c.Status), statusWord(c.Status)), oneLine(c.Reason))
+			}
+		}
+		for j := range d.Models {
+			p.printf("  %s\n", deviceShareText(&d.Models[j]))
+		}
+		for j := range d.Shared {
+			p.printf("  shared: %s\n", sharedText(&d.Shared[j]))
+		}
+		for _, n := range d.Notes {
+			p.printf("  note: %s\n", oneLine(n))
+		}
+	}
+
 	if len(r.BudgetChanges) > 0 {
 		p.printf("\nbudget file changes\n")
 		bc := &textTable{indent: "  "}

@@ -36,7 +36,7 @@ func Figure(metric string, v int64) string {
 		return Bytes(v)
 	case budget.MetricParams, budget.MetricMACs, budget.MetricFLOPs, budget.MetricUnsupported:
 		return Count(v)
-	case budget.MetricLatency, budget.MetricEnergy:
+	case budget.MetricLatency, budget.MetricEnergy, budget.MetricLoad:
 		if v < 0 {
 			return "?"
 		}

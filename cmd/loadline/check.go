@@ -28,6 +28,14 @@ const checkConventions = `Verdicts: each limit in the budget file is a check of 
 against the base's figure. A waiver turns a failure into "waived" until its
 date. ram = deployed activation arena (+ weight bytes when the device keeps
 weights in RAM); flash = the model file's bytes plus its external data.
+Device totals, for a device that lists the models it runs: flash = the sum
+of their flash (identical constants of 256 B or more counted once with
+shared_weights: true, else reported as a possible saving); ram = the
+largest arena (one-at-a-time) or the sum of the arenas (concurrent), plus
+every model's persistent bytes and weights kept in RAM; load = Σ latency ÷
+period, the share of the core's time (needs a target). Each total is
+judged against the device's limits (default: its capacities), and each
+model's latency against its period.
 Exit codes: 0 within budget (warnings allowed), 1 a budget is broken or a
 changed model cannot be measured, 2 usage or budget-file error, 3
 environment error (missing git objects, unreachable API when --post-required).`

@@ -1,0 +1,160 @@
+package budget
+
+import (
+	"strings"
+	"testing"
+	"time"
+)
+
+// The device totals, hand-worked. Three models on one device (source:
+// hand arithmetic in the comments):
+//
+//	a: flash 100,000 B, arena 40,000 B, persistent 0, latency 4 ms, every 20 ms
+//	b: flash  60,000 B, arena 30,000 B, persistent 2,048 B, latency 10 ms, every 50 ms
+//	c: flash  20,000 B, arena 50,000 B, persistent 0, latency 100 ms, every 500 ms
+//
+// a and b store one identical 16,384-byte constant (a shared first block).
+func totalsInputs() []DeviceInput {
+	fig := func(file, arena, persist int64, latencyMS float64, digests ...ConstantDigest) *Figures {
+		return &Figures{FileBytes: file, ParamBytes: file / 2,
+			Memory:    MemoryFigures{Deployed: MemoryView{ArenaBytes: arena, PeakLiveBytes: arena}, PersistentBytes: persist},
+			Target:    &TargetFigures{Name: "test", LatencyMS: latencyMS},
+			Constants: digests}
+	}
+	block := ConstantDigest{Name: "stem.weight", Bytes: 16384, Digest: "d1"}
+	return []DeviceInput{
+		{Path: "models/a.onnx", Every: 20 * time.Millisecond, Figures: fig(100_000, 40_000, 0, 4, block, ConstantDigest{Name: "head", Bytes: 4000, Digest: "d2"})},
+		{Path: "models/b.onnx", Every: 50 * time.Millisecond, Figures: fig(60_000, 30_000, 2048, 10, ConstantDigest{Name: "backbone.0", Bytes: 16384, Digest: "d1"})},
+		{Path: "models/c.onnx", Every: 500 * time.Millisecond, Figures: fig(20_000, 50_000, 0, 100)},
+	}
+}
+
+func TestDeviceTotalsHandWorked(t *testing.T) {
+	dev := &Device{Name: "doorbell", Weights: WeightsFlash, Runs: RunsOneAtATime}
+	tot, shares, shared := dev.Totals(totalsInputs())
+	// flash: 100,000 + 60,000 + 20,000 = 180,000; the shared block's second
+	// copy is 16,384 bytes, reported but not subtracted (shared_weights
+	// not set).
+	if tot.FlashBytes != 180_000 || tot.FlashSharedBytes != 16_384 {
+		t.Errorf("flash %d, shared %d; want 180000, 16384", tot.FlashBytes, tot.FlashSharedBytes)
+	}
+	if len(shared) != 1 || shared[0].Bytes != 16384 || strings.Join(shared[0].Models, ",") != "models/a.onnx,models/b.onnx" {
+		t.Errorf("shared %+v", shared)
+	}
+	// ram one at a time: the largest arena (c's 50,000) + persistent 2,048
+	// = 52,048.
+	if tot.RAMBytes != 52_048 {
+		t.Errorf("ram one-at-a-time %d, want 52048", tot.RAMBytes)
+	}
+	// load: 4/20 + 10/50 + 100/500 = 0.2 + 0.2 + 0.2 = 0.6.
+	if tot.Load == nil || *tot.Load < 0.5999999 || *tot.Load > 0.6000001 {
+		t.Errorf("load %v, want 0.6", tot.Load)
+	}
+	if len(shares) != 3 || shares[1].Persist != 2048 || shares[2].Arena != 50_000 {
+		t.Errorf("shares %+v", shares)
+	}
+
+	dev.Runs, dev.SharedWeights = RunsConcurrent, true
+	tot, _, _ = dev.Totals(totalsInputs())
+	// concurrent: 40,000 + 30,000 + 50,000 + 2,048 = 122,048; linked once,
+	// flash is 180,000 − 16,384 = 163,616.
+	if tot.RAMBytes != 122_048 || tot.FlashBytes != 163_616 {
+		t.Errorf("concurrent ram %d, shared flash %d; want 122048, 163616", tot.RAMBytes, tot.FlashBytes)
+	}
+
+	// Weights in RAM add every model's param bytes (file/2 here): 50,000 +
+	// 30,000 + 10,000 = 90,000, less the 16,384 linked once: 122,048 +
+	// 73,616 = 195,664.
+	dev.Weights = WeightsRAM
+	tot, _, _ = dev.Totals(totalsInputs())
+	if tot.RAMBytes != 195_664 {
+		t.Errorf("ram with weights in RAM %d, want 195664", tot.RAMBytes)
+	}
+}
+
+func TestJudgeDevice(t *testing.T) {
+	ram := Quantity{Text: "120000", Kind: Bytes, Value: 120_000}
+	dev := &Device{Name: "doorbell", Weights: WeightsFlash, Runs: RunsConcurrent, RAM: &ram,
+		Limits: map[string]Setting{MetricLoad: {Quantity: Quantity{Text: "100%", Kind: Percent, Value: PercentScale}}}}
+	in := totalsInputs()
+	// c cannot finish within its period: 600 ms against 500 ms.
+	in[2].Figures.Target.LatencyMS = 600
+	// The base: b's arena was 20,000 B smaller.
+	base := totalsInputs()
+	base[1].Figures = &Figures{FileBytes: 60_000, ParamBytes: 30_000, Memory: MemoryFigures{
+		Deployed: MemoryView{ArenaBytes: 10_000}, PersistentBytes: 2048}, Target: &TargetFigures{LatencyMS: 10}}
+	r := dev.JudgeDevice(base, in)
+	if r.Status != Fail {
+		t.Fatalf("status %s, want fail", r.Status)
+	}
+	var ramCheck, periodCheck, loadCheck *Check
+	for i := range r.Checks {
+		c := &r.Checks[i]
+		switch {
+		case c.Metric == MetricRAM:
+			ramCheck = c
+		case c.Kind == "period" && c.Status == Fail:
+			periodCheck = c
+		case c.Metric == MetricLoad:
+			loadCheck = c
+		}
+	}
+	// ram concurrent 122,048 > capacity 120,000; base 102,048; b grew by
+	// 20,000 B.
+	if ramCheck == nil || ramCheck.Status != Fail || ramCheck.Value != 122_048 || *ramCheck.Base != 102_048 ||
+		!strings.Contains(ramCheck.Reason, "models/b.onnx grew by 19.5 KiB") {
+		t.Errorf("ram check %+v", ramCheck)
+	}
+	if periodCheck == nil || !strings.Contains(periodCheck.Reason, "models/c.onnx takes 600.0 ms, longer than its period of 500.0 ms") {
+		t.Errorf("period check %+v", periodCheck)
+	}
+	// load 0.2 + 0.2 + 600/500 = 1.6 > the whole core.
+	if loadCheck == nil || loadCheck.Status != Fail || loadCheck.Value != 1_600_000 {
+		t.Errorf("load check %+v", loadCheck)
+	}
+}
+
+func TestDeviceSetDecoding(t *testing.T) {
+	f, err := Parse("loadline.yaml", []byte(`version: 1
+devices:
+  doorbell:
+    ram: 512KiB
+    flash: 2MiB
+    runs: concurrent
+    shared_weights: true
+    limits: {ram: 90%, load: 70%}
+    models:
+      - {path: models/kws/*.tflite, every: 20ms}
+      - {path: models/person.tflite, rate: 2Hz}
+      - models/vad.onnx
+`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	d := f.Devices["doorbell"]
+	if d.Runs != RunsConcurrent || !d.SharedWeights || len(d.Models) != 3 || d.Models[0].Every != 20*time.Millisecond ||
+		d.Models[1].Every != 500*time.Millisecond || d.Models[2].Every != 0 || d.Limits[MetricLoad].Value != 700_000 {
+		t.Errorf("decoded %+v", d)
+	}
+	if e, ok := d.RunsModel("models/kws/yes.tflite"); !ok || e.Every != 20*time.Millisecond {
+		t.Errorf("RunsModel: %v %v", e, ok)
+	}
+	for _, c := range []struct{ yaml, want string }{
+		{"runs: sometimes", `loadline.yaml:4:11: devices.d.runs: "sometimes": a device runs its models one-at-a-time or concurrent`},
+		{"models: [{path: m.onnx, every: 0ms}]", `loadline.yaml:4:36: devices.d.models[0].every: "0ms": a period must be more than 0`},
+		{"models: [{path: m.onnx, every: -5ms}]", `"-5ms": a period must be more than 0`},
+		{"models: [{path: m.onnx, rate: 0Hz}]", `"0Hz": a rate must be a number of hertz above 0`},
+		{"models: [{path: m.onnx, every: 20}]", `"20": not a period`},
+		{"models: [{path: m.onnx, every: 20ms, rate: 50Hz}]", "give every or rate, not both"},
+		{"models: [{every: 20ms}]", "a device's model entry needs a path"},
+		{"limits: {ram: 90%}", `loadline.yaml:4:19: devices.d.limits.ram: "90%" is a share of the device's ram, and d gives none`},
+		{"limits: {load: 5M}", `"5M": load is a share of the core's time`},
+		{"limits: {rom: 5MiB}", `unknown device total "rom"`},
+		{"shared_weights: often", `"often": shared_weights is true or false`},
+	} {
+		_, err := Parse("loadline.yaml", []byte("version: 1\ndevices:\n  d:\n    "+c.yaml+"\n"))
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s:\n got %v\nwant %s", c.yaml, err, c.want)
+		}
+	}
+}

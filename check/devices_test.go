@@ -1,0 +1,147 @@
+package check
+
+import (
+	"strings"
+	"testing"
+
+	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/model"
+	"github.com/loadline/loadline/model/build"
+	"github.com/loadline/loadline/model/onnx"
+)
+
+// seededModel is build.ConvClassifier's network (16×16 input, a 3×3 conv
+// of the given width, pool, a 4-way classifier) with weights drawn from
+// seed: two models with one seed and width store identical weights.
+func seededModel(t *testing.T, width int64, seed uint64) []byte {
+	t.Helper()
+	b := build.New("kws", 13, build.Seed(seed))
+	x := b.Input("image", model.Float32, 1, 3, 16, 16)
+	x = b.Conv("conv", x, build.Conv2D(width, 3, 1, 1).WithBias())
+	x = b.Relu("relu", x)
+	x = b.GlobalAveragePool("pool", x)
+	x = b.Flatten("flat", x, 1)
+	x = b.Gemm("fc", x, 4, true)
+	b.Output(x)
+	m, err := b.Model()
+	if err != nil {
+		t.Fatal(err)
+	}
+	data, err := onnx.Encode(m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return data
+}
+
+// deviceBudget runs two models concurrently on one device of 36 KiB of
+// RAM; each model may take 30 KiB on its own.
+const deviceBudget = `version: 1
+devices:
+  doorbell:
+    ram: 36KiB
+    flash: 1MiB
+    runs: concurrent
+    models:
+      - {path: models/kws.onnx, every: 20ms}
+      - models/vad.onnx
+models:
+  - path: "models/*.onnx"
+    device: doorbell
+    limits: {ram: 30KiB}
+`
+
+// TestDeviceTotalBreaksOnGrowth: a change grows one model of a device's
+// set; the model stays within its own limit, but the device's RAM total
+// does not, and the check fails on the total naming the model. The
+// deployed arena of this network is its input (3·16·16·4 = 3,072 B) and
+// the conv output (width·16·16·4 B) live together: 11,264 B at width 8,
+// 27,648 B at width 24 (hand-worked; the test reads the shares and checks
+// them against this arithmetic).
+func TestDeviceTotalBreaksOnGrowth(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(deviceBudget))
+	g.write("models/kws.onnx", seededModel(t, 8, 1))
+	g.write("models/vad.onnx", seededModel(t, 8, 2))
+	g.write("models/notes.txt", []byte("not a model"))
+	g.commit("base")
+	g.write("models/vad.onnx", seededModel(t, 24, 2))
+	g.commit("wider vad")
+	res, stats, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, m := range res.Models {
+		if m.Status != budget.Pass {
+			t.Errorf("%s is %s on its own; want pass (27,648 B < 30 KiB)", m.Path, m.Status)
+		}
+	}
+	if len(res.Devices) != 1 {
+		t.Fatalf("%d devices judged, want 1", len(res.Devices))
+	}
+	d := res.Devices[0]
+	arena := map[string]int64{}
+	for _, s := range d.Models {
+		arena[s.Path] = s.Arena
+	}
+	if arena["models/kws.onnx"] != 3072+1024*8 || arena["models/vad.onnx"] != 3072+1024*24 {
+		t.Errorf("arenas %v, want kws 11264 and vad 27648", arena)
+	}
+	// Concurrent: 11,264 + 27,648 = 38,912 B > 36 KiB (36,864 B); the
+	// base's total was 11,264 × 2 = 22,528 B.
+	if d.Status != budget.Fail || res.Verdict != budget.Fail || d.RAMBytes != 38_912 || d.Base == nil || d.Base.RAMBytes != 22_528 {
+		t.Fatalf("device %s, verdict %s, ram %d (base %+v)", d.Status, res.Verdict, d.RAMBytes, d.Base)
+	}
+	var reason string
+	for _, c := range d.Checks {
+		if c.Metric == budget.MetricRAM && c.Status == budget.Fail {
+			reason = c.Reason
+		}
+	}
+	if !strings.Contains(reason, "ram total of doorbell 38.0 KiB > doorbell's capacity 36.0 KiB") || !strings.Contains(reason, "models/vad.onnx grew by 16.0 KiB") {
+		t.Errorf("reason %q", reason)
+	}
+	if stats.Measured.Load() != 3 {
+		t.Errorf("measured %d models, want 3 (vad at both sides; kws unchanged, once)", stats.Measured.Load())
+	}
+	// The second check of the same change measures nothing.
+	_, again, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if again.Measured.Load() != 0 {
+		t.Errorf("second check measured %d models, want 0", again.Measured.Load())
+	}
+}
+
+// TestDeviceSharedBackbone: a change that rebuilds one model from the
+// other's weights (same seed and width) shows the flash the shared
+// constants save. Shared: conv.weight 16·3·3·3·4 = 1,728 B and fc.weight
+// 4·16·4 = 256 B; the biases (64 B and 16 B) are under MinSharedBytes.
+func TestDeviceSharedBackbone(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(strings.Replace(deviceBudget, "runs: concurrent", "runs: concurrent\n    shared_weights: true", 1)))
+	g.write("models/kws.onnx", seededModel(t, 16, 1))
+	g.write("models/vad.onnx", seededModel(t, 16, 2))
+	g.commit("base")
+	g.write("models/vad.onnx", seededModel(t, 16, 1))
+	g.commit("vad from the kws backbone")
+	res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Devices) != 1 {
+		t.Fatalf("%d devices", len(res.Devices))
+	}
+	d := res.Devices[0]
+	if d.Base == nil || d.Base.FlashSharedBytes != 0 || d.FlashSharedBytes != 1728+256 {
+		t.Fatalf("shared flash %d (base %+v), want 1984 (base 0)", d.FlashSharedBytes, d.Base)
+	}
+	var sum int64
+	for _, s := range d.Models {
+		sum += s.Flash
+	}
+	if d.FlashBytes != sum-1984 || len(d.Shared) != 2 {
+		t.Errorf("flash %d, models' sum %d, shared %+v; want the sum less 1,984 B", d.FlashBytes, sum, d.Shared)
+	}
+}
