@@ -76,12 +76,20 @@ type TargetFigures struct {
 type MemoryFigures struct {
 	Graph    MemoryView `json:"graph"`
 	Deployed MemoryView `json:"deployed"`
-	// Runtime is the microcontroller runtime's own plan of a TFLite
-	// model's arena; nil for other formats.
-	Runtime *MemoryView `json:"runtime,omitempty"`
-	// PersistentBytes is state kept between invocations (variable
-	// tensors), allocated apart from the arena.
+	// Runtime is the arena the microcontroller runtime plans (TFLite
+	// models only); nil otherwise.
+	Runtime *RuntimeView `json:"runtime,omitempty"`
+	// PersistentBytes are the bytes of state kept between invocations
+	// (TFLite variable tensors).
 	PersistentBytes int64 `json:"persistent_bytes"`
+}
+
+// RuntimeView is the runtime view of a TFLite model's memory, as
+// loadline.measure/v1 names it.
+type RuntimeView struct {
+	PeakLiveBytes int64 `json:"peak_live_bytes"`
+	ArenaBytes    int64 `json:"arena_bytes"`
+	ScratchBytes  int64 `json:"scratch_bytes"`
 }
 
 // MemoryView is one view's peak live bytes (lower bound) and planned arena.

@@ -26,9 +26,13 @@ func Figures(m *measure.Metrics) *budget.Figures {
 		MACs:          m.MACs,
 		FLOPs:         m.FLOPs,
 		Memory: budget.MemoryFigures{
-			Graph:    budget.MemoryView{PeakLiveBytes: m.Memory.Graph.PeakLiveBytes, ArenaBytes: m.Memory.Graph.ArenaBytes},
-			Deployed: budget.MemoryView{PeakLiveBytes: m.Memory.Deployed.PeakLiveBytes, ArenaBytes: m.Memory.Deployed.ArenaBytes},
+			Graph:           budget.MemoryView{PeakLiveBytes: m.Memory.Graph.PeakLiveBytes, ArenaBytes: m.Memory.Graph.ArenaBytes},
+			Deployed:        budget.MemoryView{PeakLiveBytes: m.Memory.Deployed.PeakLiveBytes, ArenaBytes: m.Memory.Deployed.ArenaBytes},
+			PersistentBytes: m.Memory.PersistentBytes,
 		},
+	}
+	if rt := m.Memory.Runtime; rt != nil {
+		f.Memory.Runtime = &budget.RuntimeView{PeakLiveBytes: rt.PeakLiveBytes, ArenaBytes: rt.ArenaBytes, ScratchBytes: rt.ScratchBytes}
 	}
 	for _, c := range m.Constants {
 		f.Constants = append(f.Constants, budget.ConstantDigest{Name: c.Name, Bytes: c.Bytes, Digest: c.Digest})
