@@ -86,3 +86,26 @@ func TestMeasureLayersText(t *testing.T) {
 		}
 	}
 }
+
+// TestCompareBindingsNameTheirFlag: --shape and --value work on compare
+// (README, Commands); bindings that do not fit the model are an error
+// (exit 1) that quotes each flag as written and lists the model's inputs.
+func TestCompareBindingsNameTheirFlag(t *testing.T) {
+	dir := t.TempDir()
+	writeFile(t, dir, "cam.onnx", convModel(t, 8))
+	writeFile(t, dir, "loadline.yaml", []byte(budgetYAML))
+	code, _, errs := inDir(t, dir, "compare", "cam.onnx", "cam.onnx", "--as", "models/cam.onnx",
+		"--shape", "image=1x3x16x16", "--value", "other=2,3")
+	for _, want := range []string{
+		"--shape image=1x3x16x16: axis 2 of input image is 8 in the model, the binding says 16",
+		"--value other=2,3: the model has no input of that name",
+		"the model's inputs: image float32[1,3,8,8]",
+	} {
+		if !strings.Contains(errs, want) {
+			t.Errorf("missing %q in:\n%s", want, errs)
+		}
+	}
+	if code != exitBudget {
+		t.Errorf("exit %d, want %d", code, exitBudget)
+	}
+}
