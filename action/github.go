@@ -230,7 +230,7 @@ func (g *GitHub) findComment(ctx context.Context, c *github.Client, owner, repo 
 	self := ""
 	for page := 1; ; page++ {
 		if page > MaxPages {
-			return 0, &PagesError{What: fmt.Sprintf("comments on %s#%d", g.Env.Repository, pr)}
+			return 0, &PagesError{What: "comments"}
 		}
 		comments, resp, err := c.Issues.ListComments(ctx, owner, repo, pr, opts)
 		if err != nil {

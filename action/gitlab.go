@@ -133,7 +133,7 @@ func (g *GitLab) findNote(ctx context.Context, hc *http.Client, notes string) (i
 	var self *gitlabUser
 	for n := 1; page != ""; n++ {
 		if n > MaxPages {
-			return 0, &PagesError{What: fmt.Sprintf("notes on merge request !%d", g.Env.MRIID)}
+			return 0, &PagesError{What: "notes"}
 		}
 		u := notes + "?per_page=100&page=" + url.QueryEscape(page) + "&sort=asc&order_by=created_at"
 		var list []gitlabNote

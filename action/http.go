@@ -64,9 +64,9 @@ func deadlineError(ctx context.Context, policy Retry, err error) error {
 
 // PagesError says that listing comments or notes passed MaxPages.
 type PagesError struct {
-	What string // "comments on loadline/porch#7"
+	What string // "comments", "notes"
 }
 
 func (e *PagesError) Error() string {
-	return fmt.Sprintf("listing the %s: still more after %d pages of 100; stopped looking for loadline's own", e.What, MaxPages)
+	return fmt.Sprintf("still more %s after %d pages of 100; stopped looking for loadline's own", e.What, MaxPages)
 }
