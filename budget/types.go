@@ -69,6 +69,9 @@ type TargetFigures struct {
 	// Unsupported names each operator the target's runtime lacks
 	// ("node (OP): reason").
 	Unsupported []string `json:"unsupported"`
+	// Slowest are the layers that take the most time, slowest first, each
+	// Value its estimated latency in nanoseconds.
+	Slowest []Layer `json:"slowest,omitempty"`
 }
 
 // MemoryFigures are activation memory in the graph view and the deployed

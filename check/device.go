@@ -3,6 +3,7 @@ package check
 import (
 	"errors"
 	"fmt"
+	"math"
 	"sort"
 
 	"github.com/loadline/loadline/budget"
@@ -87,6 +88,9 @@ func DeviceFigures(f *budget.File, p string, m *measure.Metrics) *budget.Figures
 	tf := &budget.TargetFigures{Name: e.Name, ClockHz: e.ClockHz, LatencyMS: e.LatencyMS, EnergyUJ: e.EnergyUJ, Unsupported: []string{}}
 	for _, u := range e.Unsupported {
 		tf.Unsupported = append(tf.Unsupported, fmt.Sprintf("%s (%s): %s", u.Node, u.Op, u.Reason))
+	}
+	for _, l := range e.Slowest(5) {
+		tf.Slowest = append(tf.Slowest, budget.Layer{Node: l.Node, Op: l.Op, Value: int64(math.Round(l.LatencyMS * 1e6))})
 	}
 	fig.Target = tf
 	switch {

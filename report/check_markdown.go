@@ -418,6 +418,23 @@ func daysLeft(now, until time.Time) string {
 func detailSection(m *budget.ModelResult) string {
 	d := m.Detail
 	var b strings.Builder
+	if m.Head != nil && m.Head.Target != nil && len(m.Head.Target.Slowest) > 0 {
+		tg := m.Head.Target
+		total := int64(math.Round(tg.LatencyMS * 1e6))
+		fmt.Fprintf(&b, "Where the time goes on %s (estimated), of %s in all:\n\n", mdText(tg.Name), Figure(budget.MetricLatency, total))
+		b.WriteString("| node | op | latency | share |\n| :--- | :--- | ---: | ---: |\n")
+		for i, l := range tg.Slowest {
+			if i == mdTopLayers {
+				break
+			}
+			share := none
+			if total > 0 {
+				share = percent(l.Value, total, false)
+			}
+			fmt.Fprintf(&b, "| %s | %s | %s | %s |\n", mdCode(l.Node), mdText(l.Op), Figure(budget.MetricLatency, l.Value), share)
+		}
+		b.WriteString("\n")
+	}
 	if len(d.TopMACs) > 0 {
 		total := int64(0)
 		if m.Head != nil {

@@ -9,62 +9,6 @@ import (
 	"github.com/loadline/loadline/internal/corpus"
 )
 
-// The MLPerf Tiny inference results measured on an STM32 Nucleo-L4R5ZI
-// board (Arm Cortex-M4F at 120 MHz): latency = 1 / the median throughput
-// the harness printed, energy = the "median energy cost" of the energy run.
-// Reference kernels: mlcommons/tiny_results_v0.5,
-// closed/reference/results/Nucleo-L4R5ZI/*/{performance,energy}/results.txt.
-// Optimised kernels: mlcommons/tiny_results_v1.0,
-// closed/OctoML/results/microtvm_cmsis_nn/NUCLEO_L4R5ZI/.
-type published struct {
-	file      string
-	latencyMS float64
-	energyUJ  float64
-}
-
-var (
-	// mlcommons/tiny_results_v0.5, closed/reference, Nucleo-L4R5ZI.
-	publishedReference = []published{
-		{"kws_ref_model", 181.9, 7374},
-		{"vww_96_int8", 600.6, 24313},
-		{"pretrainedResnet_quant", 704.2, 29207},
-		{"ad01_int8", 10.05, 416},
-	}
-	// mlcommons/tiny_results_v1.0, closed/OctoML, microtvm_cmsis_nn, NUCLEO_L4R5ZI.
-	publishedOptimized = []published{
-		{"kws_ref_model", 99.8, 5230},
-		{"vww_96_int8", 301.2, 15531},
-		{"pretrainedResnet_quant", 389.6, 20236},
-		{"ad01_int8", 8.60, 443},
-	}
-)
-
-// sharedTFLite returns ../shared/models/tflite from the module root, or
-// skips (fails with LOADLINE_REQUIRE_CORPUS=1) when it is absent.
-func sharedTFLite(t testing.TB) string {
-	t.Helper()
-	dir, err := os.Getwd()
-	if err != nil {
-		t.Fatal(err)
-	}
-	for {
-		if _, err := os.Stat(filepath.Join(dir, "go.mod")); err == nil {
-			break
-		}
-		up := filepath.Dir(dir)
-		if up == dir {
-			corpus.Missing(t, "module root not found")
-			return ""
-		}
-		dir = up
-	}
-	p := filepath.Join(dir, "..", "shared", "models", "tflite")
-	if _, err := os.Stat(p); err != nil {
-		corpus.Missing(t, "shared TFLite models not found at "+p)
-	}
-	return p
-}
-
 // structureNodes reads the flatc decoding of a shared model
 // (structure/NAME.json, made by the FlatBuffers compiler from the file, see
 // the folder's README) into the cost model's nodes, with MACs by the
@@ -73,7 +17,7 @@ func sharedTFLite(t testing.TB) string {
 // elements × K. It is an oracle apart from loadline's own TFLite reader.
 func structureNodes(t testing.TB, name string) []Node {
 	t.Helper()
-	data, err := os.ReadFile(filepath.Join(sharedTFLite(t), "structure", name+".json"))
+	data, err := os.ReadFile(filepath.Join(corpus.TFLiteDir(t), "structure", name+".json"))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -177,17 +121,19 @@ func TestStructureNodesMACs(t *testing.T) {
 	}
 }
 
-func samplesOf(t testing.TB, rows []published) []Sample {
+func samplesOf(t testing.TB, rows []Measurement) []Sample {
 	var out []Sample
 	for _, r := range rows {
-		out = append(out, Sample{Name: r.file, Nodes: structureNodes(t, r.file), LatencyMS: r.latencyMS, EnergyUJ: r.energyUJ})
+		out = append(out, Sample{Name: r.Model, Nodes: structureNodes(t, r.Model), LatencyMS: r.LatencyMS, EnergyUJ: r.EnergyUJ})
 	}
 	return out
 }
 
 // TestBuiltinCalibration repeats the calibration of the built-in targets on
-// their rows of published measurements (the MLPerf Tiny results above, over
-// the flatc decoding of the four shared models) and checks that the
+// their rows of published measurements (MLPerfTinyReference and
+// MLPerfTinyOptimized: mlcommons/tiny_results_v0.5 closed/reference and
+// tiny_results_v1.0 closed/OctoML microtvm_cmsis_nn, Nucleo-L4R5ZI), over
+// the flatc decoding of the four shared models and checks that the
 // shipped numbers are the fit's, that every latency is estimated within
 // 15 % and every reference-kernel energy within 10 %. It logs the
 // leave-one-out errors (fit on three models, predict the fourth), the
@@ -195,11 +141,11 @@ func samplesOf(t testing.TB, rows []published) []Sample {
 func TestBuiltinCalibration(t *testing.T) {
 	for _, c := range []struct {
 		name      string
-		rows      []published
+		rows      []Measurement
 		energyMax float64
 	}{
-		{"m4-reference", publishedReference, 10}, // energy within 10 % on the four reference runs
-		{"m4-optimized", publishedOptimized, 15},
+		{"m4-reference", MLPerfTinyReference, 10}, // energy within 10 % on the four reference runs
+		{"m4-optimized", MLPerfTinyOptimized, 15},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			shipped := Builtin[c.name]

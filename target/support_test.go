@@ -5,6 +5,8 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/loadline/loadline/internal/corpus"
 )
 
 func TestRuntimeTables(t *testing.T) {
@@ -39,7 +41,7 @@ func TestSupportOfSharedModels(t *testing.T) {
 	// Every operator of every shared TFLite model (flatc decoding in
 	// structure/) is classified for the microcontroller runtime: all are
 	// builtins the runtime registers, so none is unsupported.
-	dir := sharedTFLite(t)
+	dir := corpus.TFLiteDir(t)
 	files, _ := filepath.Glob(filepath.Join(dir, "structure", "*.json"))
 	if len(files) < 13 {
 		t.Fatalf("%d structure files in %s", len(files), dir)

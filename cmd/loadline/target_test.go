@@ -3,8 +3,12 @@ package main
 import (
 	"encoding/json"
 	"fmt"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/loadline/loadline/internal/corpus"
 )
 
 // measureTarget runs measure --json --target and returns the model's
@@ -111,5 +115,54 @@ models:
 	code, _, errs = inDir(t, dir, "check", "--base", "HEAD", "--head", "HEAD")
 	if code != exitUsage || !strings.Contains(errs, "loadline.yaml") || !strings.Contains(errs, "devices.board.target.clock") || !strings.Contains(errs, ":3:") {
 		t.Errorf("bad target: exit %d\n%s", code, errs)
+	}
+}
+
+// TestCheckLatencyBudgetMLPerfTiny: a budget of latency 250ms on a device
+// whose target is the M4 reference kernels at 120 MHz passes the keyword
+// spotting model (published 181.9 ms, MLPerf Tiny v0.5 closed/reference,
+// Nucleo-L4R5ZI) and fails the visual wake words model (published
+// 600.6 ms), in a real git repository.
+func TestCheckLatencyBudgetMLPerfTiny(t *testing.T) {
+	shared := corpus.TFLiteDir(t)
+	read := func(name string) []byte {
+		data, err := os.ReadFile(filepath.Join(shared, name))
+		if err != nil {
+			t.Fatal(err)
+		}
+		return data
+	}
+	dir := newRepo(t)
+	writeFile(t, dir, "loadline.yaml", []byte(`version: 1
+devices:
+  sensor-board:
+    ram: 640KiB
+    flash: 2MiB
+    target: m4-reference@120MHz
+models:
+  - path: "models/**/*.tflite"
+    device: sensor-board
+    limits: {latency: 250ms}
+`))
+	writeFile(t, dir, "models/kws.tflite", read("kws_ref_model.tflite"))
+	git(t, dir, "add", "-A")
+	git(t, dir, "commit", "-q", "-m", "keyword spotting")
+	code, out, errs := inDir(t, dir, "check", "--all", "--format", "json")
+	if code != exitOK {
+		t.Fatalf("KWS under 250 ms: exit %d\n%s\n%s", code, out, errs)
+	}
+	if !strings.Contains(out, `"metric": "latency"`) || !strings.Contains(out, `"status": "pass"`) {
+		t.Errorf("KWS check:\n%s", out)
+	}
+	git(t, dir, "checkout", "-q", "-b", "vww")
+	writeFile(t, dir, "models/vww.tflite", read("vww_96_int8.tflite"))
+	git(t, dir, "add", "-A")
+	git(t, dir, "commit", "-q", "-m", "visual wake words")
+	code, out, errs = inDir(t, dir, "check", "--base", "main")
+	if code != exitBudget {
+		t.Fatalf("VWW over 250 ms: exit %d\n%s\n%s", code, out, errs)
+	}
+	if !strings.Contains(out, "models/vww.tflite") || !strings.Contains(out, "latency") || !strings.Contains(out, "250.0 ms") {
+		t.Errorf("VWW report:\n%s", out)
 	}
 }
