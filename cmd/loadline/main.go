@@ -179,7 +179,7 @@ func newRoot(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 	root.SetErr(stderr)
 	root.AddCommand(newMeasureCmd(stdout), newCheckCmd(stdin, stdout, stderr), newCompareCmd(stdout),
 		newInitCmd(stdout, stderr), newHookCmd(stdout), newDemoCmd(stdout, stderr),
-		newSignoffCmd(stdout, stderr))
+		newSignoffCmd(stdout, stderr), newCalibrateCmd(stdout, stderr))
 	return root
 }
 
