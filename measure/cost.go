@@ -558,6 +558,16 @@ func (t *tally) add(u *tally) {
 	}
 }
 
+// clone returns a copy of t that can be changed without changing t.
+func (t *tally) clone() *tally {
+	out := *t
+	out.byOp = make(map[string]OpCost, len(t.byOp))
+	for op, c := range t.byOp {
+		out.byOp[op] = c
+	}
+	return &out
+}
+
 // times returns t repeated n times (node counts stay: they count nodes,
 // not executions).
 func (t *tally) times(n int64) *tally {
@@ -592,12 +602,16 @@ type coster struct {
 	opset      int64
 	unresolved []Unresolved
 	depth      int
+	// bodies holds the cost of each function body already counted: calls
+	// with one signature share one body (Inference.Calls), and counting it
+	// once per call would multiply the work as nested calls do.
+	bodies map[*CallBody]*tally
 }
 
 // CountCosts counts the MACs and FLOPs of every node of an inferred model
 // (see the definitions at the top of this file).
 func CountCosts(inf *Inference) *Costs {
-	k := &coster{inf: inf, opset: inf.Model.Opset("")}
+	k := &coster{inf: inf, opset: inf.Model.Opset(""), bodies: map[*CallBody]*tally{}}
 	if k.opset == 0 {
 		k.opset = 21
 	}
@@ -742,6 +756,9 @@ func (k *coster) call(n *model.Node, i int) *tally {
 	if body == nil || k.depth >= maxGraphDepth {
 		return k.fail(n, i, "MACs unknown: the body of function %s was not inferred for this call", n.Op)
 	}
+	if t, ok := k.bodies[body]; ok {
+		return t.clone()
+	}
 	k.depth++
 	defer func() { k.depth-- }()
 	t := newTally()
@@ -749,6 +766,7 @@ func (k *coster) call(n *model.Node, i int) *tally {
 	for j, bn := range body.Graph.Nodes {
 		t.add(k.node(bn, j, sc))
 	}
+	k.bodies[body] = t.clone()
 	return t
 }
 

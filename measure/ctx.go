@@ -14,7 +14,7 @@ type ctx struct {
 	node  *model.Node
 	in    []*Value
 	sc    *scope
-	path  string
+	path  *trail
 	opset int64
 	idx   int // the node's index in its graph
 }

@@ -3,6 +3,7 @@ package measure
 import (
 	"errors"
 	"fmt"
+	"slices"
 	"sort"
 	"strings"
 
@@ -99,11 +100,8 @@ type NamedValue struct {
 	Value *Value
 }
 
-// Limits that keep inference bounded on hostile files.
-const (
-	maxGraphDepth = 64      // nesting of subgraphs
-	maxEvalSteps  = 2000000 // node evaluations, including unrolled constant loops
-)
+// maxGraphDepth bounds the nesting of subgraphs and function calls.
+const maxGraphDepth = 64
 
 // errDepth is returned when subgraphs nest deeper than maxGraphDepth.
 var errDepth = errors.New("subgraphs nest too deep")
@@ -114,7 +112,7 @@ type engine struct {
 	unresolved []Unresolved
 	subgraphs  map[*model.Graph]map[string]*Value
 	calls      map[*model.Node]*CallBody
-	steps      int
+	work       int64 // units of inference work spent (work.go)
 	depth      int
 	quiet      int // >0 while evaluating speculatively (loop unrolling)
 	// poisoned maps a value produced by an unresolved node to the name of
@@ -128,6 +126,19 @@ type engine struct {
 	decided   []DecidedIf
 	undecided []UndecidedIf
 	cur       int // index of the node being inferred in its graph
+	// memo holds the result of each function call already inferred, by
+	// the call's signature (work.go), so that a body called again with the
+	// same inputs is not inferred again.
+	memo map[string]*callResult
+	// opsetKey is the signature of the operator sets in force, "" for the
+	// model's own.
+	opsetKey string
+	// opsets holds the operator sets in force in a function's body, by
+	// the caller's opsetKey and the function.
+	opsets map[string]*mergedOpsets
+	// ids numbers the attribute values that call signatures name by
+	// identity (tensors, graphs, types).
+	ids map[any]int
 }
 
 type scope struct {
@@ -144,6 +155,12 @@ func (s *scope) lookup(name string) *Value {
 	return nil
 }
 
+func newEngine(m *model.Model, opts InferOptions) *engine {
+	return &engine{m: m, opts: opts, subgraphs: map[*model.Graph]map[string]*Value{}, calls: map[*model.Node]*CallBody{}, poisoned: map[string]string{},
+		memo: map[string]*callResult{}, ids: map[any]int{}, opsets: map[string]*mergedOpsets{},
+		producers: map[string]*model.Node{}, inputs: map[string]bool{}}
+}
+
 // Infer infers the type, shape and, where small and static, the contents of
 // every value of the model's main graph and of its subgraphs.
 func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
@@ -153,8 +170,7 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 	if m.Format == "tflite" {
 		return inferStored(m, opts)
 	}
-	e := &engine{m: m, opts: opts, subgraphs: map[*model.Graph]map[string]*Value{}, calls: map[*model.Node]*CallBody{}, poisoned: map[string]string{},
-		producers: map[string]*model.Node{}, inputs: map[string]bool{}}
+	e := newEngine(m, opts)
 	g := m.Graph
 	sc := &scope{vals: map[string]*Value{}}
 	res := &Inference{Model: m, Subgraphs: e.subgraphs, Calls: e.calls}
@@ -186,7 +202,7 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 		e.inputs[in.Name] = true
 		res.Inputs = append(res.Inputs, NamedValue{in.Name, vals[i]})
 	}
-	if err := e.inferNodes(g, sc, "graph"); err != nil {
+	if err := e.inferNodes(g, sc, &trail{seg: "graph", node: -1}); err != nil {
 		return nil, err
 	}
 	res.Decided, res.Undecided = e.decided, e.undecided
@@ -277,14 +293,11 @@ func withDeclared(v *Value, t model.Type) *Value {
 	return &nv
 }
 
-// inferNodes runs the nodes of g in file order within scope sc.
-func (e *engine) inferNodes(g *model.Graph, sc *scope, path string) error {
+// inferNodes runs the nodes of g in file order within scope sc, charging
+// each node's work to the engine's budget (work.go).
+func (e *engine) inferNodes(g *model.Graph, sc *scope, path *trail) error {
 	decl := e.declaredTypes(g)
 	for i, n := range g.Nodes {
-		e.steps++
-		if e.steps > maxEvalSteps {
-			return fmt.Errorf("%s.node[%d]: inference stopped after %d node evaluations (runaway loop unrolling?)", path, i, maxEvalSteps)
-		}
 		ins := make([]*Value, len(n.Inputs))
 		for j, name := range n.Inputs {
 			if name == "" {
@@ -302,9 +315,13 @@ func (e *engine) inferNodes(g *model.Graph, sc *scope, path string) error {
 			}
 		}
 		e.cur = i
-		outs, err := e.inferNode(n, ins, sc, fmt.Sprintf("%s.node[%d]", path, i))
+		at := path.at(i)
+		if err := e.charge(1+valuesSize(ins), at, n); err != nil {
+			return err
+		}
+		outs, err := e.inferNode(n, ins, sc, at)
 		if err != nil {
-			if errors.Is(err, errDepth) || errors.Is(err, errFatal) {
+			if stops(err) {
 				return err
 			}
 			root := e.markUnresolved(n, i, err.Error())
@@ -318,6 +335,9 @@ func (e *engine) inferNodes(g *model.Graph, sc *scope, path string) error {
 				e.poisoned[o] = root
 			}
 			outs = nil
+		}
+		if err := e.charge(valuesSize(outs), at, n); err != nil {
+			return err
 		}
 		for j, name := range n.Outputs {
 			if name == "" {
@@ -339,6 +359,12 @@ func (e *engine) inferNodes(g *model.Graph, sc *scope, path string) error {
 	return nil
 }
 
+// stops reports whether err must end inference rather than mark one node
+// unresolved: nesting too deep, the work budget spent, or a fatal error.
+func stops(err error) bool {
+	return errors.Is(err, errDepth) || errors.Is(err, errWork) || errors.Is(err, errFatal)
+}
+
 // errFatal wraps errors that must stop inference rather than mark a node.
 var errFatal = errors.New("fatal")
 
@@ -355,7 +381,7 @@ func (e *engine) markUnresolved(n *model.Node, i int, reason string) string {
 
 // inferNode dispatches to the operator's rule, a model-local function, or
 // reports the operator as unknown.
-func (e *engine) inferNode(n *model.Node, ins []*Value, sc *scope, path string) ([]*Value, error) {
+func (e *engine) inferNode(n *model.Node, ins []*Value, sc *scope, path *trail) ([]*Value, error) {
 	domain := n.Domain
 	if domain == "ai.onnx" {
 		domain = ""
@@ -403,29 +429,54 @@ func (e *engine) opsetFor(domain string) int64 {
 }
 
 // inferFunction infers a call of a model-local function by inferring its
-// body in a fresh scope, with the caller's attributes substituted.
-func (e *engine) inferFunction(f *model.Function, call *model.Node, ins []*Value, sc *scope, path string) ([]*Value, error) {
+// body in a fresh scope, with the caller's attributes substituted. A call
+// whose signature (the function, the attributes, the operator sets in
+// force and what is known of its inputs) was met before reuses that
+// result: a body sees nothing but its inputs and attributes, so the result
+// would be the same.
+func (e *engine) inferFunction(f *model.Function, call *model.Node, ins []*Value, sc *scope, path *trail) ([]*Value, error) {
 	if e.depth >= maxGraphDepth {
 		return nil, fmt.Errorf("%s: %w (function %s)", path, errDepth, f.Name)
 	}
+	var attrs map[string]*model.Attr
+	if len(f.AttrProtos)+len(call.Attrs) > 0 {
+		attrs = make(map[string]*model.Attr, len(f.AttrProtos)+len(call.Attrs))
+		for _, a := range f.AttrProtos {
+			attrs[a.Name] = a
+		}
+		for _, a := range call.Attrs {
+			attrs[a.Name] = a
+		}
+	}
+	key := e.callKey(f, attrs, ins)
+	if err := e.charge(int64(len(key))/keyBytesPerUnit, path, call); err != nil {
+		return nil, err
+	}
+	if r := e.memo[key]; r != nil {
+		if e.quiet == 0 && e.calls != nil {
+			e.calls[call] = r.body
+		}
+		return r.outputs(len(call.Outputs)), nil
+	}
 	e.depth++
 	defer func() { e.depth-- }()
-	fs := &scope{vals: map[string]*Value{}}
+	fs := &scope{vals: make(map[string]*Value, len(f.Inputs)+len(f.Nodes))}
 	for i, name := range f.Inputs {
 		if i < len(ins) && ins[i] != nil {
 			fs.vals[name] = ins[i]
 		}
 	}
-	attrs := map[string]*model.Attr{}
-	for _, a := range f.AttrProtos {
-		attrs[a.Name] = a
-	}
-	for _, a := range call.Attrs {
-		attrs[a.Name] = a
-	}
-	body := &model.Graph{Name: f.Name}
-	for _, n := range f.Nodes {
-		nn := *n
+	// Each call gets its own copy of the body's nodes: Inference.Calls
+	// tells the calls inside it apart by node.
+	body := &model.Graph{Name: f.Name, Nodes: make([]*model.Node, len(f.Nodes))}
+	copies := make([]model.Node, len(f.Nodes))
+	for i, n := range f.Nodes {
+		nn := &copies[i]
+		*nn = *n
+		body.Nodes[i] = nn
+		if !slices.ContainsFunc(n.Attrs, func(a *model.Attr) bool { return a.RefName != "" }) {
+			continue // no reference to substitute: the attributes are shared
+		}
 		nn.Attrs = nil
 		for _, a := range n.Attrs {
 			if a.RefName != "" {
@@ -440,39 +491,46 @@ func (e *engine) inferFunction(f *model.Function, call *model.Node, ins []*Value
 			}
 			nn.Attrs = append(nn.Attrs, a)
 		}
-		body.Nodes = append(body.Nodes, &nn)
 	}
-	saved := e.m.Opsets
+	savedOpsets, savedKey := e.m.Opsets, e.opsetKey
 	if len(f.Opsets) > 0 {
-		merged := map[string]int64{}
-		for k, v := range saved {
-			merged[k] = v
+		mk := savedKey + "\x00" + f.Domain + "\x00" + f.Name
+		m := e.opsets[mk]
+		if m == nil {
+			merged := map[string]int64{}
+			for k, v := range savedOpsets {
+				merged[k] = v
+			}
+			for k, v := range f.Opsets {
+				merged[k] = v
+			}
+			if err := e.charge(int64(len(merged))/workElemsPerUnit, path, call); err != nil {
+				return nil, err
+			}
+			m = &mergedOpsets{merged, opsetSignature(merged)}
+			e.opsets[mk] = m
 		}
-		for k, v := range f.Opsets {
-			merged[k] = v
-		}
-		e.m.Opsets = merged
+		e.m.Opsets, e.opsetKey = m.opsets, m.key
 	}
-	err := e.inferNodes(body, fs, path+".function("+f.Name+")")
-	e.m.Opsets = saved
+	err := e.inferNodes(body, fs, path.in(".function("+f.Name+")"))
+	e.m.Opsets, e.opsetKey = savedOpsets, savedKey
 	if err != nil {
 		return nil, err
 	}
+	r := &callResult{body: &CallBody{Graph: body, Values: fs.vals}}
+	for _, name := range f.Outputs {
+		r.outs = append(r.outs, fs.vals[name])
+	}
+	e.memo[key] = r
 	if e.quiet == 0 && e.calls != nil {
-		e.calls[call] = &CallBody{Graph: body, Values: fs.vals}
+		e.calls[call] = r.body
 	}
-	outs := make([]*Value, len(call.Outputs))
-	for i, name := range f.Outputs {
-		if i < len(outs) {
-			outs[i] = fs.vals[name]
-		}
-	}
-	return outs, nil
+	return r.outputs(len(call.Outputs)), nil
 }
 
 // inferSubgraph infers a control-flow body. bound gives values for the
 // body's formal inputs (nil entries fall back to the declared type).
-func (e *engine) inferSubgraph(g *model.Graph, outer *scope, bound []*Value, path string) ([]*Value, *scope, error) {
+func (e *engine) inferSubgraph(g *model.Graph, outer *scope, bound []*Value, path *trail) ([]*Value, *scope, error) {
 	if e.depth >= maxGraphDepth {
 		return nil, nil, fmt.Errorf("%s: %w (limit %d)", path, errDepth, maxGraphDepth)
 	}

@@ -109,7 +109,7 @@ func inferIf(c *ctx) ([]*Value, error) {
 		if cond[0] != 0 {
 			taken, name = thenG, "then_branch"
 		}
-		outs, _, err := c.e.inferSubgraph(taken, c.sc, nil, c.path+"."+name)
+		outs, _, err := c.e.inferSubgraph(taken, c.sc, nil, c.path.in("."+name))
 		if err != nil {
 			return nil, err
 		}
@@ -121,13 +121,13 @@ func inferIf(c *ctx) ([]*Value, error) {
 	deps := c.e.inputsOf(c.node.Input(0))
 	start := len(c.e.unresolved)
 	mark := start
-	thenOut, _, err := c.e.inferSubgraph(thenG, c.sc, nil, c.path+".then_branch")
+	thenOut, _, err := c.e.inferSubgraph(thenG, c.sc, nil, c.path.in(".then_branch"))
 	if err != nil {
 		return nil, err
 	}
 	thenBad := c.e.unresolved[mark:len(c.e.unresolved):len(c.e.unresolved)]
 	mark = len(c.e.unresolved)
-	elseOut, _, err := c.e.inferSubgraph(elseG, c.sc, nil, c.path+".else_branch")
+	elseOut, _, err := c.e.inferSubgraph(elseG, c.sc, nil, c.path.in(".else_branch"))
 	if err != nil {
 		return nil, err
 	}
@@ -242,12 +242,15 @@ func inferLoop(c *ctx) ([]*Value, error) {
 	}
 	// First pass: the body as written, for its output types (and recorded
 	// for cost counting).
-	first, _, err := c.e.inferSubgraph(body, c.sc, bound(0, condIn, carried), c.path+".body")
+	first, _, err := c.e.inferSubgraph(body, c.sc, bound(0, condIn, carried), c.path.in(".body"))
 	if err != nil {
 		return nil, err
 	}
 	// Unroll when the loop's control is known statically.
-	iters, state, scans, ok := unrollLoop(c, body, trip, condIn, carried, bound)
+	iters, state, scans, ok, err := unrollLoop(c, body, trip, condIn, carried, bound)
+	if err != nil {
+		return nil, err
+	}
 	outs := make([]*Value, 0, nCarried+nScan)
 	if ok {
 		outs = append(outs, state...)
@@ -314,19 +317,29 @@ func passesCond(body *model.Graph) bool {
 }
 
 // unrollLoop runs the body iteration by iteration while everything that
-// decides the loop is known. ok is false when the loop cannot be unrolled.
-func unrollLoop(c *ctx, body *model.Graph, trip int64, condIn *Value, carried []*Value, bound func(int64, *Value, []*Value) []*Value) (int64, []*Value, [][]*Value, bool) {
+// decides the loop is known. ok is false when the loop cannot be unrolled;
+// err is set only when inference must stop (the work budget is spent, or
+// subgraphs nest too deep): each iteration's nodes count against the
+// budget like any others.
+func unrollLoop(c *ctx, body *model.Graph, trip int64, condIn *Value, carried []*Value, bound func(int64, *Value, []*Value) []*Value) (int64, []*Value, [][]*Value, bool, error) {
+	no := func() (int64, []*Value, [][]*Value, bool, error) { return 0, nil, nil, false, nil }
 	if trip < 0 && condIn == nil {
-		return 0, nil, nil, false
+		return no()
 	}
 	if condIn != nil && condIn.Const == nil {
-		return 0, nil, nil, false
+		return no()
+	}
+	if trip < 0 && isConstTrue(condIn) && passesCond(body) {
+		// The condition stays true and nothing else ends the loop: it
+		// would run into maxUnroll and be given up, after work that
+		// grows with every iteration.
+		return no()
 	}
 	limit := int64(maxUnroll)
 	if trip >= 0 && trip < limit {
 		limit = trip
 	} else if trip > limit {
-		return 0, nil, nil, false
+		return no()
 	}
 	state := carried
 	cond := condIn
@@ -338,29 +351,32 @@ func unrollLoop(c *ctx, body *model.Graph, trip int64, condIn *Value, carried []
 		if cond != nil {
 			x, ok := cond.Const.KnownInts()
 			if !ok || len(x) != 1 {
-				return 0, nil, nil, false
+				return no()
 			}
 			if x[0] == 0 {
 				break
 			}
 		}
-		outs, _, err := c.e.inferSubgraph(body, c.sc, bound(i, cond, state), c.path+".body")
+		outs, _, err := c.e.inferSubgraph(body, c.sc, bound(i, cond, state), c.path.in(".body"))
 		if err != nil {
-			return 0, nil, nil, false
+			if stops(err) {
+				return 0, nil, nil, false, err
+			}
+			return no()
 		}
 		cond = outs[0]
 		if condIn == nil {
 			cond = nil
 		} else if cond.Const == nil {
-			return 0, nil, nil, false
+			return no()
 		}
 		state = outs[1 : 1+len(carried)]
 		scans = append(scans, outs[1+len(carried):])
 	}
 	if i == maxUnroll && trip < 0 {
-		return 0, nil, nil, false
+		return no()
 	}
-	return i, state, scans, true
+	return i, state, scans, true, nil
 }
 
 func inferScan(c *ctx) ([]*Value, error) {
@@ -415,7 +431,7 @@ func inferScan(c *ctx) ([]*Value, error) {
 		}
 		bound = append(bound, tensor(v.Type.DType, el))
 	}
-	outs, _, err := c.e.inferSubgraph(body, c.sc, bound, c.path+".body")
+	outs, _, err := c.e.inferSubgraph(body, c.sc, bound, c.path.in(".body"))
 	if err != nil {
 		return nil, err
 	}
@@ -725,7 +741,7 @@ func inferSequenceMap(c *ctx) ([]*Value, error) {
 				bound[i] = v
 			}
 		}
-		outs, _, err := c.e.inferSubgraph(body, c.sc, bound, c.path+".body")
+		outs, _, err := c.e.inferSubgraph(body, c.sc, bound, c.path.in(".body"))
 		if err != nil {
 			return nil, err
 		}
@@ -745,7 +761,7 @@ func inferSequenceMap(c *ctx) ([]*Value, error) {
 				bound[i] = v
 			}
 		}
-		outs, _, err := c.e.inferSubgraph(body, c.sc, bound, c.path+".body")
+		outs, _, err := c.e.inferSubgraph(body, c.sc, bound, c.path.in(".body"))
 		if err != nil {
 			return nil, err
 		}

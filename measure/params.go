@@ -201,12 +201,18 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 		folded bool // inference knows every output's values
 	}
 	var steps []step
-	var walk func(nodes []*model.Node, vals map[string]*Value)
-	walk = func(nodes []*model.Node, vals map[string]*Value) {
+	// A subgraph sees its own values, then its enclosing graphs' (a chain
+	// of scopes, not a copy per subgraph, which would cost the outer
+	// graph's size once per subgraph).
+	var walk func(nodes []*model.Node, sc scopes)
+	walk = func(nodes []*model.Node, sc scopes) {
+		if len(sc) > maxGraphDepth+1 {
+			return
+		}
 		for _, n := range nodes {
 			folded := len(n.Outputs) > 0
 			for _, o := range n.Outputs {
-				if v := vals[o]; o != "" && (v == nil || v.Const == nil) {
+				if v := sc.lookup(o); o != "" && (v == nil || v.Const == nil) {
 					folded = false
 				}
 			}
@@ -216,13 +222,13 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 				for _, sg := range append([]*model.Graph{a.Graph}, a.Graphs...) {
 					if sg != nil {
 						addConsts(sg)
-						walk(sg.Nodes, mergedVals(vals, inf.Subgraphs[sg]))
+						walk(sg.Nodes, append(sc[:len(sc):len(sc)], inf.Subgraphs[sg]))
 					}
 				}
 			}
 		}
 	}
-	walk(g.Nodes, inf.Values)
+	walk(g.Nodes, scopes{inf.Values})
 
 	// A node's data inputs feed a weight when the node is computed at run
 	// time, or when it is folded (a Transpose, Cast or Identity of a
@@ -268,17 +274,6 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 		}
 	}
 	return out, readErr
-}
-
-func mergedVals(outer, inner map[string]*Value) map[string]*Value {
-	m := make(map[string]*Value, len(outer)+len(inner))
-	for k, v := range outer {
-		m[k] = v
-	}
-	for k, v := range inner {
-		m[k] = v
-	}
-	return m
 }
 
 // ParamsByDType sums parameter bytes per dtype, for reports.

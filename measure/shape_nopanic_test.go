@@ -67,7 +67,7 @@ func TestShapeRulesNoPanic(t *testing.T) {
 	}
 	intAttrs := []string{"axis", "keepdims", "to", "start", "end", "allowzero", "blocksize", "num_outputs", "new_axis", "fmod", "dtype", "sample_size", "num_scan_inputs"}
 	intsAttrs := []string{"perm", "axes", "split", "shape", "starts", "ends", "pads", "scan_input_axes", "scan_output_axes"}
-	e := &engine{m: &model.Model{Opsets: map[string]int64{"": 17}}, subgraphs: map[*model.Graph]map[string]*Value{}, poisoned: map[string]string{}}
+	e := newEngine(&model.Model{Opsets: map[string]int64{"": 17}}, InferOptions{})
 	for fam, rules := range fams {
 		for op, rule := range rules {
 			for iter := 0; iter < 300; iter++ {

@@ -97,6 +97,10 @@ const conventions = `Figures (static estimates from the model file; measure on t
                these are estimates: measure on the device before release.
   unsupported  operators the target's runtime has no kernel for (at their dtype),
                from the runtime's operator table.
+  work         inference is charged a unit per node evaluated (subgraphs, unrolled
+               loop iterations and function bodies each time they are inferred;
+               calls with one signature share one result) and per 16 dims or folded
+               elements; past 524,288 units the model is refused with an error.
 Units: B, KiB, MiB (1024-based) for bytes; k, M, G (1000-based) for counts;
 ms, µs for latency; µJ, mJ for energy.`
 
