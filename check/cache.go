@@ -15,7 +15,7 @@ import (
 // AnalyzerVersion names the rules that produce the figures. It is part of
 // every cache key: bump it whenever a change to a decoder or measure can
 // change a figure, so that no stale figure survives an upgrade.
-const AnalyzerVersion = "loadline-figures-8"
+const AnalyzerVersion = "loadline-figures-9"
 
 // Cache keeps measured figures keyed by blob id, analyzer version and dims,
 // in files under the repository's git directory. It is safe under
