@@ -13,8 +13,6 @@ import (
 	"sync/atomic"
 	"testing"
 	"time"
-
-	"github.com/loadline/loadline/budget"
 )
 
 // elsewhere is a second server, on another host than the API, that counts
@@ -409,7 +407,6 @@ func TestRedirectErrorRedacts(t *testing.T) {
 	if strings.Contains(err.Error(), "secret") || strings.Contains(err.Error(), ":pw@") || !strings.Contains(err.Error(), "evil.example") {
 		t.Fatalf("error %q", err)
 	}
-	_ = budget.Pass
 }
 
 // TestEndlessAnswerBounded: an answer that never ends is read up to
