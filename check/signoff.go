@@ -93,7 +93,7 @@ func Signoff(o SignoffOptions) (*budget.Signoff, *Stats, error) {
 		AnalyzerVersion: AnalyzerVersion,
 		Devices:         file.Capacities(),
 		Releases:        []budget.Release{},
-		Missing:         signoffMissing(),
+		Missing:         signoffMissing(file),
 	}
 	progress(o.Progress, "loadline: judging every model at %s\n", rev)
 	if out.Current, err = judgeAll(snap, file, bpath, out.Date, o.Strict, cache, stats); err != nil {
@@ -132,13 +132,22 @@ func Signoff(o SignoffOptions) (*budget.Signoff, *Stats, error) {
 	return out, stats, nil
 }
 
-// signoffMissing names what a full sign-off states that this build cannot
-// compute yet, so the report says so instead of leaving it out silently.
-func signoffMissing() []string {
-	return []string{
-		"Device totals (the flash, RAM and time of the models one device runs together) are not computed by this version; each model is judged on its own.",
-		"Latency and energy estimates and the runtime's operator support are not computed by this version.",
+// signoffMissing names what the report cannot state for this budget
+// file, so a reader knows what is left out and how to add it.
+func signoffMissing(f *budget.File) []string {
+	var together, targets bool
+	for _, d := range f.Devices {
+		together = together || len(d.Models) > 0
+		targets = targets || d.Target != nil
 	}
+	var out []string
+	if !together {
+		out = append(out, "Device totals: no device of the budget file lists the models it runs together (devices.NAME.models), so each model is judged on its own and a device's shared flash, RAM and core time are not.")
+	}
+	if !targets {
+		out = append(out, "Latency, energy and operator support: no device names a target (devices.NAME.target), so none are estimated.")
+	}
+	return out
 }
 
 func progress(w io.Writer, format string, args ...any) {

@@ -1,6 +1,7 @@
 package report
 
 import (
+	"fmt"
 	"math"
 	"sort"
 	"strconv"
@@ -59,6 +60,12 @@ type deviceView struct {
 	cap     budget.DeviceCapacity
 	verdict budget.Status
 	models  []*budget.ModelResult
+	// totals is the device judged as a whole, when it lists the models
+	// it runs (budget's totals.go); nil otherwise.
+	totals *budget.DeviceResult
+	// timed is set when some model has a latency estimate on the
+	// device's target.
+	timed bool
 	trends  []trend
 	shares  []share
 }
@@ -147,8 +154,21 @@ func newSignoffView(s *budget.Signoff) *signoffView {
 		dv := deviceView{cap: dc, verdict: budget.Pass, models: byDevice[dc.Name]}
 		for _, m := range dv.models {
 			dv.verdict = worseStatus(dv.verdict, m.Status)
+			if m.Head != nil && m.Head.Target != nil {
+				dv.timed = true
+			}
 		}
-		for _, metric := range trendMetrics {
+		for i := range cur.Devices {
+			if cur.Devices[i].Name == dc.Name {
+				dv.totals = &cur.Devices[i]
+				dv.verdict = worseStatus(dv.verdict, dv.totals.Status)
+			}
+		}
+		metrics := trendMetrics
+		if dv.timed {
+			metrics = append(append([]string{}, trendMetrics...), budget.MetricLatency)
+		}
+		for _, metric := range metrics {
 			dv.trends = append(dv.trends, v.trendOf(dc, metric, dv.models))
 		}
 		for _, metric := range shareMetrics {
@@ -493,4 +513,56 @@ func metricTitle(metric string) string {
 		return "FLOPs"
 	}
 	return capitalise(metric)
+}
+
+// timeRows are the device's models with their estimates on its target:
+// model, target, latency, energy, the operators its runtime lacks.
+func timeRows(d deviceView) [][]string {
+	var out [][]string
+	for _, m := range d.models {
+		if m.Head == nil || m.Head.Target == nil {
+			continue
+		}
+		t := m.Head.Target
+		lat, _ := m.Head.Value(budget.MetricLatency)
+		en, _ := m.Head.Value(budget.MetricEnergy)
+		uns := none
+		if len(t.Unsupported) > 0 {
+			uns = strings.Join(t.Unsupported, "; ")
+		}
+		target := t.Name
+		if t.ClockHz > 0 {
+			target += fmt.Sprintf(" @ %g MHz", t.ClockHz/1e6)
+		}
+		out = append(out, []string{m.Path, target, Figure(budget.MetricLatency, lat), Figure(budget.MetricEnergy, en), uns})
+	}
+	return out
+}
+
+// totalsRows are a device's totals as check rows: total, head, limit,
+// headroom, status, reason.
+func totalsRows(d *budget.DeviceResult) [][]string {
+	var out [][]string
+	for i := range d.Checks {
+		c := &d.Checks[i]
+		rc := deviceCells(d, c)
+		out = append(out, []string{rc.metric, rc.head, rc.limit, rc.headroom, statusWord(c.Status), oneLine(c.Reason)})
+	}
+	return out
+}
+
+// totalsLines are each model's part of the totals and the constants
+// stored in several models, in words.
+func totalsLines(d *budget.DeviceResult) []string {
+	var out []string
+	for i := range d.Models {
+		out = append(out, deviceShareText(&d.Models[i]))
+	}
+	for i := range d.Shared {
+		out = append(out, "shared: "+sharedText(&d.Shared[i]))
+	}
+	for _, n := range d.Notes {
+		out = append(out, "note: "+oneLine(n))
+	}
+	return out
 }

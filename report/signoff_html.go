@@ -137,6 +137,29 @@ func writeDeviceHTML(b *strings.Builder, v *signoffView, di int, d deviceView) {
 		}
 	}
 	b.WriteString("</tbody>\n</table>\n")
+	if rows := timeRows(d); len(rows) > 0 {
+		b.WriteString("<h3>Time and energy on the device's target</h3>\n<table>\n<thead><tr><th>Model</th><th>Target</th><th>Latency</th><th>Energy</th><th>Operators the runtime lacks</th></tr></thead>\n<tbody>\n")
+		for _, r := range rows {
+			fmt.Fprintf(b, "<tr><td><code>%s</code></td><td>%s</td><td class=\"num\">%s</td><td class=\"num\">%s</td><td>%s</td></tr>\n", e(r[0]), e(r[1]), e(r[2]), e(r[3]), e(r[4]))
+		}
+		b.WriteString("</tbody>\n</table>\n<p class=\"caution\">Estimates from a calibrated cost model, not measurements; measure on the device before release.</p>\n")
+	}
+	if t := d.totals; t != nil {
+		fmt.Fprintf(b, "<h3>The device as a whole: <span class=\"status %s\">%s</span></h3>\n<p>%s.</p>\n", statusClass(t.Status), statusWord(t.Status), e(deviceHeadline(t)))
+		if rows := totalsRows(t); len(rows) > 0 {
+			b.WriteString("<table>\n<thead><tr><th>Total</th><th>Value</th><th>Limit</th><th>Headroom</th><th>Status</th><th>Reason</th></tr></thead>\n<tbody>\n")
+			for _, r := range rows {
+				fmt.Fprintf(b, "<tr><td>%s</td><td class=\"num\">%s</td><td class=\"num\">%s</td><td class=\"num\">%s</td><td class=\"status %s\">%s</td><td>%s</td></tr>\n",
+					e(r[0]), e(r[1]), e(r[2]), e(r[3]), statusClass(budget.Status(strings.ToLower(r[4]))), e(r[4]), e(r[5]))
+			}
+			b.WriteString("</tbody>\n</table>\n")
+		}
+		b.WriteString("<ul>\n")
+		for _, l := range totalsLines(t) {
+			fmt.Fprintf(b, "<li>%s</li>\n", e(l))
+		}
+		b.WriteString("</ul>\n")
+	}
 	b.WriteString("<h3>Across releases</h3>\n")
 	for ti, t := range d.trends {
 		id := fmt.Sprintf("trend-%d-%d", di, ti)

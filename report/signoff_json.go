@@ -39,6 +39,7 @@ type deviceJSON struct {
 	budget.DeviceCapacity
 	Verdict budget.Status        `json:"verdict"`
 	Models  []budget.ModelResult `json:"models"`
+	Totals  *budget.DeviceResult `json:"totals"`
 	Trends  []trendJSON          `json:"trends"`
 	Shares  []shareJSON          `json:"shares"`
 }
@@ -113,7 +114,7 @@ func SignoffJSON(w io.Writer, s *budget.Signoff, opt SignoffOptions) error {
 		Problems: []budget.Finding{},
 	}
 	for _, d := range v.devices {
-		dj := deviceJSON{DeviceCapacity: d.cap, Verdict: d.verdict, Models: deref(d.models), Trends: []trendJSON{}, Shares: []shareJSON{}}
+		dj := deviceJSON{DeviceCapacity: d.cap, Verdict: d.verdict, Models: deref(d.models), Totals: d.totals, Trends: []trendJSON{}, Shares: []shareJSON{}}
 		for _, t := range d.trends {
 			tj := trendJSON{Metric: t.metric, Capacity: t.capacity, Labels: v.labels, Series: []seriesJSON{}}
 			for _, s := range t.series {

@@ -63,6 +63,27 @@ func SignoffMarkdown(w io.Writer, s *budget.Signoff, opt SignoffOptions) error {
 		if len(reasons) > 0 {
 			b.WriteString(strings.Join(reasons, "\n") + "\n\n")
 		}
+		if rows := timeRows(d); len(rows) > 0 {
+			b.WriteString("Time and energy on the device's target (estimates from a calibrated cost model; measure on the device before release):\n\n| Model | Target | Latency | Energy | Operators the runtime lacks |\n| --- | --- | ---: | ---: | --- |\n")
+			for _, r := range rows {
+				fmt.Fprintf(&b, "| %s | %s | %s | %s | %s |\n", mdCode(r[0]), mdText(r[1]), r[2], r[3], mdText(r[4]))
+			}
+			b.WriteString("\n")
+		}
+		if t := d.totals; t != nil {
+			fmt.Fprintf(&b, "The device as a whole: **%s** — %s.\n\n", statusWord(t.Status), mdText(deviceHeadline(t)))
+			if rows := totalsRows(t); len(rows) > 0 {
+				b.WriteString("| Total | Value | Limit | Headroom | Status | Reason |\n| --- | ---: | ---: | ---: | --- | --- |\n")
+				for _, r := range rows {
+					fmt.Fprintf(&b, "| %s | %s | %s | %s | %s | %s |\n", mdText(r[0]), r[1], r[2], r[3], r[4], mdText(r[5]))
+				}
+				b.WriteString("\n")
+			}
+			for _, l := range totalsLines(t) {
+				b.WriteString("- " + mdText(l) + "\n")
+			}
+			b.WriteString("\n")
+		}
 		for _, t := range d.trends {
 			writeTrendTable(&b, v.labels, t)
 		}
