@@ -430,6 +430,9 @@ func TestEndlessAnswerBounded(t *testing.T) {
 		f := newFakeGitHub(t)
 		f.before = endless
 		s := newGHSetup(t, f, false)
+		// The byte bound ends the read, not a clock: a loaded machine may
+		// take longer than the default test timeout to stream 32 MiB.
+		s.gh.Retry.Timeout = time.Hour
 		_, err := s.post(t, "report\n", failingResult())
 		var e *AnswerTooLargeError
 		if !errors.As(err, &e) {
@@ -440,6 +443,7 @@ func TestEndlessAnswerBounded(t *testing.T) {
 		f := newFakeGitLab(t, "PRIVATE-TOKEN")
 		f.before = endless
 		s := newGLSetup(t, f, nil)
+		s.gl.Retry.Timeout = time.Hour
 		_, err := s.post(t, "report")
 		var e *AnswerTooLargeError
 		if !errors.As(err, &e) {
