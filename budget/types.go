@@ -225,6 +225,28 @@ type Detail struct {
 	// for a one-line picture of memory over the schedule.
 	LiveBytes []int64 `json:"live_bytes,omitempty"`
 	PeakStep  int     `json:"peak_step"`
+	// Views are the memory views, graph view first, each with its live
+	// bytes per step and what is live at its peak; Judged marks the one
+	// ram is judged on.
+	Views []DetailView `json:"views,omitempty"`
+}
+
+// DetailView is one memory view of a model's detail section.
+type DetailView struct {
+	Name      string         `json:"name"`
+	Judged    bool           `json:"judged"`
+	LiveBytes []int64        `json:"live_bytes,omitempty"`
+	PeakStep  int            `json:"peak_step"`
+	PeakBytes int64          `json:"peak_bytes"`
+	AtPeak    []DetailTensor `json:"at_peak,omitempty"`
+}
+
+// DetailTensor is a buffer live at a view's peak, with its arena offset
+// (-1 when it has none).
+type DetailTensor struct {
+	Name   string `json:"name"`
+	Bytes  int64  `json:"bytes"`
+	Offset int64  `json:"offset"`
 }
 
 // Layer is one node's contribution.

@@ -69,12 +69,35 @@ func DetailOf(m *measure.Metrics) *budget.Detail {
 			d.TopMACs = append(d.TopMACs, budget.Layer{Node: l.Node, Op: l.Op, Value: l.MACs})
 		}
 	}
+	// The largest activations: the tensors the nodes write, by their own
+	// bytes (constants and statically known outputs are not planned, so
+	// they have none).
 	byMem := append([]measure.Layer{}, m.Layers...)
-	sort.SliceStable(byMem, func(i, j int) bool { return byMem[i].LiveBytes > byMem[j].LiveBytes })
+	sort.SliceStable(byMem, func(i, j int) bool { return byMem[i].Bytes > byMem[j].Bytes })
 	for _, l := range byMem[:min(5, len(byMem))] {
-		if l.LiveBytes > 0 {
-			d.TopMemory = append(d.TopMemory, budget.Layer{Node: l.Node, Op: l.Op, Value: l.LiveBytes})
+		if l.Bytes > 0 {
+			d.TopMemory = append(d.TopMemory, budget.Layer{Node: l.Node, Op: l.Op, Value: l.Bytes})
 		}
+	}
+	names := make([]string, 0, len(m.MemoryDetail.Views))
+	for name := range m.MemoryDetail.Views {
+		names = append(names, name)
+	}
+	// The graph view first, then the others by name (deployed, runtime).
+	sort.Slice(names, func(i, j int) bool {
+		if (names[i] == measure.ViewGraph) != (names[j] == measure.ViewGraph) {
+			return names[i] == measure.ViewGraph
+		}
+		return names[i] < names[j]
+	})
+	for _, name := range names {
+		v := m.MemoryDetail.Views[name]
+		dv := budget.DetailView{Name: name, Judged: name == m.MemoryDetail.Judged, LiveBytes: v.LiveBytesByStep,
+			PeakStep: v.PeakStep, PeakBytes: v.PeakLiveBytes}
+		for _, t := range v.LiveAtPeak {
+			dv.AtPeak = append(dv.AtPeak, budget.DetailTensor{Name: t.Name, Bytes: t.Bytes, Offset: t.Offset})
+		}
+		d.Views = append(d.Views, dv)
 	}
 	return d
 }

@@ -199,6 +199,7 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 	}
 
 	recs := map[string]*dtensor{}
+	fusedInto := map[string]string{} // a dropped tensor → the tensor written instead
 	var order []*dtensor
 	groupOut := map[int]*dtensor{} // head node → its group's stored output
 	add := func(t *dtensor) {
@@ -257,7 +258,7 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 			outs = append(outs, name)
 		}
 		st := &deployState{g: g, recs: recs, readers: readers, isOutput: isOutput, isStatic: isStatic,
-			hasBody: hasBody, views: views, groupOut: groupOut, add: add}
+			hasBody: hasBody, views: views, groupOut: groupOut, add: add, fusedInto: fusedInto}
 		if r := regions[i]; r != nil && len(outs) == 1 && outs[0] == n.Outputs[0] && st.region(r, i, outs[0]) {
 			continue
 		}
@@ -346,6 +347,26 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 		lts = append(lts, Lifetime{Name: r.name, Size: r.size, First: r.first, Last: r.last})
 		live = append(live, r.segs...)
 	}
+	// Where each tensor's values end up: a view or in-place output in its
+	// root's buffer, a fused-away tensor in the buffer of what replaced it.
+	bufferOf := map[string]string{}
+	for _, t := range order {
+		if r := t.root(); r != t && !t.dropped {
+			bufferOf[t.name] = r.name
+		}
+	}
+	for name := range fusedInto {
+		to := name
+		for k := 0; k < len(fusedInto) && fusedInto[to] != ""; k++ {
+			to = fusedInto[to]
+		}
+		if r := recs[to]; r != nil && !r.dropped {
+			bufferOf[name] = r.root().name
+		}
+	}
+	if len(bufferOf) > 0 {
+		plan.BufferOf = bufferOf
+	}
 	plan.finish(g, steps, live, lts, bodyPeak, bodyArena)
 	return plan
 }
@@ -353,15 +374,16 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 // deployState is what the deployed view's rewrites read and change while
 // planDeployedGraph walks the nodes.
 type deployState struct {
-	g        *model.Graph
-	recs     map[string]*dtensor
-	readers  map[string]int
-	isOutput map[string]bool
-	isStatic func(string) bool
-	hasBody  map[int]bool
-	views    []bool // views[i]: node i's output aliases its input
-	groupOut map[int]*dtensor
-	add      func(*dtensor)
+	g         *model.Graph
+	recs      map[string]*dtensor
+	readers   map[string]int
+	isOutput  map[string]bool
+	isStatic  func(string) bool
+	hasBody   map[int]bool
+	views     []bool // views[i]: node i's output aliases its input
+	groupOut  map[int]*dtensor
+	add       func(*dtensor)
+	fusedInto map[string]string
 }
 
 // fusable returns the buffer a node reading x can be fused into: x itself,
@@ -396,8 +418,10 @@ func (st *deployState) fusable(x *dtensor, shared bool) (*dtensor, []*dtensor, b
 // i, as written at root's step in root's group instead.
 func (st *deployState) fuseInto(root *dtensor, chain []*dtensor, out string, i int) {
 	root.dropped = true
+	st.fusedInto[root.name] = out
 	for _, c := range chain {
 		c.dropped = true
+		st.fusedInto[c.name] = out
 	}
 	t := &dtensor{name: out, first: root.first, last: root.first, producer: i, head: root.head}
 	st.add(t)

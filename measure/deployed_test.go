@@ -403,3 +403,41 @@ func TestDeployedDecomposedActivations(t *testing.T) {
 		t.Errorf("shared producer output: deployed by step %v, want %v", p.LiveBytesByStep, want)
 	}
 }
+
+// TestLayerViews: the per-layer view carries the deployed view beside the
+// graph view, on TestDeployedConvBNReluFlatten's model (hand-worked there):
+// deployed buffers r at offset 0 (256 B, written at step 0 by the Conv
+// with BatchNormalization and Relu folded in, read through the Flatten),
+// x at 256 (128 B) and y at 256 (40 B, step 4). Every node of the Conv's
+// group and the Flatten hold their values in r's buffer.
+func TestLayerViews(t *testing.T) {
+	b := build.New("cbr", 13, build.Declared())
+	x := b.Input("x", model.Float32, 1, 2, 4, 4)
+	y := b.Conv("c", x, build.Conv2D(4, 1, 1, 0))
+	y = b.BatchNormalization("bn", y, 0)
+	y = b.Relu("r", y)
+	y = b.Flatten("f", y, 1)
+	b.Output(b.Gemm("y", y, 10, true))
+	m, err := b.Model()
+	if err != nil {
+		t.Fatal(err)
+	}
+	met, err := Measure(m, 0, Options{Layers: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []LayerView{{384, 256, 0}, {256, 0, 0}, {256, 0, 0}, {256, 0, 0}, {296, 40, 256}} // hand-worked, above
+	for i, l := range met.Layers {
+		if got := l.Views[ViewDeployed]; got != want[i] {
+			t.Errorf("step %d (%s): deployed %+v, want %+v", i, l.Node, got, want[i])
+		}
+		if g := l.Views[ViewGraph]; g.LiveBytes != l.LiveBytes || g.Offset != l.Offset || g.Bytes != l.Bytes {
+			t.Errorf("step %d: graph view %+v differs from the layer's own fields %d/%d/%d", i, g, l.LiveBytes, l.Offset, l.Bytes)
+		}
+	}
+	d := met.MemoryDetail.Views[ViewDeployed]
+	if met.MemoryDetail.Judged != ViewDeployed || d.PeakStep != 0 || d.PeakLiveBytes != 384 ||
+		!reflect.DeepEqual(d.LiveAtPeak, []LiveTensor{{"x", 128, 256}, {"r", 256, 0}}) { // hand-worked: 128 + 256 at step 0
+		t.Errorf("deployed detail %+v", d)
+	}
+}

@@ -46,7 +46,118 @@ type Layer struct {
 	// node; ActivationBytes the size of its run-time inputs and outputs.
 	WeightBytes     int64 `json:"weight_bytes"`
 	ActivationBytes int64 `json:"activation_bytes"`
+
+	// Views gives the node's memory in each view by name: "graph" (the
+	// fields above), "deployed" (the view ram is judged on) and, where a
+	// runtime's own plan is known, that runtime's.
+	Views map[string]LayerView `json:"views,omitempty"`
 }
+
+// LayerView is one node's memory in one view.
+type LayerView struct {
+	// LiveBytes is the view's live bytes at the node's step.
+	LiveBytes int64 `json:"live_bytes"`
+	// Bytes is the size of the buffers the view writes at this step: the
+	// node's own outputs, or in the deployed view the output of the group
+	// the node heads (0 when the node is fused into another or a view).
+	Bytes int64 `json:"bytes"`
+	// Offset is the arena offset of the buffer holding the node's first
+	// output; -1 when it is in no buffer (static, or never stored).
+	Offset int64 `json:"offset"`
+}
+
+// Names of the memory views in Layer.Views and MemoryDetail.Views.
+const (
+	ViewGraph    = "graph"
+	ViewDeployed = "deployed"
+)
+
+// ViewDetail is where and what one view's peak is.
+type ViewDetail struct {
+	PeakStep      int   `json:"peak_step"`
+	PeakLiveBytes int64 `json:"peak_live_bytes"`
+	// LiveAtPeak are the buffers live at the peak step, in the order they
+	// become live, with their bytes and arena offsets.
+	LiveAtPeak []LiveTensor `json:"live_at_peak"`
+	// LiveBytesByStep is the view's live bytes at each step (with the
+	// per-layer view only).
+	LiveBytesByStep []int64 `json:"live_bytes_by_step,omitempty"`
+}
+
+// LiveTensor is a buffer live at a peak: named by the first tensor it
+// holds (a subgraph body as "node (subgraph)").
+type LiveTensor struct {
+	Name   string `json:"name"`
+	Bytes  int64  `json:"bytes"`
+	Offset int64  `json:"offset"`
+}
+
+// viewDetail summarises a plan's peak; steps adds the live bytes per step.
+func viewDetail(plan *MemoryPlan, steps bool) ViewDetail {
+	d := ViewDetail{PeakStep: plan.PeakStep, PeakLiveBytes: plan.PeakLiveBytes, LiveAtPeak: []LiveTensor{}}
+	at := map[string]Placement{}
+	for _, p := range plan.Placements {
+		if p.First <= plan.PeakStep && plan.PeakStep <= p.Last {
+			at[p.Name] = p
+		}
+	}
+	for _, name := range plan.LiveAtPeak {
+		lt := LiveTensor{Name: name, Offset: -1}
+		if p, ok := at[name]; ok {
+			lt.Bytes, lt.Offset = p.Size, p.Offset
+		}
+		d.LiveAtPeak = append(d.LiveAtPeak, lt)
+	}
+	if steps {
+		d.LiveBytesByStep = plan.LiveBytesByStep
+	}
+	return d
+}
+
+// addLayerView records plan as view name of each layer of graph g.
+func addLayerView(layers []Layer, g *model.Graph, name string, plan *MemoryPlan) {
+	byName := make(map[string]Placement, len(plan.Placements))
+	inputs := map[string]bool{}
+	for _, in := range g.Inputs {
+		inputs[in.Name] = true
+	}
+	written := map[int]int64{} // step → bytes of the buffers first written there
+	for _, p := range plan.Placements {
+		byName[p.Name] = p
+		if !inputs[p.Name] && !isBodyBlock(p.Name) {
+			written[p.First] += p.Size
+		}
+	}
+	for i := range layers {
+		l := &layers[i]
+		if l.Views == nil {
+			l.Views = map[string]LayerView{}
+		}
+		v := LayerView{Offset: -1}
+		if l.Step < len(plan.LiveBytesByStep) {
+			v.LiveBytes = plan.LiveBytesByStep[l.Step]
+		}
+		if l.Step < len(g.Nodes) {
+			for _, o := range g.Nodes[l.Step].Outputs {
+				buf := o
+				if b, ok := plan.BufferOf[o]; ok {
+					buf = b
+				}
+				p, ok := byName[buf]
+				if !ok {
+					continue
+				}
+				if o == l.Output && v.Offset < 0 {
+					v.Offset = p.Offset
+				}
+			}
+		}
+		v.Bytes = written[l.Step]
+		l.Views[name] = v
+	}
+}
+
+func isBodyBlock(name string) bool { return len(name) > 11 && name[len(name)-11:] == " (subgraph)" }
 
 // MemoryDetail is where and what the graph-view peak is.
 type MemoryDetail struct {
@@ -60,6 +171,10 @@ type MemoryDetail struct {
 	// LiveBytesByStep is the graph view's live bytes at each step (with
 	// the per-layer view only).
 	LiveBytesByStep []int64 `json:"live_bytes_by_step,omitempty"`
+	// Views gives each memory view's peak by name ("graph", "deployed",
+	// and a runtime's where known); Judged names the one ram is judged on.
+	Views  map[string]ViewDetail `json:"views,omitempty"`
+	Judged string                `json:"judged_view,omitempty"`
 }
 
 // layersOf joins costs and the graph-view plan per node.

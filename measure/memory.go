@@ -95,6 +95,10 @@ type MemoryPlan struct {
 	Placements []Placement
 	// LiveBytesByStep is the sum of live bytes at each step.
 	LiveBytesByStep []int64
+	// BufferOf maps each tensor that shares another's buffer (deployed
+	// view: fused, aliased or written in place) to the name of that
+	// buffer's placement; a tensor not in it is its own buffer.
+	BufferOf map[string]string
 	// Unresolved lists the tensors left out because their size is not
 	// static; when it is not empty the figures are lower bounds.
 	Unresolved []Unresolved

@@ -141,6 +141,11 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	if out.MemoryDetail.LiveAtPeak == nil {
 		out.MemoryDetail.LiveAtPeak = []string{}
 	}
+	out.MemoryDetail.Judged = ViewDeployed
+	out.MemoryDetail.Views = map[string]ViewDetail{
+		ViewGraph:    viewDetail(plan, opts.Layers),
+		ViewDeployed: viewDetail(dep, opts.Layers),
+	}
 	if opts.Digests {
 		if out.Constants, err = ConstantDigests(m); err != nil {
 			return nil, err
@@ -149,6 +154,8 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	if opts.Layers {
 		out.Layers = layersOf(inf, costs, plan)
 		out.MemoryDetail.LiveBytesByStep = plan.LiveBytesByStep
+		addLayerView(out.Layers, m.Graph, ViewGraph, plan)
+		addLayerView(out.Layers, m.Graph, ViewDeployed, dep)
 	}
 	for _, in := range inf.Inputs {
 		out.Inputs = append(out.Inputs, ioInfo(in))

@@ -39,6 +39,7 @@ const (
 	mdPassModels   = 10 // of which within budget, when others need attention
 	mdDetailModels = 10 // models with a collapsible section
 	mdListItems    = 50 // rows of the budget-change, waiver and problem lists
+	mdPeakRows     = 12 // rows of the tensors live at the judged view's peak
 	mdTopLayers    = 5  // layers in each top-layers table
 	sparkColumns   = 60 // columns of the live-memory picture
 )
@@ -461,7 +462,7 @@ func detailSection(m *budget.ModelResult) string {
 		if b.Len() > 0 {
 			b.WriteString("\n")
 		}
-		b.WriteString("Largest activations:\n\n| node | op | bytes |\n| :--- | :--- | ---: |\n")
+		b.WriteString("Largest activations (the tensors each node writes, by their own bytes):\n\n| node | op | bytes |\n| :--- | :--- | ---: |\n")
 		for i, l := range d.TopMemory {
 			if i == mdTopLayers {
 				break
@@ -469,16 +470,42 @@ func detailSection(m *budget.ModelResult) string {
 			fmt.Fprintf(&b, "| %s | %s | %s |\n", mdCode(l.Node), mdText(l.Op), Bytes(l.Value))
 		}
 	}
-	if pic := spark(d.LiveBytes, d.PeakStep); pic != "" {
+	views := d.Views
+	if len(views) == 0 && len(d.LiveBytes) > 0 {
+		views = []budget.DetailView{{Name: "graph", LiveBytes: d.LiveBytes, PeakStep: d.PeakStep}}
+	}
+	for _, v := range views {
+		pic := spark(v.LiveBytes, v.PeakStep)
+		if pic == "" {
+			continue
+		}
 		if b.Len() > 0 {
 			b.WriteString("\n")
 		}
-		n := len(d.LiveBytes)
+		n := len(v.LiveBytes)
 		per := ""
 		if n > sparkColumns {
 			per = fmt.Sprintf(", each column the largest of about %d steps", (n+sparkColumns-1)/sparkColumns)
 		}
-		fmt.Fprintf(&b, "Live activation memory over the %d steps of the schedule (graph view%s):\n\n```text\n%s\n```\n", n, per, pic)
+		judged := ""
+		if v.Judged {
+			judged = ", the view ram is judged on"
+		}
+		fmt.Fprintf(&b, "Live activation memory over the %d steps of the schedule (%s view%s%s):\n\n```text\n%s\n```\n", n, mdText(v.Name), judged, per, pic)
+		if v.Judged && len(v.AtPeak) > 0 {
+			fmt.Fprintf(&b, "\nLive at the %s peak (step %d, %s):\n\n| tensor | bytes | offset |\n| :--- | ---: | ---: |\n", mdText(v.Name), v.PeakStep, Bytes(v.PeakBytes))
+			for i, t := range v.AtPeak {
+				if i == mdPeakRows {
+					fmt.Fprintf(&b, "| … %d more | | |\n", len(v.AtPeak)-i)
+					break
+				}
+				off := none
+				if t.Offset >= 0 {
+					off = fmt.Sprint(t.Offset)
+				}
+				fmt.Fprintf(&b, "| %s | %s | %s |\n", mdCode(t.Name), Bytes(t.Bytes), off)
+			}
+		}
 	}
 	if b.Len() == 0 {
 		return ""
@@ -486,7 +513,7 @@ func detailSection(m *budget.ModelResult) string {
 	what := "heaviest layers"
 	if len(d.TopMACs) == 0 && len(d.TopMemory) == 0 {
 		what = "live memory"
-	} else if len(d.LiveBytes) > 0 {
+	} else if len(views) > 0 {
 		what += " and live memory"
 	}
 	return "<details><summary><code>" + html.EscapeString(m.Path) + "</code>: " + what + "</summary>\n\n" + b.String() + "\n</details>\n"

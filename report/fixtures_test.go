@@ -250,6 +250,11 @@ func trackerModel() budget.ModelResult {
 		},
 		LiveBytes: liveCurve(24, 7, 249856),
 		PeakStep:  7,
+		Views: []budget.DetailView{
+			{Name: "graph", LiveBytes: liveCurve(24, 7, 249856), PeakStep: 7, PeakBytes: 249856},
+			{Name: "deployed", Judged: true, LiveBytes: liveCurve(24, 5, 122880), PeakStep: 5, PeakBytes: 122880,
+				AtPeak: []budget.DetailTensor{{Name: "backbone/conv1_out", Bytes: 73728, Offset: 0}, {Name: "backbone/conv2_out", Bytes: 49152, Offset: 73728}}},
+		},
 	}
 	return m
 }

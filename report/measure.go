@@ -192,18 +192,27 @@ func targetText(w io.Writer, e *target.Estimate) {
 	}
 }
 
-// layersText writes the per-node table, the top contributors to MACs and to
-// live memory, and what is live at the graph-view peak.
+// layersText writes the per-node table with the graph view and the
+// deployed view (the one ram is judged on) side by side, the top
+// contributors to MACs and to each view's live memory, and what is live at
+// each view's peak with its arena offset.
 func layersText(w io.Writer, m *measure.Metrics) {
-	fmt.Fprintln(w, "\n  layers (schedule = file order; live = graph-view bytes live at the step; offset = graph-view arena)")
+	fmt.Fprintln(w, "\n  layers (schedule = file order; live = bytes live at the step; offset = arena offset of the node's output; deployed = the view ram is judged on)")
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-	fmt.Fprintln(tw, "  step\tnode\top\toutput\tMACs\tbytes\tlive\toffset\t")
-	for _, l := range m.Layers {
-		off := "-"
-		if l.Offset >= 0 {
-			off = fmt.Sprint(l.Offset)
+	fmt.Fprintln(tw, "  step\tnode\top\toutput\tMACs\tbytes\tlive graph\toffset graph\tlive deployed\toffset deployed\t")
+	off := func(o int64) string {
+		if o < 0 {
+			return "-"
 		}
-		fmt.Fprintf(tw, "  %d\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t\n", l.Step, l.Node, l.Op, l.Shape, Count(l.MACs), Bytes(l.Bytes), Bytes(l.LiveBytes), off)
+		return fmt.Sprint(o)
+	}
+	for _, l := range m.Layers {
+		d, ok := l.Views[measure.ViewDeployed]
+		dl, do := "-", "-"
+		if ok {
+			dl, do = Bytes(d.LiveBytes), off(d.Offset)
+		}
+		fmt.Fprintf(tw, "  %d\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t\n", l.Step, l.Node, l.Op, l.Shape, Count(l.MACs), Bytes(l.Bytes), Bytes(l.LiveBytes), off(l.Offset), dl, do)
 	}
 	tw.Flush()
 	top := func(title string, key func(measure.Layer) int64, unit func(int64) string) {
@@ -218,8 +227,23 @@ func layersText(w io.Writer, m *measure.Metrics) {
 		}
 	}
 	top("MACs", func(l measure.Layer) int64 { return l.MACs }, Count)
+	top("activations (each node's output, own bytes)", func(l measure.Layer) int64 { return l.Bytes }, Bytes)
 	top("live memory (graph view)", func(l measure.Layer) int64 { return l.LiveBytes }, Bytes)
-	fmt.Fprintf(w, "\n  graph-view peak %s at step %d; live there: %s\n", Bytes(m.Memory.Graph.PeakLiveBytes), m.MemoryDetail.PeakStep, strings.Join(m.MemoryDetail.LiveAtPeak, ", "))
+	top("live memory (deployed view)", func(l measure.Layer) int64 { return l.Views[measure.ViewDeployed].LiveBytes }, Bytes)
+	for _, name := range []string{measure.ViewGraph, measure.ViewDeployed, "runtime"} {
+		v, ok := m.MemoryDetail.Views[name]
+		if !ok {
+			continue
+		}
+		judged := ""
+		if name == m.MemoryDetail.Judged {
+			judged = ", judged"
+		}
+		fmt.Fprintf(w, "\n  %s-view peak %s at step %d%s; live there:\n", name, Bytes(v.PeakLiveBytes), v.PeakStep, judged)
+		for _, t := range v.LiveAtPeak {
+			fmt.Fprintf(w, "    %-10s at %-10s %s\n", Bytes(t.Bytes), off(t.Offset), t.Name)
+		}
+	}
 }
 
 func opsetText(o map[string]int64) string {

@@ -21,14 +21,24 @@ func TestMeasureTextLayers(t *testing.T) {
 		Path: "chain.onnx", Format: "onnx", Nodes: 3, Opsets: map[string]int64{"": 13}, Sparsity: -1,
 		Inputs: []measure.IOInfo{}, Outputs: []measure.IOInfo{}, Unresolved: []measure.Unresolved{},
 		Layers: []measure.Layer{
-			{Step: 0, Node: "conv", Op: "Conv", Shape: "float32[1,8,8,8]", MACs: 13824, Bytes: 2048, LiveBytes: 2816, Offset: 0},
-			{Step: 1, Node: "relu", Op: "Relu", Shape: "float32[1,8,8,8]", Bytes: 2048, LiveBytes: 4096, Offset: 2048},
-			{Step: 2, Node: "flat", Op: "Flatten", Shape: "float32[1,512]", MACs: 0, Bytes: 0, LiveBytes: 2048, Offset: -1},
+			{Step: 0, Node: "conv", Op: "Conv", Shape: "float32[1,8,8,8]", MACs: 13824, Bytes: 2048, LiveBytes: 2816, Offset: 0,
+				Views: map[string]measure.LayerView{"deployed": {LiveBytes: 2816, Bytes: 2048, Offset: 0}}},
+			{Step: 1, Node: "relu", Op: "Relu", Shape: "float32[1,8,8,8]", Bytes: 2048, LiveBytes: 4096, Offset: 2048,
+				Views: map[string]measure.LayerView{"deployed": {LiveBytes: 2048, Offset: 0}}},
+			{Step: 2, Node: "flat", Op: "Flatten", Shape: "float32[1,512]", MACs: 0, Bytes: 0, LiveBytes: 2048, Offset: -1,
+				Views: map[string]measure.LayerView{"deployed": {LiveBytes: 2048, Offset: 0}}},
 		},
 	}
+	// Deployed, the Relu fuses into the Conv: one 2,048 B buffer r from
+	// step 0, beside the input at step 0: 2,816 B.
 	m.Memory.Graph.PeakLiveBytes = 4096
 	m.MemoryDetail.PeakStep = 1
 	m.MemoryDetail.LiveAtPeak = []string{"c", "r"}
+	m.MemoryDetail.Judged = "deployed"
+	m.MemoryDetail.Views = map[string]measure.ViewDetail{
+		"graph":    {PeakStep: 1, PeakLiveBytes: 4096, LiveAtPeak: []measure.LiveTensor{{Name: "c", Bytes: 2048, Offset: 0}, {Name: "r", Bytes: 2048, Offset: 2048}}},
+		"deployed": {PeakStep: 0, PeakLiveBytes: 2816, LiveAtPeak: []measure.LiveTensor{{Name: "image", Bytes: 768, Offset: 2048}, {Name: "r", Bytes: 2048, Offset: 0}}},
+	}
 	var b bytes.Buffer
 	if err := MeasureText(&b, []*measure.Metrics{m}); err != nil {
 		t.Fatal(err)
@@ -41,19 +51,21 @@ func TestMeasureTextLayers(t *testing.T) {
 		}
 	}
 	for step, want := range map[string]string{
-		"0": "0 conv Conv float32[1,8,8,8] 13.8 k 2.00 KiB 2.75 KiB 0",
-		"1": "1 relu Relu float32[1,8,8,8] 0 2.00 KiB 4.00 KiB 2048",
-		"2": "2 flat Flatten float32[1,512] 0 0 B 2.00 KiB -",
+		"0": "0 conv Conv float32[1,8,8,8] 13.8 k 2.00 KiB 2.75 KiB 0 2.75 KiB 0",
+		"1": "1 relu Relu float32[1,8,8,8] 0 2.00 KiB 4.00 KiB 2048 2.00 KiB 0",
+		"2": "2 flat Flatten float32[1,512] 0 0 B 2.00 KiB - 2.00 KiB 0",
 	} {
 		if rows[step] != want {
 			t.Errorf("row %s: %q, want %q\n%s", step, rows[step], want, out)
 		}
 	}
 	for _, want := range []string{
-		"\n  layers (schedule = file order; live = graph-view bytes live at the step; offset = graph-view arena)\n",
+		"\n  layers (schedule = file order; live = bytes live at the step; offset = arena offset of the node's output; deployed = the view ram is judged on)\n",
 		"\n  top MACs\n    13.8 k     conv (Conv, step 0)\n\n",
 		"\n  top live memory (graph view)\n    4.00 KiB   relu (Relu, step 1)\n    2.75 KiB   conv (Conv, step 0)\n    2.00 KiB   flat (Flatten, step 2)\n",
-		"\n  graph-view peak 4.00 KiB at step 1; live there: c, r\n",
+		"\n  graph-view peak 4.00 KiB at step 1; live there:\n    2.00 KiB   at 0          c\n    2.00 KiB   at 2048       r\n",
+		"\n  deployed-view peak 2.75 KiB at step 0, judged; live there:\n    768 B      at 2048       image\n    2.00 KiB   at 0          r\n",
+		"\n  top activations (each node's output, own bytes)\n    2.00 KiB   conv (Conv, step 0)\n    2.00 KiB   relu (Relu, step 1)\n\n",
 	} {
 		if !strings.Contains(out, want) {
 			t.Errorf("missing %q in:\n%s", want, out)

@@ -75,7 +75,7 @@ func TestMeasureLayersText(t *testing.T) {
 	if code != exitOK {
 		t.Fatalf("exit %d: %s", code, errs)
 	}
-	for _, want := range []string{"\n  layers (schedule = file order;", "\n  top MACs\n", "\n  top live memory (graph view)\n", "\n  graph-view peak "} {
+	for _, want := range []string{"\n  layers (schedule = file order;", "\n  top MACs\n", "\n  top live memory (graph view)\n", "\n  graph-view peak ", "\n  top live memory (deployed view)\n", "\n  deployed-view peak ", ", judged; live there:\n", "live deployed  offset deployed"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("missing %q in:\n%s", want, out)
 		}
