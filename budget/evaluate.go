@@ -36,11 +36,14 @@ type EvalOptions struct {
 // Deploy returns a copy of fig with RAM and Flash computed for the device.
 // This is the one definition of the two device figures:
 //
-//   - ram = the deployed activation arena (Memory.Deployed.ArenaBytes),
-//     plus ParamBytes when the device keeps weights in RAM (weights: ram),
-//     as the runtime copies them there before it runs; when weights live in
-//     flash (weights: flash, the default) they are read in place and ram is
-//     the arena alone.
+//   - ram = the deployed activation arena (Memory.Deployed.ArenaBytes);
+//     for a TFLite model, the arena the microcontroller runtime plans
+//     (Memory.Runtime.ArenaBytes, kernel scratch included) plus the
+//     persistent bytes of its variable tensors (Memory.PersistentBytes),
+//     which that runtime allocates beside the arena. Either way plus
+//     ParamBytes when the device keeps weights in RAM (weights: ram), as
+//     the runtime copies them there before it runs; when weights live in
+//     flash (weights: flash, the default) they are read in place.
 //   - flash = FileBytes + ExternalBytes, the model as stored (the model
 //     file, weights plus graph, and any external data files its weights
 //     live in), wherever weights live: with weights: flash they are read
@@ -56,6 +59,9 @@ func (d *Device) Deploy(fig *Figures) *Figures {
 	out := *fig
 	out.Unknown = copyUnknown(fig.Unknown)
 	out.RAM = fig.Memory.Deployed.ArenaBytes
+	if rt := fig.Memory.Runtime; rt != nil {
+		out.RAM = addSat(rt.ArenaBytes, fig.Memory.PersistentBytes)
+	}
 	if why, ok := fig.Unknown[MetricArena]; ok {
 		setUnknown(&out, MetricRAM, "arena: "+why)
 	}

@@ -65,7 +65,7 @@ func judgeSnapshot(s *Snapshot, f *budget.File, bpath string, eo budget.EvalOpti
 	if err != nil {
 		return nil, err
 	}
-	want := judged(bpath, f)
+	want := judged(bpath)
 	var paths []string
 	for _, p := range tree {
 		if want(p) {

@@ -16,6 +16,7 @@ import (
 	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/model/build"
 	"github.com/loadline/loadline/model/onnx"
+	"github.com/loadline/loadline/model/tflite"
 )
 
 // The demo's invented scenario. Wrenfield Labs (a made-up company) ships a
@@ -34,6 +35,10 @@ devices:
     ram: 128KiB
     flash: 256KiB
     weights: flash
+  doorbell:           # microcontroller in a doorbell, runs a TFLite model
+    ram: 64KiB
+    flash: 128KiB
+    weights: flash
 models:
   - path: "models/porch-cam/**/*.onnx"
     device: porch-cam
@@ -45,6 +50,10 @@ models:
     limits: {ram: 80%, flash: 200KiB, params: 40k, macs: 6M}
     growth: {params: 60%, macs: 60%}
     warn_at: 90%
+  - path: "models/doorbell/**/*.tflite"
+    device: doorbell
+    limits: {ram: 75%, flash: 64KiB, macs: 2M}
+    growth: {ram: 25%, macs: 25%}
 `
 
 // DemoToday is the date the demo's check runs on: the day after the
@@ -67,6 +76,9 @@ type demoCommit struct {
 	message string
 	models  map[string]func() (*model.Model, error)
 	tag     string
+	// encoded are models written in their own format (TFLite) by their
+	// own encoder.
+	encoded map[string]func() ([]byte, error)
 }
 
 // demoReleases are the invented scenario's earlier releases on main, for
@@ -78,16 +90,16 @@ var demoReleases = []demoCommit{
 			return build.MobileNetV1(build.Options{Size: 96, Width: 0.25, Classes: 12})
 		},
 		"models/kitchen-timer/wakeword.onnx": func() (*model.Model, error) { return buildWakeword(40) },
-	}, "v1.0.0"},
+	}, "v1.0.0", nil},
 	{"Release 1.1: bird detector at 112×112, wake-word spotter with 48 channels", map[string]func() (*model.Model, error){
 		"models/porch-cam/birdspot.onnx": func() (*model.Model, error) {
 			return build.MobileNetV1(build.Options{Size: 112, Width: 0.25, Classes: 12})
 		},
 		"models/kitchen-timer/wakeword.onnx": func() (*model.Model, error) { return buildWakeword(48) },
-	}, "v1.1.0"},
+	}, "v1.1.0", nil},
 	{"Release 1.2: wake-word spotter with 56 channels", map[string]func() (*model.Model, error){
 		"models/kitchen-timer/wakeword.onnx": func() (*model.Model, error) { return buildWakeword(56) },
-	}, "v1.2.0"},
+	}, "v1.2.0", nil},
 }
 
 var demoHistory = []demoCommit{
@@ -96,13 +108,17 @@ var demoHistory = []demoCommit{
 			return build.MobileNetV1(build.Options{Size: 128, Width: 0.25, Classes: 12})
 		},
 		"models/kitchen-timer/wakeword.onnx": func() (*model.Model, error) { return buildWakeword(64) },
-	}, ""},
+	}, "", map[string]func() ([]byte, error){
+		"models/doorbell/chime.tflite": func() ([]byte, error) { return buildChime(16) },
+	}},
 	{"Retrain: bird detector at 160×160, wake-word spotter with 80 channels", map[string]func() (*model.Model, error){
 		"models/porch-cam/birdspot.onnx": func() (*model.Model, error) {
 			return build.MobileNetV1(build.Options{Size: 160, Width: 0.25, Classes: 12})
 		},
 		"models/kitchen-timer/wakeword.onnx": func() (*model.Model, error) { return buildWakeword(80) },
-	}, ""},
+	}, "", map[string]func() ([]byte, error){
+		"models/doorbell/chime.tflite": func() ([]byte, error) { return buildChime(18) },
+	}},
 }
 
 // buildWakeword builds a small keyword-spotting network of our own design
@@ -126,6 +142,26 @@ func buildWakeword(ch int64) (*model.Model, error) {
 	x = b.Softmax("probs", x, 1)
 	b.Output(x)
 	return b.Model()
+}
+
+// buildChime builds the doorbell's chime detector, a small int8 TFLite
+// network of our own design (a convolution and a depthwise-separable
+// block on 49×10 MFCC frames), written with the TFLite encoder.
+func buildChime(width int32) ([]byte, error) {
+	b := tflite.NewBuilder(tflite.Int8)
+	x := b.Input("mfcc", 1, 49, 10, 1)
+	x = b.Conv2D("conv0", x, width, 3, 2, true, "RELU")
+	x = b.DepthwiseConv2D("dw1", x, 3, 1, true, "RELU")
+	x = b.Conv2D("pw1", x, width, 1, 1, true, "RELU")
+	x = b.AveragePool2D("pool", x)
+	x = b.Reshape("flatten", x, 1, width)
+	x = b.FullyConnected("classifier", x, 3, "NONE")
+	b.Output(b.Softmax("probs", x))
+	m, err := b.Model()
+	if err != nil {
+		return nil, err
+	}
+	return tflite.Encode(m)
 }
 
 // DemoRepo builds the demo repository in dir: the budget file, three
@@ -168,6 +204,13 @@ func DemoRepo(dir string, log io.Writer) error {
 			data, err := onnx.Encode(m)
 			if err != nil {
 				return fmt.Errorf("encoding %s: %w", p, err)
+			}
+			files[p] = data
+		}
+		for p, f := range c.encoded {
+			data, err := f()
+			if err != nil {
+				return fmt.Errorf("building %s: %w", p, err)
 			}
 			files[p] = data
 		}

@@ -119,3 +119,30 @@ func TestStarterBudgetFileNameCannotWriteKeys(t *testing.T) {
 		t.Fatalf("a file name wrote a waiver into the starter budget:\n%s", text)
 	}
 }
+
+// TestStarterBudgetTFLite: init finds TFLite models beside ONNX ones, and
+// the starter budget it writes passes them.
+func TestStarterBudgetTFLite(t *testing.T) {
+	dir := t.TempDir()
+	files := map[string][]byte{"models/kws/kws.tflite": kwsModel(t, 16), "models/cam/a.onnx": smallModel(t, 8)}
+	for p, data := range files {
+		full := filepath.Join(dir, filepath.FromSlash(p))
+		if err := os.MkdirAll(filepath.Dir(full), 0o755); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(full, data, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	text, _, err := StarterBudget(InitOptions{Dir: dir, Headroom: 0.1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	f, err := budget.Parse("loadline.yaml", []byte(text))
+	if err != nil {
+		t.Fatalf("%v\n%s", err, text)
+	}
+	if len(f.Match("models/kws/kws.tflite")) != 1 || !strings.Contains(text, "models/kws/*.tflite") {
+		t.Errorf("the TFLite model has no rule of its own folder:\n%s", text)
+	}
+}

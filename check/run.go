@@ -347,7 +347,7 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	if both {
 		files = []*budget.File{baseBudget, headBudget}
 	}
-	want := judged(bpath, files...)
+	want := judged(bpath)
 	all, err := Diff(rg.Base, rg.Head, func(p string) bool { return p != bpath })
 	if err != nil {
 		return nil, nil, err
@@ -533,12 +533,6 @@ func wayOut(bpath string, changes []budget.BudgetChange) []string {
 		bpath, strings.Join(loose, ", "))}
 }
 
-// judged returns which paths are models to judge: files with a model
-// extension other than the budget file. TFLite files are judged only where
-// a rule of one of the files names them, so that a .tflite file no one
-// budgets does not fail every change that touches it. A folder glob
-// ("models/**") also matches the notes and external data beside the
-// models, which are no models to measure.
 // submoduleNotes says of each submodule of s at a model path that a rule
 // covers that it is no model file and is not measured.
 func submoduleNotes(s *Snapshot, covered func(string) bool) ([]string, error) {
@@ -595,20 +589,13 @@ func pairMoves(all []FileChange, covered func(string) bool) []FileChange {
 	return out
 }
 
-func judged(bpath string, files ...*budget.File) func(string) bool {
+// judged returns which paths are models to judge: files with a model
+// extension (.onnx, .tflite) other than the budget file. A folder glob
+// ("models/**") also matches the notes and external data beside the
+// models, which are no models to measure.
+func judged(bpath string) func(string) bool {
 	return func(p string) bool {
-		if p == bpath || !IsModelPath(p) {
-			return false
-		}
-		if strings.EqualFold(path.Ext(p), ".tflite") {
-			for _, f := range files {
-				if len(f.Match(p)) > 0 {
-					return true
-				}
-			}
-			return false
-		}
-		return true
+		return p != bpath && IsModelPath(p)
 	}
 }
 

@@ -1,6 +1,7 @@
 package check
 
 import (
+	"bytes"
 	"errors"
 	"fmt"
 	"os"
@@ -14,6 +15,8 @@ import (
 	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/model/build"
 	"github.com/loadline/loadline/model/onnx"
+	"github.com/loadline/loadline/model/tflite"
+	"github.com/loadline/loadline/report"
 )
 
 // runBudget is an invented budget for the pipeline tests: small-model
@@ -517,24 +520,93 @@ func TestRemovedBudgetFileIsReported(t *testing.T) {
 	}
 }
 
-// TestTFLiteOnlyWhereBudgeted: a changed .tflite file that no rule names is
-// not judged (loadline cannot read TFLite yet); one a rule names fails,
-// saying the format is not supported.
-func TestTFLiteOnlyWhereBudgeted(t *testing.T) {
-	g := newGitRepo(t)
-	g.write("loadline.yaml", []byte("version: 1\ndevices:\n  d: {ram: 1MiB}\nmodels:\n  - path: \"budgeted/*\"\n    device: d\n    limits: {params: 1M}\n"))
-	g.write("free/a.tflite", []byte("TFL3 one"))
-	g.write("budgeted/b.tflite", []byte("TFL3 one"))
-	g.commit("base")
-	g.write("free/a.tflite", []byte("TFL3 two"))
-	g.write("budgeted/b.tflite", []byte("TFL3 two"))
-	g.commit("change")
-	res, _, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", NoCache: true})
+// kwsModel is a small int8 keyword-spotting network in TFLite, built with
+// the encoder, whose first convolution has width filters.
+func kwsModel(t *testing.T, width int32) []byte {
+	t.Helper()
+	b := tflite.NewBuilder(tflite.Int8)
+	x := b.Input("mfcc", 1, 49, 10, 1)
+	y := b.Conv2D("conv", x, width, 3, 2, true, "RELU")
+	y = b.DepthwiseConv2D("dw", y, 3, 1, true, "RELU")
+	y = b.AveragePool2D("pool", y)
+	y = b.Reshape("flat", y, 1, width)
+	b.Output(b.Softmax("prob", b.FullyConnected("fc", y, 12, "NONE")))
+	m, err := b.Model()
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(res.Models) != 1 || res.Models[0].Path != "budgeted/b.tflite" || !strings.Contains(res.Models[0].Error, "not a TFLite model") {
-		t.Fatalf("models %+v: want only budgeted/b.tflite, failing as no TFLite model", res.Models)
+	data, err := tflite.Encode(m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return data
+}
+
+// TestTFLiteModelGrows: a .tflite model that grows in a real repository is
+// judged as an ONNX model is: measured from git objects, its ram the
+// runtime arena plus persistent bytes, the growth failing the check, the
+// reports naming it, and the second check answered from the cache. A
+// changed .tflite file no rule names is a model too (reported as matched
+// by no rule).
+func TestTFLiteModelGrows(t *testing.T) {
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte("version: 1\ndevices:\n  timer: {ram: 256KiB, flash: 1MiB}\nmodels:\n  - path: \"models/**/*.tflite\"\n    device: timer\n    limits: {ram: 64KiB}\n    growth: {macs: 10%}\n"))
+	g.write("models/kws/kws.tflite", kwsModel(t, 16))
+	g.write("free/other.tflite", kwsModel(t, 8))
+	g.commit("base")
+	g.write("models/kws/kws.tflite", kwsModel(t, 32))
+	g.write("free/other.tflite", kwsModel(t, 9))
+	g.commit("wider")
+	res, st, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Verdict != budget.Fail || len(res.Models) != 2 {
+		t.Fatalf("verdict %s, %d models; want fail with both .tflite files judged", res.Verdict, len(res.Models))
+	}
+	var kws *budget.ModelResult
+	for i := range res.Models {
+		if res.Models[i].Path == "models/kws/kws.tflite" {
+			kws = &res.Models[i]
+		}
+	}
+	if kws == nil || kws.Head == nil || kws.Base == nil || kws.Error != "" {
+		t.Fatalf("models %+v", res.Models)
+	}
+	// MACs grow with the conv's width: conv 25·5·32 × 9·1, depthwise ×9,
+	// FC 32·12: twice the width, about twice the MACs, far past 10 %.
+	var macsFailed bool
+	for _, c := range kws.Checks {
+		macsFailed = macsFailed || (c.Metric == budget.MetricMACs && c.Status == budget.Fail)
+	}
+	if !macsFailed || kws.Head.MACs <= kws.Base.MACs {
+		t.Errorf("checks %+v: want the MACs growth to fail", kws.Checks)
+	}
+	rt := kws.Head.Memory.Runtime
+	if rt == nil || kws.Head.RAM != rt.ArenaBytes+kws.Head.Memory.PersistentBytes {
+		t.Errorf("head ram %d, runtime %+v: ram of a TFLite model is the runtime arena plus persistent bytes", kws.Head.RAM, rt)
+	}
+	var md, ju bytes.Buffer
+	if err := report.CheckMarkdown(&md, res, report.MarkdownOptions{}); err != nil {
+		t.Fatal(err)
+	}
+	if err := report.CheckJUnit(&ju, res); err != nil {
+		t.Fatal(err)
+	}
+	for name, out := range map[string]string{"markdown": md.String(), "junit": ju.String()} {
+		if !strings.Contains(out, "models/kws/kws.tflite") || !strings.Contains(out, "free/other.tflite") {
+			t.Errorf("%s report does not name both models:\n%s", name, out)
+		}
+	}
+	if st.Measured.Load() != 4 {
+		t.Errorf("measured %d, want 4 (two models at two revisions)", st.Measured.Load())
+	}
+	again, st2, err := Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if st2.Measured.Load() != 0 || st2.CacheHits.Load() != 4 || again.Verdict != res.Verdict {
+		t.Errorf("second check: measured %d, cache hits %d, verdict %s; want everything from the cache", st2.Measured.Load(), st2.CacheHits.Load(), again.Verdict)
 	}
 }
 

@@ -15,14 +15,27 @@ import (
 // inputs imply, it is listed as unresolved and its output's shape is
 // treated as unknown, so that nothing downstream trusts it.
 func inferStored(m *model.Model, opts InferOptions) (*Inference, error) {
+	// The bindings are checked against the inputs as ONNX's are (bind.go);
+	// the file's own sizes fill in every dim they leave unbound.
+	ins, bound, issues, err := boundInputs(m.Graph, m.Graph.Inputs, opts, !opts.Lenient)
+	if err != nil {
+		return nil, err
+	}
 	dims := map[string]int64{}
 	for k, v := range m.DimDefaults {
 		dims[k] = v
 	}
-	for k, v := range opts.Dims {
+	for k, v := range bound {
 		dims[k] = v
 	}
-	s := &storedInference{dims: dims, res: &Inference{Model: m, Subgraphs: map[*model.Graph]map[string]*Value{}, Calls: map[*model.Node]*CallBody{}}}
+	s := &storedInference{dims: dims, res: &Inference{Model: m, Subgraphs: map[*model.Graph]map[string]*Value{}, Calls: map[*model.Node]*CallBody{},
+		Dims: bound, BindingIssues: issues, Has: inputsText(m.Graph.Inputs, ins)}}
+	s.inputs = map[string]*Value{}
+	for i, in := range m.Graph.Inputs {
+		v := *ins[i]
+		v.Type = bindDims(v.Type, dims)
+		s.inputs[in.Name] = &v
+	}
 	vals, err := s.graph(m.Graph, "", 0)
 	if err != nil {
 		return nil, err
@@ -40,6 +53,7 @@ func inferStored(m *model.Model, opts InferOptions) (*Inference, error) {
 
 type storedInference struct {
 	dims       map[string]int64
+	inputs     map[string]*Value // the main graph's inputs, bound
 	res        *Inference
 	unresolved []Unresolved
 }
@@ -62,6 +76,11 @@ func (s *storedInference) graph(g *model.Graph, path string, depth int) (map[str
 		vals[t.Name] = tensorValue(t)
 	}
 	declare(g.State, true)
+	if depth == 0 {
+		for name, v := range s.inputs {
+			vals[name] = v
+		}
+	}
 	declare(g.Inputs, false)
 	declare(g.Outputs, false)
 	declare(g.ValueInfo, false)

@@ -52,7 +52,11 @@ func MeasureText(w io.Writer, entries []*measure.Metrics) error {
 			fmt.Fprintf(w, "%s\n  error: %s\n", m.Path, m.Error)
 			continue
 		}
-		fmt.Fprintf(w, "%s  (%s, %d nodes, opset %s)\n", m.Path, m.Format, m.Nodes, opsetText(m.Opsets))
+		if m.Format == "tflite" {
+			fmt.Fprintf(w, "%s  (%s, %d operators)\n", m.Path, m.Format, m.Nodes)
+		} else {
+			fmt.Fprintf(w, "%s  (%s, %d nodes, opset %s)\n", m.Path, m.Format, m.Nodes, opsetText(m.Opsets))
+		}
 		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
 		fmt.Fprintf(tw, "  file\t%s\n", Bytes(m.FileBytes))
 		fmt.Fprintf(tw, "  params\t%s\t(%s)\n", Count(m.Params), dtypeText(m))
@@ -66,6 +70,10 @@ func MeasureText(w io.Writer, entries []*measure.Metrics) error {
 		g, d := m.Memory.Graph, m.Memory.Deployed
 		fmt.Fprintf(tw, "  activations, graph\t%s%s\tpeak live %s%s, arena/peak %.2f\n", atLeast, Bytes(g.ArenaBytes), atLeast, Bytes(g.PeakLiveBytes), m.MemoryDetail.ArenaRatio)
 		fmt.Fprintf(tw, "  activations, deployed\t%s%s\tpeak live %s%s, arena/peak %.2f\n", atLeast, Bytes(d.ArenaBytes), atLeast, Bytes(d.PeakLiveBytes), m.MemoryDetail.DeployedRatio)
+		if rt := m.Memory.Runtime; rt != nil {
+			fmt.Fprintf(tw, "  activations, runtime\t%s%s\tpeak live %s%s, kernel scratch %s (as the microcontroller runtime plans it)\n", atLeast, Bytes(rt.ArenaBytes), atLeast, Bytes(rt.PeakLiveBytes), Bytes(rt.ScratchBytes))
+			fmt.Fprintf(tw, "  persistent\t%s\t(variable tensors, kept between invocations)\n", Bytes(m.Memory.PersistentBytes))
+		}
 		if m.Sparsity >= 0 {
 			fmt.Fprintf(tw, "  weight sparsity\t%.1f %%\t(exact zeros)\n", 100*m.Sparsity)
 		}

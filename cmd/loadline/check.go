@@ -26,8 +26,10 @@ const version = "0.1.0"
 const checkConventions = `Verdicts: each limit in the budget file is a check of the head's figure
 (fail above the limit, warn above warn_at of it); each growth rule a check
 against the base's figure. A waiver turns a failure into "waived" until its
-date. ram = deployed activation arena (+ weight bytes when the device keeps
-weights in RAM); flash = the model file's bytes plus its external data.
+date. ram = deployed activation arena, or for a TFLite model the runtime
+arena plus the persistent bytes of its variable tensors (+ weight bytes when
+the device keeps weights in RAM); flash = the model file's bytes plus its
+external data.
 Device totals, for a device that lists the models it runs: flash = the sum
 of their flash (identical constants of 256 B or more counted once with
 shared_weights: true, else reported as a possible saving); ram = the

@@ -74,7 +74,18 @@ const conventions = `Figures (static estimates from the model file; measure on t
                and x*Relu6(x+3)/6; GELU with Erf or Tanh; Mish). Views: Reshape,
                Flatten, Squeeze, Unsqueeze, Identity, a Cast to the same dtype, an
                inference Dropout; fusions see through chains of them.
-  shapes       inferred for every tensor; symbolic dims stay symbols unless bound.
+               Runtime view (TFLite): the arena the microcontroller runtime plans:
+               operator-scoped lifetimes, every buffer rounded up to 16 bytes,
+               largest first (ties in tensor order) at the first gap among the
+               buffers live with it, an offline plan's offsets honoured, reshape
+               not in place, kernel scratch (SVDF) placed for its operator's step;
+               scratch = the most one operator asks for.
+  persistent   bytes of TFLite variable tensors (state kept between invocations),
+               allocated beside the runtime arena.
+  shapes       ONNX: inferred for every tensor; symbolic dims stay symbols unless
+               bound. TFLite: the stored shapes, checked per operator (a
+               contradiction is listed as unresolved); a -1 of a shape_signature is
+               the dim "batch" (axis 0) or "dimK", at its stored size unless bound.
                Nodes whose shapes cannot be inferred are listed as unresolved, with
                the reason.
   bindings     --dim NAME=N sizes a symbolic input dim (an unnamed one is INPUT.AXIS,
@@ -85,6 +96,11 @@ const conventions = `Figures (static estimates from the model file; measure on t
                nothing, or not fitting the input, is an error listing the inputs (in
                check: only for a model still waiting for a binding). Unbound models
                list each missing binding with what waits for it.
+  TFLite ops   builtin operators use the same MAC formulas (CONV_2D, DEPTHWISE_CONV_2D
+               with one input channel per output, FULLY_CONNECTED and BATCH_MATMUL
+               as matmul, TRANSPOSE_CONV, UNIDIRECTIONAL_SEQUENCE_LSTM as LSTM, SVDF =
+               batch × filters × (input + memory)); a fused activation adds one FLOP
+               per output element; custom operators are listed as unresolved.
   latency,     estimates on a device target (--target, or a budget device's
   energy       target:): each operator is classed (conv, depthwise, dense,
                recurrent, elementwise, pooling, movement) and costs
