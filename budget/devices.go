@@ -254,3 +254,70 @@ func parsePeriod(key, s string) (time.Duration, error) {
 	}
 	return per, nil
 }
+
+// diffDeviceSet lists the changes to what a device runs together. Loosened
+// when the head lets the totals take more: models running one at a time
+// instead of concurrently (one arena instead of a sum), identical weights
+// now counted once, a model left out of the set, a period made longer, a
+// limit on a total raised or removed.
+func diffDeviceSet(key string, bd, hd *Device) []BudgetChange {
+	var out []BudgetChange
+	if bd.Runs != hd.Runs {
+		out = append(out, BudgetChange{Key: key + ".runs", Old: bd.Runs, New: hd.Runs, Loosened: hd.Runs == RunsOneAtATime})
+	}
+	if bd.SharedWeights != hd.SharedWeights {
+		out = append(out, BudgetChange{Key: key + ".shared_weights", Old: strconv.FormatBool(bd.SharedWeights),
+			New: strconv.FormatBool(hd.SharedWeights), Loosened: hd.SharedWeights})
+	}
+	entry := func(m DeviceModel) string {
+		if m.Every > 0 {
+			return m.Path + " every " + m.Every.String()
+		}
+		return m.Path
+	}
+	byPath := func(ms []DeviceModel) map[string]DeviceModel {
+		out := map[string]DeviceModel{}
+		for _, m := range ms {
+			out[m.Path] = m
+		}
+		return out
+	}
+	bm, hm := byPath(bd.Models), byPath(hd.Models)
+	for _, m := range bd.Models {
+		h, ok := hm[m.Path]
+		switch {
+		case !ok:
+			out = append(out, BudgetChange{Key: key + ".models", Path: m.Path, Old: entry(m), Loosened: true})
+		case h.Every != m.Every:
+			// A longer period (or none) lowers the load.
+			out = append(out, BudgetChange{Key: key + ".models", Path: m.Path, Old: entry(m), New: entry(h),
+				Loosened: h.Every == 0 || h.Every > m.Every})
+		}
+	}
+	for _, m := range hd.Models {
+		if _, ok := bm[m.Path]; !ok {
+			out = append(out, BudgetChange{Key: key + ".models", Path: m.Path, New: entry(m)})
+		}
+	}
+	for _, metric := range deviceTotalMetrics {
+		b, bok := bd.Limits[metric]
+		h, hok := hd.Limits[metric]
+		if bok == hok && b.Quantity == h.Quantity {
+			continue
+		}
+		c := BudgetChange{Key: key + ".limits." + metric, Loosened: bok && !hok}
+		if bok {
+			c.Old = b.Quantity.Text
+		}
+		if hok {
+			c.New = h.Quantity.Text
+		}
+		if bok && hok {
+			// A share and an absolute cannot be compared without the
+			// capacity; a reviewer looks.
+			c.Loosened = b.Quantity.Kind != h.Quantity.Kind || h.Quantity.Value > b.Quantity.Value
+		}
+		out = append(out, c)
+	}
+	return out
+}

@@ -58,6 +58,9 @@ func Diff(base, head *File) []BudgetChange {
 				// reviewer looks.
 				add(BudgetChange{Key: key + ".target", Old: bt, New: ht, Loosened: true})
 			}
+			for _, c := range diffDeviceSet(key, bd, hd) {
+				add(c)
+			}
 		}
 	}
 

@@ -182,7 +182,11 @@ func (dev *Device) Totals(models []DeviceInput) (DeviceTotals, []DeviceShare, []
 				load += sh.LoadPart
 				loadKnown = true
 			} else {
-				unknown(MetricLoad, in.Path+": no latency estimate (the device names no target)")
+				why := fig.Unknown[MetricLatency]
+				if why == "" {
+					why = "no latency estimate"
+				}
+				unknown(MetricLoad, in.Path+": "+why)
 			}
 		}
 		shares = append(shares, sh)

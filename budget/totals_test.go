@@ -1,6 +1,7 @@
 package budget
 
 import (
+	"fmt"
 	"strings"
 	"testing"
 	"time"
@@ -156,5 +157,55 @@ devices:
 		if err == nil || !strings.Contains(err.Error(), c.want) {
 			t.Errorf("%s:\n got %v\nwant %s", c.yaml, err, c.want)
 		}
+	}
+}
+
+// TestDiffDeviceSet: what a device runs together is part of the budget
+// diff, loosened where the head lets the totals take more.
+func TestDiffDeviceSet(t *testing.T) {
+	base := `version: 1
+devices:
+  d:
+    ram: 512KiB
+    runs: concurrent
+    limits: {ram: 90%, load: 60%}
+    models:
+      - {path: a.onnx, every: 20ms}
+      - b.onnx
+`
+	head := `version: 1
+devices:
+  d:
+    ram: 512KiB
+    runs: one-at-a-time
+    shared_weights: true
+    limits: {ram: 95%}
+    models:
+      - {path: a.onnx, every: 40ms}
+      - c.onnx
+`
+	bf, err := Parse("base.yaml", []byte(base))
+	if err != nil {
+		t.Fatal(err)
+	}
+	hf, err := Parse("head.yaml", []byte(head))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var got []string
+	for _, c := range Diff(bf, hf) {
+		got = append(got, fmt.Sprintf("%s %s→%s %v", c.Key, c.Old, c.New, c.Loosened))
+	}
+	want := []string{
+		"devices.d.runs concurrent→one-at-a-time true",
+		"devices.d.shared_weights false→true true",
+		"devices.d.models a.onnx every 20ms→a.onnx every 40ms true",
+		"devices.d.models b.onnx→ true",
+		"devices.d.models →c.onnx false",
+		"devices.d.limits.ram 90%→95% true",
+		"devices.d.limits.load 60%→ true",
+	}
+	if strings.Join(got, "\n") != strings.Join(want, "\n") {
+		t.Errorf("diff:\n%s\nwant:\n%s", strings.Join(got, "\n"), strings.Join(want, "\n"))
 	}
 }

@@ -56,8 +56,21 @@ func checkTargets(f *budget.File) error {
 // device names no target, or the estimate leaves nodes out, latency and
 // energy are unknown with the reason; so is unsupported without a target.
 func DeviceFigures(f *budget.File, p string, m *measure.Metrics) *budget.Figures {
+	if f == nil {
+		return Figures(m)
+	}
+	rules := f.Match(p)
+	if len(rules) == 0 {
+		return Figures(m)
+	}
+	return figuresOn(f.Devices[rules[0].Device], rules[0].Device, m)
+}
+
+// figuresOn is Figures(m) with the estimate on the target of the device
+// named name (nil when the budget file does not define it).
+func figuresOn(dev *budget.Device, name string, m *measure.Metrics) *budget.Figures {
 	fig := Figures(m)
-	if fig == nil || f == nil || m.Error != "" {
+	if fig == nil || m.Error != "" {
 		return fig
 	}
 	unknown := func(why string, metrics ...string) {
@@ -70,13 +83,8 @@ func DeviceFigures(f *budget.File, p string, m *measure.Metrics) *budget.Figures
 			}
 		}
 	}
-	rules := f.Match(p)
-	if len(rules) == 0 {
-		return fig
-	}
-	dev := f.Devices[rules[0].Device]
 	if dev == nil || dev.Target == nil {
-		unknown(fmt.Sprintf("device %q names no target", rules[0].Device), budget.MetricLatency, budget.MetricEnergy, budget.MetricUnsupported)
+		unknown(fmt.Sprintf("device %q names no target", name), budget.MetricLatency, budget.MetricEnergy, budget.MetricUnsupported)
 		return fig
 	}
 	t, err := target.FromYAML(dev.Target)

@@ -84,12 +84,12 @@ func (j *deviceJudge) judge(res *budget.Result, base, head *Snapshot, touched ma
 				res.Problems = append(res.Problems, res.Findings[len(res.Findings)-1].Message)
 			}
 		}
-		if err := j.measure(head, hm); err != nil {
+		if err := j.measure(dev, head, hm); err != nil {
 			return err
 		}
 		var baseIn []budget.DeviceInput
 		if base != nil {
-			if err := j.measure(base, bm); err != nil {
+			if err := j.measure(dev, base, bm); err != nil {
 				return err
 			}
 			baseIn = bm
@@ -126,7 +126,7 @@ func touches(touched map[string]bool, in []budget.DeviceInput) bool {
 // dims their rules give and constant digests for shared weights; the
 // options match those of the change check, so the models it measured come
 // from the cache.
-func (j *deviceJudge) measure(s *Snapshot, in []budget.DeviceInput) error {
+func (j *deviceJudge) measure(dev *budget.Device, s *Snapshot, in []budget.DeviceInput) error {
 	jobs := make([]blobJob, len(in))
 	dims := make([]*boundSet, len(in))
 	for i := range in {
@@ -137,7 +137,9 @@ func (j *deviceJudge) measure(s *Snapshot, in []budget.DeviceInput) error {
 		return err
 	}
 	for i, m := range metrics {
-		in[i].Figures = Figures(m)
+		// Latency on this device's own target: a model shipped on two
+		// devices takes each one's time.
+		in[i].Figures = figuresOn(dev, dev.Name, m)
 		if m != nil && m.Error != "" {
 			in[i].Error = m.Error
 		}

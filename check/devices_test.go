@@ -1,10 +1,13 @@
 package check
 
 import (
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 
 	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/internal/corpus"
 	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/model/build"
 	"github.com/loadline/loadline/model/onnx"
@@ -143,5 +146,90 @@ func TestDeviceSharedBackbone(t *testing.T) {
 	}
 	if d.FlashBytes != sum-1984 || len(d.Shared) != 2 {
 		t.Errorf("flash %d, models' sum %d, shared %+v; want the sum less 1,984 B", d.FlashBytes, sum, d.Shared)
+	}
+}
+
+// TestDeviceLoadOnTarget: a device whose target is the M4 reference kernels
+// at 120 MHz runs the MLPerf Tiny keyword spotter once a second and the
+// anomaly detector every 50 ms. The load is Σ latency ÷ period over the
+// estimates (asserted exactly from the shares), and within 15 % of the
+// same sum over the published latencies, 181.9/1000 + 10.05/50 = 0.383
+// (MLPerf Tiny v0.5, closed/reference, Nucleo-L4R5ZI; the shipped target
+// estimates each within 15 %). With the spotter every 150 ms it cannot
+// finish before its next run (published 181.9 ms; the estimate is at least
+// 0.85 × 181.9 = 154.6 ms), and the device fails on that period.
+func TestDeviceLoadOnTarget(t *testing.T) {
+	shared := corpus.TFLiteDir(t)
+	read := func(name string) []byte {
+		data, err := os.ReadFile(filepath.Join(shared, name))
+		if err != nil {
+			t.Fatal(err)
+		}
+		return data
+	}
+	budgetText := `version: 1
+devices:
+  sensor-board:
+    ram: 640KiB
+    flash: 2MiB
+    target: m4-reference@120MHz
+    models:
+      - {path: models/kws.tflite, every: KWS}
+      - {path: models/ad.tflite, rate: 20Hz}
+models:
+  - path: "models/*.tflite"
+    device: sensor-board
+`
+	g := newGitRepo(t)
+	g.write("loadline.yaml", []byte(strings.Replace(budgetText, "KWS", "1s", 1)))
+	g.write("models/kws.tflite", read("kws_ref_model.tflite"))
+	g.write("models/ad.tflite", read("ad01_int8.tflite"))
+	g.commit("two models on one board")
+	r, err := OpenRepo(g.dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	res, _, err := Audit(r, "HEAD", Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Devices) != 1 || res.Devices[0].Load == nil {
+		t.Fatalf("devices %+v", res.Devices)
+	}
+	d := res.Devices[0]
+	var sum float64
+	for _, s := range d.Models {
+		if s.Latency <= 0 {
+			t.Fatalf("%s has no latency estimate: %+v", s.Path, s)
+		}
+		sum += s.Latency / s.EveryMS
+	}
+	if diff := *d.Load - sum; diff > 1e-9 || diff < -1e-9 {
+		t.Errorf("load %v, Σ latency ÷ period over the shares %v", *d.Load, sum)
+	}
+	if published := 181.9/1000 + 10.05/50; *d.Load < 0.85*published || *d.Load > 1.15*published {
+		t.Errorf("load %.3f, want within 15 %% of the published %.3f", *d.Load, published)
+	}
+	if d.Status != budget.Pass {
+		t.Errorf("device %s: %+v", d.Status, d.Checks)
+	}
+
+	g.write("loadline.yaml", []byte(strings.Replace(budgetText, "KWS", "150ms", 1)))
+	g.commit("spotter every 150 ms")
+	res, _, err = Run(Options{Dir: g.dir, Base: "HEAD~1", Head: "HEAD", TrustHeadBudget: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Devices) != 1 || res.Devices[0].Status != budget.Fail || res.Verdict != budget.Fail {
+		t.Fatalf("devices %+v, verdict %s", res.Devices, res.Verdict)
+	}
+	found := false
+	for _, c := range res.Devices[0].Checks {
+		if c.Kind == "period" && c.Status == budget.Fail && strings.Contains(c.Reason, "models/kws.tflite takes") && strings.Contains(c.Reason, "longer than its period of 150.0 ms") {
+			found = true
+		}
+	}
+	if !found {
+		t.Errorf("no failing period check for the spotter: %+v", res.Devices[0].Checks)
 	}
 }
