@@ -6,7 +6,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"regexp"
 	"sort"
 	"strconv"
@@ -15,6 +14,7 @@ import (
 	"unicode/utf8"
 
 	"github.com/bmatcuk/doublestar/v4"
+	"github.com/loadline/loadline/internal/regular"
 	"go.yaml.in/yaml/v3"
 )
 
@@ -151,7 +151,7 @@ var (
 // Load reads and parses a budget file. Files larger than MaxFileSize are
 // refused without being read whole.
 func Load(path string) (*File, error) {
-	f, err := os.Open(path)
+	f, _, err := regular.Open(path) // a FIFO or device would block or never end
 	if err != nil {
 		return nil, err
 	}

@@ -4,11 +4,11 @@ import (
 	"encoding/binary"
 	"fmt"
 	"math"
-	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
 
+	"github.com/loadline/loadline/internal/regular"
 	"github.com/loadline/loadline/model"
 	"google.golang.org/protobuf/encoding/protowire"
 )
@@ -51,7 +51,8 @@ func Decode(data []byte, opts Options) (*model.Model, error) {
 func DecodeFile(path string, opts Options) (*model.Model, error) {
 	read := opts.ReadFile
 	if read == nil {
-		read = os.ReadFile
+		// Only a regular file: a FIFO or a device would block or never end.
+		read = func(name string) ([]byte, error) { return regular.ReadFile(name, math.MaxInt64) }
 	}
 	data, err := read(path)
 	if err != nil {

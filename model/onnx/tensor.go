@@ -1,15 +1,17 @@
 package onnx
 
 import (
+	"errors"
 	"fmt"
 	"io"
+	"io/fs"
 	"math"
-	"os"
 	"path"
 	"path/filepath"
 	"strconv"
 	"strings"
 
+	"github.com/loadline/loadline/internal/regular"
 	"github.com/loadline/loadline/model"
 	"google.golang.org/protobuf/encoding/protowire"
 )
@@ -446,11 +448,33 @@ func cleanLocation(loc string) (string, error) {
 	return filepath.FromSlash(c), nil
 }
 
+// insideFolder checks that file, with every symbolic link on its path resolved,
+// is in dir (resolved too). The error names neither the link's target nor
+// anything about it.
+func insideFolder(dir, file string) error {
+	realDir, err := filepath.EvalSymlinks(dir)
+	if err != nil {
+		return err
+	}
+	realFile, err := filepath.EvalSymlinks(file)
+	if err != nil {
+		if errors.Is(err, fs.ErrNotExist) {
+			return fmt.Errorf("%s does not exist (or is a broken link)", file)
+		}
+		return err
+	}
+	rel, err := filepath.Rel(realDir, realFile)
+	if err != nil || rel == ".." || strings.HasPrefix(rel, ".."+string(filepath.Separator)) || filepath.IsAbs(rel) {
+		return fmt.Errorf("%s is a symbolic link (or lies under one) that leads out of the model's folder; external data must stay inside it", file)
+	}
+	return nil
+}
+
 // loader returns an ExternalData.Load for one tensor. With the default file
 // system it reads only the tensor's range; with Options.ReadFile it reads
 // the file and slices it. Either way the range is checked against the file.
 func (d *decoder) loader(name, loc, file string, offset, length, size int64) func() ([]byte, error) {
-	modelPath, readFile := d.path, d.readFile
+	modelPath, readFile, dir := d.path, d.readFile, d.dir
 	prefix := func() string {
 		if modelPath == "" {
 			return fmt.Sprintf("tensor %q: external data %q", name, loc)
@@ -485,19 +509,19 @@ func (d *decoder) loader(name, loc, file string, offset, length, size int64) fun
 			}
 			return b[offset : offset+n : offset+n], nil
 		}
-		fh, err := os.Open(file)
+		// The location stays inside the model's folder as written
+		// (cleanLocation); a symbolic link on the way may still lead out
+		// of it, so the resolved path is checked too, before anything
+		// about the file (its size, its kind) is read or said.
+		if err := insideFolder(dir, file); err != nil {
+			return nil, fmt.Errorf("%s: %w", prefix(), err)
+		}
+		fh, fileSize, err := regular.Open(file)
 		if err != nil {
 			return nil, fmt.Errorf("%s: %w", prefix(), err)
 		}
 		defer fh.Close()
-		st, err := fh.Stat()
-		if err != nil {
-			return nil, fmt.Errorf("%s: %w", prefix(), err)
-		}
-		if !st.Mode().IsRegular() {
-			return nil, fmt.Errorf("%s: %s is not a regular file", prefix(), file)
-		}
-		n, err := span(st.Size())
+		n, err := span(fileSize)
 		if err != nil {
 			return nil, err
 		}
