@@ -59,13 +59,6 @@ func nnInts(name string, dt model.DType, v []int64, dims ...int64) nnIn {
 	return x
 }
 
-// nnF64 is a float64 initializer with the given dims (1-D when none).
-func nnF64(name string, v []float64, dims ...int64) nnIn {
-	x := nnF32(name, v, dims...)
-	x.dt = model.Float64
-	return x
-}
-
 // nnF32 is a float32 initializer with the given dims (1-D when none).
 func nnF32(name string, v []float64, dims ...int64) nnIn {
 	if dims == nil {
