@@ -19,7 +19,19 @@ import (
 // removed rule, limit or capacity; a change that cannot be compared (a
 // growth allowance turned from a percent into an absolute) counts as
 // loosened, so that a reviewer looks. A nil file is an empty one.
-func Diff(base, head *File) []BudgetChange {
+func Diff(base, head *File) []BudgetChange { return DiffOn(base, head, time.Time{}) }
+
+// DiffOn is Diff on a given day: a waiver the head adds, or whose date it
+// moves, that has expired by then excuses nothing, so it is listed as
+// expired and not as loosening the gate. The zero day leaves dates out.
+func DiffOn(base, head *File, today time.Time) []BudgetChange {
+	expired := func(w Waiver) bool {
+		if today.IsZero() {
+			return false
+		}
+		y, m, d := today.Date()
+		return w.Until.Before(time.Date(y, m, d, 0, 0, 0, 0, time.UTC))
+	}
 	if base == nil {
 		base = &File{}
 	}
@@ -151,14 +163,30 @@ func Diff(base, head *File) []BudgetChange {
 		key := fmt.Sprintf("waivers[%d]", i)
 		j, ok := bw[k]
 		if !ok || seen[k] {
-			add(BudgetChange{Key: key, Path: w.Path, New: describeWaiver(w), Loosened: true})
+			if expired(w) {
+				add(BudgetChange{Key: key, Path: w.Path, New: describeWaiver(w) + " (expired already: it excuses nothing)"})
+			} else {
+				add(BudgetChange{Key: key, Path: w.Path, New: describeWaiver(w), Loosened: true})
+			}
 			continue
 		}
 		seen[k] = true
 		old := base.Waivers[j]
 		if !old.Until.Equal(w.Until) {
-			add(BudgetChange{Key: key + ".until", Path: w.Path, Old: old.Until.Format(time.DateOnly), New: w.Until.Format(time.DateOnly),
-				Loosened: w.Until.After(old.Until)})
+			c := BudgetChange{Key: key + ".until", Path: w.Path, Old: old.Until.Format(time.DateOnly), New: w.Until.Format(time.DateOnly),
+				Loosened: w.Until.After(old.Until) && !expired(w)}
+			if expired(w) {
+				c.New += " (expired already)"
+			}
+			add(c)
+		}
+		if strings.Join(old.Excuses, ",") != strings.Join(w.Excuses, ",") {
+			add(BudgetChange{Key: key + ".excuses", Path: w.Path, Old: strings.Join(old.Excuses, ", "), New: strings.Join(w.Excuses, ", "),
+				Loosened: !expired(w) && len(w.Excuses) > len(old.Excuses)})
+		}
+		if (old.UpTo == nil) != (w.UpTo == nil) || old.UpTo != nil && *old.UpTo != *w.UpTo {
+			add(BudgetChange{Key: key + ".up_to", Path: w.Path, Old: old.UpToText, New: w.UpToText,
+				Loosened: !expired(w) && (w.UpTo == nil || old.UpTo != nil && *w.UpTo > *old.UpTo)})
 		}
 		if old.Reason != w.Reason {
 			add(BudgetChange{Key: key + ".reason", Path: w.Path, Old: old.Reason, New: w.Reason})
@@ -250,7 +278,7 @@ func describeRule(r *Rule) string {
 }
 
 func describeWaiver(w Waiver) string {
-	return fmt.Sprintf("%s %s until %s: %s", w.Path, w.Metric, w.Until.Format(time.DateOnly), w.Reason)
+	return fmt.Sprintf("%s %s until %s: %s", w.Path, w.Scope(), w.Until.Format(time.DateOnly), w.Reason)
 }
 
 func dimText(v int64, ok bool) string {

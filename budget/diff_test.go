@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"strings"
 	"testing"
+	"time"
 )
 
 // Hand-written fixtures: a base budget and a head that changes each kind
@@ -72,8 +73,8 @@ func TestDiff(t *testing.T) {
 		"models[2]: (none) → path models/hub/*.onnx, device hub",
 		"waivers[0].until: 2027-01-31 → 2027-06-30 loosened",
 		"waivers[0].reason: ring buffer → ring buffer again",
-		"waivers[1]: (none) → models/porch/c.onnx flash until 2027-01-31: fonts loosened",
-		"waivers[1]: models/porch/b.onnx macs until 2027-01-31: new head → (none)",
+		"waivers[1]: (none) → models/porch/c.onnx flash limit and growth until 2027-01-31: fonts loosened",
+		"waivers[1]: models/porch/b.onnx macs limit and growth until 2027-01-31: new head → (none)",
 	}
 	var got []string
 	for _, c := range Diff(base, head) {
@@ -153,5 +154,35 @@ func TestDiffDeviceMove(t *testing.T) {
 	// A device the file does not define cannot be compared: a reviewer looks.
 	if !deviceLooser(nil, &Device{}) || !deviceLooser(&Device{}, nil) {
 		t.Error("a missing device must count as loosening")
+	}
+}
+
+// TestDiffWaivers: a waiver added with a date already past excuses nothing
+// and is listed as expired, not as loosening; a waiver that excuses more,
+// or has its ceiling raised, loosens.
+func TestDiffWaivers(t *testing.T) {
+	const head = `version: 1
+devices: {cam: {ram: 256KiB}}
+models:
+  - {path: "m/*.onnx", device: cam}
+waivers:
+`
+	base := mustParse(t, head+`  - {path: m/a.onnx, metric: macs, excuses: limit, up_to: 300M, until: 2027-01-31, reason: r}
+`)
+	next := mustParse(t, head+`  - {path: m/a.onnx, metric: macs, excuses: [limit, growth], up_to: 320M, until: 2027-01-31, reason: r}
+  - {path: m/b.onnx, metric: ram, until: 2026-01-01, reason: late}
+`)
+	today := time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC)
+	var got []string
+	for _, c := range DiffOn(base, next, today) {
+		got = append(got, fmt.Sprintf("%s: %s → %s loosened=%v", c.Key, c.Old, c.New, c.Loosened))
+	}
+	want := []string{
+		"waivers[0].excuses: limit → limit, growth loosened=true",
+		"waivers[0].up_to: 300M → 320M loosened=true",
+		"waivers[1]:  → m/b.onnx ram limit and growth until 2026-01-01: late (expired already: it excuses nothing) loosened=false",
+	}
+	if strings.Join(got, "\n") != strings.Join(want, "\n") {
+		t.Errorf("DiffOn:\n%s\nwant\n%s", strings.Join(got, "\n"), strings.Join(want, "\n"))
 	}
 }

@@ -170,9 +170,14 @@ func (f *File) Evaluate(models []Input, opts EvalOptions) *Result {
 	e := &evaluation{file: f, strict: opts.Strict, res: res}
 	for _, w := range f.Waivers {
 		if w.Until.Before(day) {
+			// A warning: it fails the checks it excused, of the models it
+			// covers, when they are judged (a change to one of them, an
+			// audit of all); a change elsewhere goes through with this
+			// reminder.
 			e.expired = append(e.expired, w)
-			res.addFinding(Finding{Level: Fail, Line: w.Line, Column: w.Column,
-				Message: fmt.Sprintf("waiver for %s %s expired on %s (%s)", w.Path, w.Metric, w.Until.Format(time.DateOnly), f.place(w.Line, w.Column))})
+			res.addFinding(Finding{Level: Warn, Line: w.Line, Column: w.Column,
+				Message: fmt.Sprintf("waiver for %s %s expired on %s (%s): it no longer excuses anything; renew it with a later date or remove it",
+					w.Path, w.Scope(), w.Until.Format(time.DateOnly), f.place(w.Line, w.Column))})
 			continue
 		}
 		res.Waivers = append(res.Waivers, w)
@@ -586,18 +591,33 @@ func (e *evaluation) waive(p string, c Check) Check {
 	if c.Status != Fail {
 		return c
 	}
+	var above *Waiver
 	for i := range e.live {
 		w := &e.live[i]
-		if w.Metric == c.Metric && matchPath(w.Path, p) {
+		if w.Metric != c.Metric || !matchPath(w.Path, p) {
+			continue
+		}
+		if w.Covers(c.Kind, c.Value) {
 			c.Status = Waived
 			c.Waiver = w
-			c.Reason += fmt.Sprintf("; waived until %s: %s", w.Until.Format(time.DateOnly), w.Reason)
+			c.Reason += "; waived"
+			if w.UpTo != nil {
+				c.Reason += " up to " + FormatValue(w.Metric, *w.UpTo)
+			}
+			c.Reason += fmt.Sprintf(" until %s: %s", w.Until.Format(time.DateOnly), w.Reason)
 			return c
 		}
+		if w.UpTo != nil && c.Value > *w.UpTo && contains(w.Excuses, c.Kind) {
+			above = w
+		}
+	}
+	if above != nil {
+		c.Reason += fmt.Sprintf("; above its waiver's ceiling of %s (%s)", FormatValue(above.Metric, *above.UpTo), e.file.place(above.Line, above.Column))
+		return c
 	}
 	for _, w := range e.expired {
-		if w.Metric == c.Metric && matchPath(w.Path, p) {
-			c.Reason += fmt.Sprintf("; its waiver expired on %s", w.Until.Format(time.DateOnly))
+		if w.Metric == c.Metric && matchPath(w.Path, p) && contains(w.Excuses, c.Kind) {
+			c.Reason += fmt.Sprintf("; its waiver expired on %s (%s)", w.Until.Format(time.DateOnly), e.file.place(w.Line, w.Column))
 			break
 		}
 	}

@@ -144,7 +144,10 @@ var (
 	topKeys    = []string{"version", "devices", "models", "waivers"}
 	deviceKeys = []string{"ram", "flash", "weights", "target", "runs", "models", "shared_weights", "limits"}
 	ruleKeys   = []string{"path", "device", "dims", "inputs", "limits", "growth", "warn_at"}
-	waiverKeys = []string{"path", "metric", "until", "reason"}
+	waiverKeys = []string{"path", "metric", "excuses", "up_to", "until", "reason"}
+	// waiverNeeds are the keys every waiver must have.
+	waiverNeeds = []string{"path", "metric", "until", "reason"}
+	checkKinds  = []string{"limit", "growth"}
 	placements = []string{WeightsFlash, WeightsRAM}
 )
 
@@ -1050,6 +1053,7 @@ func (d *decoder) waiver(i int, n *yaml.Node) (Waiver, bool) {
 	}
 	good := true
 	seen := map[string]bool{}
+	var upToNode *yaml.Node
 	for _, e := range entries {
 		ekey := sub(key, e.name)
 		if !contains(waiverKeys, e.name) {
@@ -1058,6 +1062,54 @@ func (d *decoder) waiver(i int, n *yaml.Node) (Waiver, bool) {
 			continue
 		}
 		seen[e.name] = true
+		if e.name == "excuses" {
+			// One kind, or a list of them.
+			var items []*yaml.Node
+			if e.v.Kind == yaml.SequenceNode {
+				items, _ = d.sequence(e.v, ekey)
+			} else {
+				items = []*yaml.Node{e.v}
+			}
+			for _, it := range items {
+				v, ok := d.scalar(it, ekey)
+				if !ok {
+					good = false
+					continue
+				}
+				if !contains(checkKinds, v) {
+					hint := didYouMean(v, checkKinds)
+					if hint == "" {
+						hint = "write limit, growth, or [limit, growth]"
+					}
+					d.add(it, ekey, fmt.Sprintf("%q: a waiver excuses a limit or a growth", v), hint)
+					good = false
+					continue
+				}
+				if !contains(w.Excuses, v) {
+					w.Excuses = append(w.Excuses, v)
+				}
+			}
+			if len(items) == 0 {
+				d.add(e.v, ekey, "excuses nothing", "write limit, growth, or [limit, growth]")
+				good = false
+			}
+			continue
+		}
+		if e.name == "up_to" {
+			q, ok := d.quantity(e.v, ekey)
+			if ok && q.Kind == Percent {
+				d.add(e.v, ekey, fmt.Sprintf("%q: a ceiling is a figure, not a share", q.Text), "write e.g. 320M or 600KiB")
+				ok = false
+			}
+			if !ok {
+				good = false
+				continue
+			}
+			v := q.Value
+			w.UpTo, w.UpToText = &v, q.Text
+			upToNode = e.v
+			continue
+		}
 		v, ok := d.scalar(e.v, ekey)
 		if !ok {
 			good = false
@@ -1092,7 +1144,21 @@ func (d *decoder) waiver(i int, n *yaml.Node) (Waiver, bool) {
 			w.Reason = strings.TrimSpace(v)
 		}
 	}
-	for _, k := range waiverKeys {
+	if len(w.Excuses) == 0 {
+		w.Excuses = []string{"limit", "growth"}
+	}
+	if w.UpTo != nil && contains(Metrics, w.Metric) {
+		q, _ := ParseQuantity(w.UpToText)
+		switch {
+		case IsBytes(w.Metric) && q.Kind == Count:
+			d.add(upToNode, sub(key, "up_to"), fmt.Sprintf("%q is a count; %s is in bytes", q.Text, w.Metric), countAsBytesHint(q.Text))
+			good = false
+		case !IsBytes(w.Metric) && q.Kind == Bytes:
+			d.add(upToNode, sub(key, "up_to"), fmt.Sprintf("%q is in bytes; %s is a count", q.Text, w.Metric), bytesAsCountHint(q.Text))
+			good = false
+		}
+	}
+	for _, k := range waiverNeeds {
 		if !seen[k] {
 			hint := map[string]string{
 				"path":   "name the model, e.g. path: models/birdcam/v4.onnx",

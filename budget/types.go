@@ -5,6 +5,7 @@ package budget
 
 import (
 	"math"
+	"strings"
 	"time"
 )
 
@@ -256,14 +257,47 @@ type Layer struct {
 	Value int64  `json:"value"`
 }
 
-// Waiver excuses one metric of one model until a date.
+// Waiver excuses one metric of the models its path matches until a date:
+// the checks it names (Excuses: the limit, the growth, or both), and only
+// while the figure is at most its ceiling (UpTo), when it has one.
 type Waiver struct {
-	Path   string    `json:"path"`
-	Metric string    `json:"metric"`
-	Until  time.Time `json:"until"`
-	Reason string    `json:"reason"`
-	Line   int       `json:"line"`
-	Column int       `json:"column"`
+	Path   string `json:"path"`
+	Metric string `json:"metric"`
+	// Excuses lists the kinds of check the waiver excuses, "limit" and/or
+	// "growth"; both when the file does not say.
+	Excuses []string `json:"excuses,omitempty"`
+	// UpTo is the ceiling above which the waiver no longer applies; nil
+	// when it has none. UpToText is it as the file writes it.
+	UpTo     *int64    `json:"up_to,omitempty"`
+	UpToText string    `json:"up_to_text,omitempty"`
+	Until    time.Time `json:"until"`
+	Reason   string    `json:"reason"`
+	Line     int       `json:"line"`
+	Column   int       `json:"column"`
+}
+
+// Covers reports whether the waiver excuses a check of kind ("limit" or
+// "growth") with the figure v: the kind is one it names and v is within
+// its ceiling.
+func (w *Waiver) Covers(kind string, v int64) bool {
+	named := false
+	for _, k := range w.Excuses {
+		named = named || k == kind
+	}
+	return named && (w.UpTo == nil || v <= *w.UpTo)
+}
+
+// Scope says what a waiver excuses in words: "ram limit and growth, up to
+// 320.0 M".
+func (w *Waiver) Scope() string {
+	s := w.Metric
+	if len(w.Excuses) > 0 {
+		s += " " + strings.Join(w.Excuses, " and ")
+	}
+	if w.UpTo != nil {
+		s += ", up to " + FormatValue(w.Metric, *w.UpTo)
+	}
+	return s
 }
 
 // BudgetChange is one difference between the base's and the head's budget

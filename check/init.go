@@ -156,8 +156,11 @@ models:
 		}
 	}
 	b.WriteString(`
-# waivers: a temporary exception for one model and metric, with a reason
-# and an expiry date; an expired waiver is reported.
+# waivers: a bounded exception for one metric of the models a path matches:
+# what it excuses (excuses: limit, growth, or both), an optional ceiling
+# (up_to: 320M) above which it does not apply, an expiry date and a reason.
+#   - {path: models/cam/detect.onnx, metric: macs, excuses: limit, up_to: 320M,
+#      until: 2027-01-31, reason: pruned in the next release}
 waivers: []
 `)
 	return b.String(), ms, nil

@@ -379,7 +379,11 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	}
 	var budgetChanges []budget.BudgetChange
 	if baseBudget != nil && headBudget != nil {
-		budgetChanges = budget.Diff(baseBudget, headBudget)
+		day := o.Today
+		if day.IsZero() {
+			day = time.Now()
+		}
+		budgetChanges = budget.DiffOn(baseBudget, headBudget, day)
 	}
 	// A change to the budget file judges again every model its changed
 	// rules, devices or waivers concern, changed by this change or not: a

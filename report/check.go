@@ -297,7 +297,7 @@ func waivedText(w *budget.Waiver) string {
 
 // waiverText is one waiver in words: "ram until 2027-01-31: reason".
 func waiverText(w *budget.Waiver) string {
-	s := w.Metric + " until " + w.Until.Format("2006-01-02")
+	s := w.Scope() + " until " + w.Until.Format("2006-01-02")
 	if w.Reason != "" {
 		s += ": " + w.Reason
 	}
@@ -326,7 +326,7 @@ func modelNote(m *budget.ModelResult) string {
 // already written it in.
 func withWaiver(c *budget.Check) string {
 	r := oneLine(c.Reason)
-	if c.Waiver != nil && !strings.Contains(r, "waived until") {
+	if c.Waiver != nil && !strings.Contains(r, "; waived") {
 		r += waivedText(c.Waiver)
 	}
 	return r

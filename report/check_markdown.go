@@ -304,7 +304,7 @@ func renderMarkdown(r *budget.Result, opt MarkdownOptions, lim mdLimits) []byte 
 			if !opt.Now.IsZero() {
 				until += " (" + daysLeft(opt.Now, wv.Until) + ")"
 			}
-			rows = append(rows, fmt.Sprintf("| %s | %s | %s | %s |", mdCode(wv.Path), mdText(wv.Metric), until, mdText(oneLine(wv.Reason))))
+			rows = append(rows, fmt.Sprintf("| %s | %s | %s | %s |", mdCode(wv.Path), mdText(wv.Scope()), until, mdText(oneLine(wv.Reason))))
 		}
 		writeCapped(&b, rows, lim.items)
 	}

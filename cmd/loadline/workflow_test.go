@@ -407,3 +407,99 @@ func TestRequiredShrink(t *testing.T) {
 		t.Errorf("a rise against a required fall: exit %d\n%s%s", code, out, errs)
 	}
 }
+
+// waiverBudget is teamBudget with a params limit of 400 and one waiver for
+// the classifier (516 params, see teamBudget).
+const waiverBudget = `version: 1
+devices:
+  doorbell:
+    ram: 256KiB
+models:
+  - path: "models/cam/*.onnx"
+    device: doorbell
+    limits: {params: 400}
+waivers:
+  - path: models/cam/classify.onnx
+    metric: params
+    excuses: limit
+    up_to: 600
+    until: UNTIL
+    reason: pruned in the next release
+`
+
+// TestWaiverCeiling: a waiver excuses a figure up to its ceiling, which
+// the report shows; above it the check fails and says so.
+func TestWaiverCeiling(t *testing.T) {
+	dir := newRepo(t)
+	for p, data := range gittest.TeamModels(t) {
+		if strings.HasPrefix(p, "models/cam/") {
+			writeFile(t, dir, p, data)
+		}
+	}
+	writeFile(t, dir, "loadline.yaml", []byte(strings.Replace(waiverBudget, "UNTIL", "2099-01-31", 1)))
+	git(t, dir, "add", "-A")
+	git(t, dir, "commit", "-q", "-m", "models, budget and waiver")
+	code, out, errs := inDir(t, dir, "check", "--all")
+	if code != exitOK {
+		t.Fatalf("--all: exit %d, want 0 (516 params waived up to 600)\n%s%s", code, out, errs)
+	}
+	for _, want := range []string{"params 516 > limit 400 by 116; waived up to 600 until 2099-01-31: pruned in the next release", "params limit, up to 600 until 2099-01-31"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("output lacks %q:\n%s", want, out)
+		}
+	}
+	// Width 32: 28·32 + 4·32 + 4 = 1,028 params, above the ceiling.
+	writeFile(t, dir, "models/cam/classify.onnx", convModel(t, 32))
+	git(t, dir, "commit", "-q", "-am", "wider classifier")
+	code, out, errs = inDir(t, dir, "check", "--base", "HEAD~1")
+	if code != exitBudget || !strings.Contains(out, "params 1.03 k > limit 400 by 628; above its waiver's ceiling of 600 (loadline.yaml (at HEAD):10:5)") {
+		t.Errorf("above the ceiling: exit %d, want 1\n%s%s", code, out, errs)
+	}
+}
+
+// TestExpiredWaiver: an expired waiver warns a change that touches none
+// of its models, naming it and its date; it fails a change to a model it
+// covers, and --all, where that model's check is no longer excused.
+func TestExpiredWaiver(t *testing.T) {
+	dir := newRepo(t)
+	for p, data := range gittest.TeamModels(t) {
+		if strings.HasPrefix(p, "models/cam/") {
+			writeFile(t, dir, p, data)
+		}
+	}
+	writeFile(t, dir, "loadline.yaml", []byte(strings.Replace(waiverBudget, "UNTIL", "2020-01-31", 1)))
+	git(t, dir, "add", "-A")
+	git(t, dir, "commit", "-q", "-m", "models, budget and waiver")
+	writeFile(t, dir, "models/cam/detect.onnx", convModel(t, 8)) // 260 params: within
+	git(t, dir, "commit", "-q", "-am", "retrain the detector")
+	code, out, errs := inDir(t, dir, "check", "--base", "HEAD~1")
+	if code != exitOK || !strings.Contains(out, "WARN  waiver for models/cam/classify.onnx params limit, up to 600 expired on 2020-01-31 (loadline.yaml (at HEAD):10:5)") {
+		t.Errorf("unrelated change: exit %d, want 0 with a warning naming the waiver\n%s%s", code, out, errs)
+	}
+	if code, out, _ := inDir(t, dir, "check", "--all"); code != exitBudget || !strings.Contains(out, "params 516 > limit 400 by 116; its waiver expired on 2020-01-31") {
+		t.Errorf("--all: exit %d, want 1\n%s", code, out)
+	}
+	writeFile(t, dir, "models/cam/classify.onnx", convModel(t, 20)) // 644 params
+	git(t, dir, "commit", "-q", "-am", "retrain the classifier")
+	if code, out, _ := inDir(t, dir, "check", "--base", "HEAD~1"); code != exitBudget || !strings.Contains(out, "its waiver expired on 2020-01-31") {
+		t.Errorf("a change to the waived model: exit %d, want 1\n%s", code, out)
+	}
+}
+
+// TestWaiverAddedExpired: a waiver added with a date already past is
+// listed as expired, not as loosening the gate.
+func TestWaiverAddedExpired(t *testing.T) {
+	dir := teamRepo(t, "600")
+	git(t, dir, "checkout", "-q", "-b", "late-waiver")
+	writeFile(t, dir, "loadline.yaml", []byte(strings.Replace(teamBudget, "PARAMS", "600", 1)+`waivers:
+  - {path: models/cam/classify.onnx, metric: params, until: 2020-01-31, reason: too late}
+`))
+	git(t, dir, "commit", "-q", "-am", "a waiver")
+	code, out, errs := inDir(t, dir, "check", "--base", "main")
+	if code != exitOK {
+		t.Fatalf("exit %d\n%s%s", code, out, errs)
+	}
+	if !strings.Contains(out, "(expired already: it excuses nothing)") || strings.Contains(out, "LOOSENED") {
+		t.Errorf("the late waiver is not listed as expired, or is called loosened:\n%s", out)
+	}
+}
