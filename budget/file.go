@@ -148,7 +148,7 @@ var (
 	// waiverNeeds are the keys every waiver must have.
 	waiverNeeds = []string{"path", "metric", "until", "reason"}
 	checkKinds  = []string{"limit", "growth"}
-	placements = []string{WeightsFlash, WeightsRAM}
+	placements  = []string{WeightsFlash, WeightsRAM}
 )
 
 // Load reads and parses a budget file. Files larger than MaxFileSize are
