@@ -35,10 +35,16 @@ devices:
     ram: 128KiB
     flash: 256KiB
     weights: flash
+    target: m4-optimized@120MHz   # latency, energy and operator support estimated on it
+    models:                       # what the firmware runs, judged together
+      - {path: models/kitchen-timer/wakeword.onnx, every: 250ms}
   doorbell:           # microcontroller in a doorbell, runs a TFLite model
     ram: 64KiB
     flash: 128KiB
     weights: flash
+    target: m4-reference@120MHz
+    models:
+      - {path: models/doorbell/chime.tflite, every: 50ms}
 models:
   - path: "models/porch-cam/**/*.onnx"
     device: porch-cam
