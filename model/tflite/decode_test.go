@@ -383,3 +383,34 @@ func TestSharedHostile(t *testing.T) {
 		}
 	}
 }
+
+// TestSparseTensor: a sparse constant keeps its dense dims and no values
+// (its buffer holds only the stored values), and its sparsity parameters
+// read back as written.
+func TestSparseTensor(t *testing.T) {
+	m := tiny()
+	sg := &m.Subgraphs[0]
+	m.Buffers = append(m.Buffers, Buffer{Data: make([]byte, 6*4)}) // 6 stored float32 values
+	sg.Tensors = append(sg.Tensors, Tensor{Shape: []int32{4, 4}, Type: 0, Buffer: uint32(len(m.Buffers) - 1), Name: "sparse_w",
+		Sparsity: &Sparsity{TraversalOrder: []int32{0, 1}, DimMetadata: []DimensionMetadata{
+			{Format: 0, DenseSize: 4},
+			{Format: 1, SegmentsType: 1, Segments: 5, IndicesType: 3, Indices: 6},
+		}}})
+	data := encodeT(t, m, EncodeOptions{})
+	p, err := Parse(data, "sparse.tflite")
+	if err != nil {
+		t.Fatal(err)
+	}
+	got := p.Subgraphs[0].Tensors[len(sg.Tensors)-1].Sparsity
+	if got == nil || len(got.DimMetadata) != 2 || got.DimMetadata[1].Segments != 5 || got.DimMetadata[1].Indices != 6 || got.DimMetadata[0].DenseSize != 4 {
+		t.Fatalf("sparsity %+v", got)
+	}
+	g, err := p.Convert("sparse.tflite")
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := g.Graph.Initializer("sparse_w")
+	if w == nil || w.Elements() != 16 || w.HasData() {
+		t.Errorf("sparse initializer %+v: want dense dims [4 4] and no values", w)
+	}
+}
