@@ -27,6 +27,7 @@ func FuzzParse(f *testing.F) {
 	f.Add([]byte(diffBase))
 	f.Add([]byte(diffHead))
 	f.Add([]byte("version: 1\nmodels: &a [*a]\n"))
+	f.Add([]byte("version: 1\ndevices: {d: {ram: 1KiB}}\nmodels:\n  - path: \"**\"\n    device: d\n    dims: {batch: 1}\n    inputs: {audio: [1, 512], rate: 16000, mode: {shape: [1], value: [2]}}\n"))
 	f.Add([]byte("a: &a {<<: [*a, *a]}\n"))
 	f.Add([]byte("version: 1\nmodels:\n  - path: \"a\x00b\"\n"))
 	f.Add([]byte("version: 1\nx: 'open\n"))
