@@ -401,16 +401,23 @@ func tensorBytes(v *Value) (int64, string) {
 // the highest placed byte. A negative Size counts as zero; a Lifetime whose
 // Last is before its First is live at First only.
 //
-// The overlapping tensors are found with a segment tree over the steps, so
-// planning n tensors costs O(n log n + Σ k log k), k the number of placed
-// tensors a tensor's lifetime overlaps, rather than O(n²).
+// The gaps a tensor may take are the holes in the union of the byte ranges
+// of the placed tensors that overlap it in time. A segment tree over the
+// steps keeps, at each of its nodes, that union for the tensors stored
+// there as a sorted list of disjoint byte runs; a tensor's query merges the
+// runs of O(log n) nodes. When tensors pack tightly (the usual case, even
+// with thousands live at once) each list is a few runs, and planning n
+// tensors costs O(n log² n) instead of one look at every overlapping tensor.
+// Zero-sized tensors come last; their place depends on where the others
+// merely touch, which the runs do not keep, so they are placed by looking
+// at each overlapping tensor as the method states it.
 func PlanArena(tensors []Lifetime) (placements []Placement, arena int64) {
 	n := len(tensors)
 	placements = make([]Placement, n)
 	if n == 0 {
 		return placements, 0
 	}
-	// The tree runs over the ranks of the distinct step values, so that
+	// The trees run over the ranks of the distinct step values, so that
 	// steps far apart cost nothing.
 	stepVals := make([]int, 0, 2*n)
 	for i, t := range tensors {
@@ -443,36 +450,149 @@ func PlanArena(tensors []Lifetime) (placements []Placement, arena int64) {
 		return cmp.Compare(a, b)
 	})
 
-	tree := newStepTree(len(stepVals), n)
-	stamp := make([]int32, n) // stamp[j] == q+1: tensor j already met in query q
+	runs := newRunTree(len(stepVals))
+	var tree *stepTree // built for the zero-sized tensors only
+	var stamp []int32
+	var buf []byteRun
 	var cand []int32
 	for q, i := range idx {
 		p := &placements[i]
 		a, b := rank(p.First), rank(p.Last)
-		cand = tree.query(a, b, int32(q+1), stamp, cand[:0])
-		slices.SortFunc(cand, func(x, y int32) int {
-			if c := cmp.Compare(placements[x].Offset, placements[y].Offset); c != 0 {
-				return c
+		if p.Size > 0 {
+			buf = runs.query(a, b, buf[:0])
+			p.Offset = smallestGap(buf, p.Size)
+			runs.insert(a, b, byteRun{p.Offset, p.Offset + p.Size})
+		} else {
+			if tree == nil {
+				tree = newStepTree(len(stepVals), n-q)
+				stamp = make([]int32, n)
+				for _, j := range idx[:q] {
+					pj := &placements[j]
+					tree.insert(rank(pj.First), rank(pj.Last), int32(j))
+				}
 			}
-			return cmp.Compare(x, y)
-		})
-		var prevEnd int64
-		best, bestGap := int64(-1), int64(-1)
-		for _, j := range cand {
-			o := &placements[j]
-			if gap := o.Offset - prevEnd; gap >= p.Size && (bestGap < 0 || gap < bestGap) {
-				best, bestGap = prevEnd, gap
-			}
-			prevEnd = max(prevEnd, o.Offset+o.Size)
+			cand = tree.query(a, b, int32(q+1), stamp, cand[:0])
+			p.Offset = smallestGapAmong(placements, cand, p.Size)
+			tree.insert(a, b, int32(i))
 		}
-		if best < 0 {
-			best = prevEnd
-		}
-		p.Offset = best
 		arena = max(arena, p.Offset+p.Size)
-		tree.insert(a, b, int32(i))
 	}
 	return placements, arena
+}
+
+// smallestGap is where greedy by size puts a tensor of size bytes (size >
+// 0) among placed byte ranges whose union is given as runs, in any order:
+// the start of the smallest hole of the union that fits it, the lowest on
+// a tie, else the union's end. The holes are those the method finds
+// between the overlapping tensors taken in offset order: a hole is a gap
+// between one tensor's offset and the highest end below it, and gaps of
+// zero or less never fit a tensor of size > 0.
+func smallestGap(runs []byteRun, size int64) int64 {
+	slices.SortFunc(runs, func(x, y byteRun) int { return cmp.Compare(x.lo, y.lo) })
+	var prevEnd int64
+	best, bestGap := int64(-1), int64(-1)
+	for _, r := range runs {
+		if gap := r.lo - prevEnd; gap >= size && (bestGap < 0 || gap < bestGap) {
+			best, bestGap = prevEnd, gap
+		}
+		prevEnd = max(prevEnd, r.hi)
+	}
+	if best < 0 {
+		return prevEnd
+	}
+	return best
+}
+
+// smallestGapAmong is the method as stated, over the placed tensors cand:
+// in offset order, each gap between a tensor's offset and the highest end
+// before it is a candidate.
+func smallestGapAmong(placements []Placement, cand []int32, size int64) int64 {
+	slices.SortFunc(cand, func(x, y int32) int {
+		if c := cmp.Compare(placements[x].Offset, placements[y].Offset); c != 0 {
+			return c
+		}
+		return cmp.Compare(x, y)
+	})
+	var prevEnd int64
+	best, bestGap := int64(-1), int64(-1)
+	for _, j := range cand {
+		o := &placements[j]
+		if gap := o.Offset - prevEnd; gap >= size && (bestGap < 0 || gap < bestGap) {
+			best, bestGap = prevEnd, gap
+		}
+		prevEnd = max(prevEnd, o.Offset+o.Size)
+	}
+	if best < 0 {
+		return prevEnd
+	}
+	return best
+}
+
+// byteRun is the bytes lo through hi-1 of the arena.
+type byteRun struct{ lo, hi int64 }
+
+// runTree is a segment tree over steps 0..size-1. A tensor live over steps
+// [a, b] is stored at the nodes of the canonical decomposition of [a, b]
+// (cover) and at every proper ancestor of them (part); each node keeps the
+// union of its tensors' byte ranges as sorted disjoint runs, touching runs
+// joined. The tensors that overlap [a, b] in time are those in cover of the
+// canonical nodes of [a, b] and of their ancestors, and those in part of
+// the canonical nodes.
+type runTree struct {
+	size        int
+	cover, part [][]byteRun
+}
+
+func newRunTree(size int) *runTree {
+	return &runTree{size: size, cover: make([][]byteRun, 4*size), part: make([][]byteRun, 4*size)}
+}
+
+func (t *runTree) insert(a, b int, r byteRun) { t.ins(1, 0, t.size-1, a, b, r) }
+
+func (t *runTree) ins(node, l, h, a, b int, r byteRun) {
+	if b < l || h < a {
+		return
+	}
+	if a <= l && h <= b {
+		t.cover[node] = addRun(t.cover[node], r)
+		return
+	}
+	t.part[node] = addRun(t.part[node], r)
+	mid := (l + h) / 2
+	t.ins(2*node, l, mid, a, b, r)
+	t.ins(2*node+1, mid+1, h, a, b, r)
+}
+
+// query appends the runs of every node whose tensors overlap [a, b].
+func (t *runTree) query(a, b int, out []byteRun) []byteRun {
+	return t.q(1, 0, t.size-1, a, b, out)
+}
+
+func (t *runTree) q(node, l, h, a, b int, out []byteRun) []byteRun {
+	if b < l || h < a {
+		return out
+	}
+	out = append(out, t.cover[node]...)
+	if a <= l && h <= b {
+		return append(out, t.part[node]...)
+	}
+	mid := (l + h) / 2
+	out = t.q(2*node, l, mid, a, b, out)
+	return t.q(2*node+1, mid+1, h, a, b, out)
+}
+
+// addRun adds r to the sorted disjoint runs rs, joining the runs it
+// overlaps or touches.
+func addRun(rs []byteRun, r byteRun) []byteRun {
+	// The first run that ends at or after r begins, and the first that
+	// begins after r ends: those between are joined with r.
+	i := sort.Search(len(rs), func(k int) bool { return rs[k].hi >= r.lo })
+	j := i
+	for j < len(rs) && rs[j].lo <= r.hi {
+		r.lo, r.hi = min(r.lo, rs[j].lo), max(r.hi, rs[j].hi)
+		j++
+	}
+	return slices.Replace(rs, i, j, r)
 }
 
 // stepTree is a segment tree over steps 0..size-1 holding intervals of

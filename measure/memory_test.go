@@ -1,10 +1,12 @@
 package measure
 
 import (
+	"cmp"
 	"encoding/json"
 	"fmt"
 	"math/rand"
 	"reflect"
+	"slices"
 	"sort"
 	"testing"
 
@@ -697,4 +699,166 @@ func TestMemoryCorpus(t *testing.T) {
 	if planned != len(paths) {
 		t.Errorf("planned %d of %d corpus models; every one must be", planned, len(paths))
 	}
+}
+
+// planArenaSegmentTree is the planner as it was before the byte-run tree:
+// the same greedy by size, finding every placed tensor that overlaps a
+// tensor in time with a segment tree over the steps and looking at each in
+// offset order (O(n log n + Σ k log k), k the overlapping tensors: quadratic
+// when thousands are live at once). Kept as the reference PlanArena must
+// agree with exactly.
+func planArenaSegmentTree(tensors []Lifetime) (placements []Placement, arena int64) {
+	n := len(tensors)
+	placements = make([]Placement, n)
+	if n == 0 {
+		return placements, 0
+	}
+	// The tree runs over the ranks of the distinct step values, so that
+	// steps far apart cost nothing.
+	stepVals := make([]int, 0, 2*n)
+	for i, t := range tensors {
+		last := max(t.Last, t.First)
+		placements[i] = Placement{Name: t.Name, Size: max(t.Size, 0), First: t.First, Last: last}
+		stepVals = append(stepVals, t.First, last)
+	}
+	slices.Sort(stepVals)
+	stepVals = slices.Compact(stepVals)
+	rank := func(step int) int {
+		r, _ := slices.BinarySearch(stepVals, step)
+		return r
+	}
+	idx := make([]int, n)
+	for i := range idx {
+		idx[i] = i
+	}
+	slices.SortFunc(idx, func(a, b int) int {
+		x, y := &placements[a], &placements[b]
+		switch {
+		case x.Size != y.Size:
+			return cmp.Compare(y.Size, x.Size)
+		case x.First != y.First:
+			return cmp.Compare(x.First, y.First)
+		case x.Name != y.Name:
+			return cmp.Compare(x.Name, y.Name)
+		case x.Last != y.Last:
+			return cmp.Compare(x.Last, y.Last)
+		}
+		return cmp.Compare(a, b)
+	})
+
+	tree := newStepTree(len(stepVals), n)
+	stamp := make([]int32, n) // stamp[j] == q+1: tensor j already met in query q
+	var cand []int32
+	for q, i := range idx {
+		p := &placements[i]
+		a, b := rank(p.First), rank(p.Last)
+		cand = tree.query(a, b, int32(q+1), stamp, cand[:0])
+		slices.SortFunc(cand, func(x, y int32) int {
+			if c := cmp.Compare(placements[x].Offset, placements[y].Offset); c != 0 {
+				return c
+			}
+			return cmp.Compare(x, y)
+		})
+		var prevEnd int64
+		best, bestGap := int64(-1), int64(-1)
+		for _, j := range cand {
+			o := &placements[j]
+			if gap := o.Offset - prevEnd; gap >= p.Size && (bestGap < 0 || gap < bestGap) {
+				best, bestGap = prevEnd, gap
+			}
+			prevEnd = max(prevEnd, o.Offset+o.Size)
+		}
+		if best < 0 {
+			best = prevEnd
+		}
+		p.Offset = best
+		arena = max(arena, p.Offset+p.Size)
+		tree.insert(a, b, int32(i))
+	}
+	return placements, arena
+}
+
+
+// randomPacked: up to 1,200 tensors, most of them live until one late step
+// (a fan-in, where thousands are live at once), the rest anywhere; sizes
+// drawn from a few values so that ties and exact fits are common, some zero
+// or negative, some lifetimes inverted.
+func randomPacked(r *rand.Rand) []Lifetime {
+	steps := 2 + r.Intn(400)
+	ts := make([]Lifetime, r.Intn(1201))
+	sizes := []int64{0, 16, 48, 64, 64, 100, 128, 1000, -5}
+	for i := range ts {
+		first := r.Intn(steps)
+		last := steps - 1
+		switch r.Intn(4) {
+		case 0:
+			last = first + r.Intn(steps-first)
+		case 1:
+			last = first - r.Intn(3) // inverted sometimes
+		}
+		size := sizes[r.Intn(len(sizes))]
+		if r.Intn(4) == 0 {
+			size = int64(r.Intn(5000))
+		}
+		ts[i] = Lifetime{Name: fmt.Sprintf("t%d", r.Intn(len(ts)+1)), Size: size, First: first, Last: last}
+	}
+	return ts
+}
+
+// TestPlanArenaMatchesReference: on random lifetimes, small and scattered
+// (randomLifetimes) and large with thousands live at once (randomPacked),
+// the planner's arena and every placement are exactly those of the
+// segment-tree planner it replaced.
+func TestPlanArenaMatchesReference(t *testing.T) {
+	for seed := range int64(240) {
+		r := rand.New(rand.NewSource(seed))
+		ts := randomLifetimes(r)
+		if seed%3 == 0 {
+			ts = randomPacked(r)
+		}
+		ps, arena := PlanArena(ts)
+		rps, rarena := planArenaSegmentTree(ts)
+		if arena != rarena || !reflect.DeepEqual(ps, rps) {
+			for i := range ps {
+				if ps[i] != rps[i] {
+					t.Fatalf("seed %d (%d tensors): arena %d, reference %d; first difference at %d: %+v, reference %+v", seed, len(ts), arena, rarena, i, ps[i], rps[i])
+				}
+			}
+			t.Fatalf("seed %d: arena %d, reference %d", seed, arena, rarena)
+		}
+	}
+}
+
+// TestPlanArenaFanInBounded: 20,000 tensors of 64 B all live at the last
+// step (N Relu outputs feeding one Sum) are planned without looking at every
+// overlapping tensor: each query meets a few byte runs per tree level, not
+// the thousands of tensors live at once (the reference planner looks at
+// all of them: 2·10^8 in all).
+func TestPlanArenaFanInBounded(t *testing.T) {
+	const n = 20000
+	ts := make([]Lifetime, n)
+	for i := range ts {
+		ts[i] = Lifetime{Name: fmt.Sprintf("r%d", i), Size: 64, First: i, Last: n}
+	}
+	ps, arena := PlanArena(ts)
+	// Hand-worked: every tensor overlaps every other at step n, so they are
+	// stacked: r_i at 64·i, arena 64·n.
+	if arena != 64*n || ps[n-1].Offset != 64*(n-1) {
+		t.Errorf("arena %d, last offset %d; want %d, %d", arena, ps[n-1].Offset, 64*n, 64*(n-1))
+	}
+	// The same insertions and queries on the tree itself (steps 0..n are
+	// their own ranks): count the runs each query meets.
+	tree := newRunTree(n + 1)
+	var buf []byteRun
+	most, total := 0, 0
+	for i := range ts {
+		buf = tree.query(i, n, buf[:0])
+		most, total = max(most, len(buf)), total+len(buf)
+		tree.insert(i, n, byteRun{int64(64 * i), int64(64 * (i + 1))})
+	}
+	// A query visits at most 2·⌈log2(20001)⌉ + 2 = 32 nodes, a run or two each.
+	if most > 64 {
+		t.Errorf("a query met %d runs (%d in all); the runs should stay joined", most, total)
+	}
+	t.Logf("queries met %d runs at most, %d in all", most, total)
 }
