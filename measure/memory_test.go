@@ -778,7 +778,6 @@ func planArenaSegmentTree(tensors []Lifetime) (placements []Placement, arena int
 	return placements, arena
 }
 
-
 // randomPacked: up to 1,200 tensors, most of them live until one late step
 // (a fan-in, where thousands are live at once), the rest anywhere; sizes
 // drawn from a few values so that ties and exact fits are common, some zero
