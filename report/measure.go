@@ -88,7 +88,7 @@ func MeasureText(w io.Writer, entries []*measure.Metrics) error {
 			unresolvedText(w, m)
 		}
 		if m.Target != nil {
-			targetText(w, m.Target)
+			targetText(w, m.Target, len(m.Layers) > 0)
 		}
 		if len(m.Layers) > 0 {
 			layersText(w, m)
@@ -159,8 +159,9 @@ func Microjoules(uj float64) string {
 }
 
 // targetText writes the estimate on a device target: latency, energy,
-// where the time goes, and the operators the runtime lacks.
-func targetText(w io.Writer, e *target.Estimate) {
+// where the time goes, and the operators the runtime lacks; with every
+// layer, the per-layer estimates too.
+func targetText(w io.Writer, e *target.Estimate, every bool) {
 	lower := ""
 	if len(e.Uncosted) > 0 {
 		lower = "≥ "
@@ -176,6 +177,16 @@ func targetText(w io.Writer, e *target.Estimate) {
 		for _, l := range slow {
 			fmt.Fprintf(w, "    %-10s %5.1f %%  %s (%s, %s, step %d, %s-bound)\n", Millis(l.LatencyMS), 100*l.Cycles/e.Cycles, l.Node, l.Op, l.Class, l.Step, l.Bound)
 		}
+	}
+	if every && len(e.Layers) > 0 {
+		fmt.Fprintf(w, "  layers on %s (cycles = max(compute, memory))\n", e.Name)
+		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+		fmt.Fprintln(tw, "  step\tnode\top\tclass\tcompute\tmemory\tbound\tlatency\tenergy\t")
+		for _, l := range e.Layers {
+			fmt.Fprintf(tw, "  %d\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t\n", l.Step, l.Node, l.Op, l.Class,
+				Count(int64(math.Round(l.ComputeCycles))), Count(int64(math.Round(l.MemoryCycles))), l.Bound, Millis(l.LatencyMS), Microjoules(l.EnergyUJ))
+		}
+		tw.Flush()
 	}
 	if len(e.Uncosted) > 0 {
 		fmt.Fprintf(w, "  uncosted: %d node(s) left out of latency and energy\n", len(e.Uncosted))

@@ -61,6 +61,10 @@ func TestMeasureTarget(t *testing.T) {
 		!strings.Contains(out, "measure on the device before release") {
 		t.Errorf("text output:\n%s", out)
 	}
+	code, out, _ = inDir(t, dir, "measure", "--layers", "--target", "m4-reference", "cam.onnx")
+	if code != exitOK || !strings.Contains(out, "layers on m4-reference (cycles = max(compute, memory))") || !strings.Contains(out, "compute-bound") {
+		t.Errorf("--layers --target:\n%s", out)
+	}
 	if code, _, errs := inDir(t, dir, "measure", "--target", "m9-turbo", "cam.onnx"); code != exitUsage || !strings.Contains(errs, `unknown target "m9-turbo"`) {
 		t.Errorf("unknown target: exit %d, %s", code, errs)
 	}
