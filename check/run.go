@@ -402,7 +402,7 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	}
 	if o.Progress != nil && len(changes) > 0 {
 		// The report names the revisions; the progress line does not repeat them.
-		fmt.Fprintf(o.Progress, "loadline: measuring %s\n", plural(len(changes), "changed model", "changed models"))
+		fmt.Fprintf(o.Progress, "loadline: measuring %s\n", plural(len(changes), "model", "models"))
 	}
 	var cache *Cache
 	if !o.NoCache {

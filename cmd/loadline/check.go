@@ -179,12 +179,16 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 				what = "judged"
 			}
 			fmt.Fprintln(stderr, "loadline: "+stats.Line(len(res.Models), what))
+			var postErr error
 			if post {
-				if err := postResult(res, stdout, stderr); err != nil && postRequired {
-					return &exitError{exitEnviron, err}
-				}
+				postErr = postResult(res, stdout, stderr) // its messages are on stderr already
 			}
-			return rf.emit(stdout, res)
+			verdict := rf.emit(stdout, res)
+			if postErr != nil && postRequired {
+				// The report is written; the exit says the posting failed.
+				return &exitError{exitEnviron, errors.New("")}
+			}
+			return verdict
 		},
 	}
 	f := cmd.Flags()

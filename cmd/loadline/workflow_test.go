@@ -78,9 +78,12 @@ func TestPostRequiredNothingPosted(t *testing.T) {
 	for _, k := range []string{"GITHUB_ACTIONS", "GITLAB_CI", "GITHUB_BASE_REF", "CI_MERGE_REQUEST_DIFF_BASE_SHA"} {
 		t.Setenv(k, "")
 	}
-	code, _, errs := inDir(t, dir, "check", "--base", "HEAD~1", "--post", "--post-required")
-	if code != exitEnviron || !strings.Contains(errs, "no supported CI platform") {
-		t.Errorf("no platform: exit %d, want 3\n%s", code, errs)
+	code, out, errs := inDir(t, dir, "check", "--base", "HEAD~1", "--post", "--post-required")
+	if code != exitEnviron || strings.Count(errs, "no supported CI platform") != 1 {
+		t.Errorf("no platform: exit %d, want 3 and the reason once\n%s", code, errs)
+	}
+	if !strings.Contains(out, "models/cam.onnx") {
+		t.Errorf("the report is not written when posting fails:\n%s", out)
 	}
 	// Without --post-required the verdict stands (within budget: 0).
 	if code, _, errs := inDir(t, dir, "check", "--base", "HEAD~1", "--post"); code != exitOK || !strings.Contains(errs, "nothing posted") {
