@@ -65,9 +65,9 @@ type deviceView struct {
 	totals *budget.DeviceResult
 	// timed is set when some model has a latency estimate on the
 	// device's target.
-	timed bool
-	trends  []trend
-	shares  []share
+	timed  bool
+	trends []trend
+	shares []share
 }
 
 // trend is one metric of a device's models across the releases.
