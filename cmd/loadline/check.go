@@ -24,23 +24,29 @@ import (
 const version = "0.1.0"
 
 const checkConventions = `Verdicts: each limit in the budget file is a check of the head's figure
-(fail above the limit, warn above warn_at of it); each growth rule a check
-against the base's figure. A waiver turns a failure into "waived" until its
-date. ram = deployed activation arena, or for a TFLite model the runtime
-arena plus the persistent bytes of its variable tensors (+ weight bytes when
-the device keeps weights in RAM); flash = the model file's bytes plus its
+(fail above the limit, warn above warn_at of it, default 90%); each growth
+rule a check against the base's figure plus its allowed growth. A waiver
+turns a failure into "waived" until its date. headroom = limit − head
+figure (a growth check's limit is the base plus the growth allowed); the
+sign-off states a model's headroom as the smallest share of an allowance
+left: (limit − figure) ÷ limit, or ÷ (limit − base) for growth. ram =
+deployed activation arena, or for a TFLite model the runtime arena plus
+the persistent bytes of its variable tensors (+ weight bytes when the
+device keeps weights in RAM); flash = the model file's bytes plus its
 external data.
 Device totals, for a device that lists the models it runs: flash = the sum
 of their flash (identical constants of 256 B or more counted once with
-shared_weights: true, else reported as a possible saving); ram = the
-largest arena (one-at-a-time) or the sum of the arenas (concurrent), plus
-every model's persistent bytes and weights kept in RAM; load = Σ latency ÷
-period, the share of the core's time (needs a target). Each total is
-judged against the device's limits (default: its capacities), and each
-model's latency against its period.
+shared_weights: true, else reported as a possible saving; flash_shared =
+each such constant's bytes × (copies − 1)); ram = the largest arena
+(one-at-a-time) or the sum of the arenas (concurrent), plus every model's
+persistent bytes and weights kept in RAM (shared ones once with
+shared_weights: true); load = Σ latency ÷ period, the share of the core's
+time (needs a target). Each total is judged against the device's limits
+(default: its capacities), and each model's latency against its period.
 Exit codes: 0 within budget (warnings allowed), 1 a budget is broken or a
 changed model cannot be measured, 2 usage or budget-file error, 3
-environment error (missing git objects, unreachable API when --post-required).`
+environment error (missing git objects, unreachable API when
+--post-required).`
 
 // renderFlags are the output choices shared by check and compare.
 type renderFlags struct {

@@ -61,7 +61,8 @@ const conventions = `Figures (static estimates from the model file; measure on t
                their body × trip count (once, and listed as unresolved, when
                unknown). Nodes whose shapes have unbound symbolic dims are listed
                as unresolved and left out; bind them with --dim batch=1.
-  sparsity     share of weight elements exactly zero, read from the weight bytes.
+  sparsity     share of weight elements exactly zero, read from the weight bytes
+               (-1 when no weight has stored values).
   activations  graph view: in the file's node order, each run-time tensor is live
                from its producer's step through its last consumer's; peak live =
                the largest sum at one step (a lower bound for any allocator); arena =
@@ -105,9 +106,10 @@ const conventions = `Figures (static estimates from the model file; measure on t
   energy       target:): each operator is classed (conv, depthwise, dense,
                recurrent, elementwise, pooling, movement) and costs
                max(fixed + per_unit × work, memory cycles) cycles, work = MACs
-               for the first four classes and the larger of input and output
-               elements for the others, memory cycles = weight bytes / flash
-               (or RAM) bytes per cycle + activation bytes / RAM bytes per cycle
+               for the first four classes and the larger of input 0's and the
+               outputs' elements for the others, memory cycles = weight bytes /
+               flash (or RAM) bytes per cycle + run-time input and output bytes /
+               RAM bytes per cycle
                (a roofline); latency = cycles / clock, energy = power × latency.
                Built-in targets are fitted to published MLPerf Tiny measurements;
                these are estimates: measure on the device before release.
