@@ -33,6 +33,18 @@ type EvalOptions struct {
 	Tree []string
 }
 
+// RunArena is the activation arena a device runs the model in: for a
+// TFLite model the arena its microcontroller runtime plans
+// (Memory.Runtime.ArenaBytes, kernel scratch included), for others the
+// deployed view's arena. Persistent bytes are apart. ram (Deploy) and the
+// device totals (totals.go) both count it.
+func (f *Figures) RunArena() int64 {
+	if rt := f.Memory.Runtime; rt != nil {
+		return rt.ArenaBytes
+	}
+	return f.Memory.Deployed.ArenaBytes
+}
+
 // Deploy returns a copy of fig with RAM and Flash computed for the device.
 // This is the one definition of the two device figures:
 //
@@ -58,10 +70,7 @@ func (d *Device) Deploy(fig *Figures) *Figures {
 	}
 	out := *fig
 	out.Unknown = copyUnknown(fig.Unknown)
-	out.RAM = fig.Memory.Deployed.ArenaBytes
-	if rt := fig.Memory.Runtime; rt != nil {
-		out.RAM = addSat(rt.ArenaBytes, fig.Memory.PersistentBytes)
-	}
+	out.RAM = addSat(fig.RunArena(), fig.Memory.PersistentBytes)
 	if why, ok := fig.Unknown[MetricArena]; ok {
 		setUnknown(&out, MetricRAM, "arena: "+why)
 	}

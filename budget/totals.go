@@ -150,13 +150,9 @@ func (dev *Device) Totals(models []DeviceInput) (DeviceTotals, []DeviceShare, []
 		if why, ok := fig.Unknown[MetricFlash]; ok {
 			unknown(MetricFlash, in.Path+": "+why)
 		}
-		arena, ok := fig.Value(MetricArena)
-		if why, bad := fig.Unknown[MetricArena]; bad || !ok {
+		arena := in.Figures.RunArena()
+		if why, bad := fig.Unknown[MetricArena]; bad {
 			unknown(MetricRAM, in.Path+": "+why)
-		}
-		if rt := in.Figures.Memory.Runtime; rt != nil {
-			// A TFLite model's arena is the runtime's plan.
-			arena = rt.ArenaBytes
 		}
 		sh.Arena, sh.Persist = arena, in.Figures.Memory.PersistentBytes
 		maxArena = max(maxArena, arena)

@@ -30,12 +30,9 @@ func Audit(r *Repo, rev string, o Options) (*budget.Result, *Stats, error) {
 	if err != nil {
 		return nil, nil, err
 	}
-	bf, err := loadBudget(snap, bpath, rev)
+	bf, err := requireBudget(snap, bpath, rev)
 	if err != nil {
 		return nil, nil, err
-	}
-	if bf == nil {
-		return nil, nil, &BudgetFileError{Err: fmt.Errorf("no budget file: %s is not in %s (write one with loadline init, or name it with --budget)", bpath, rev)}
 	}
 	var cache *Cache
 	if !o.NoCache {
@@ -53,6 +50,19 @@ func Audit(r *Repo, rev string, o Options) (*budget.Result, *Stats, error) {
 	res.Audit = true
 	res.Head = budget.Revision{Ref: rev, Commit: commitOf(snap)}
 	return res, stats, nil
+}
+
+// requireBudget is the budget file at a revision, which an audit of the
+// revision cannot do without: its absence is a budget-file error.
+func requireBudget(snap *Snapshot, bpath, rev string) (*budget.File, error) {
+	bf, err := loadBudget(snap, bpath, rev)
+	if err != nil {
+		return nil, err
+	}
+	if bf == nil {
+		return nil, &BudgetFileError{Err: fmt.Errorf("no budget file: %s is not in %s (write one with loadline init, or name it with --budget)", bpath, rev)}
+	}
+	return bf, nil
 }
 
 // judgeSnapshot measures every model of a snapshot (through the cache)

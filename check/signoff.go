@@ -72,12 +72,9 @@ func Signoff(o SignoffOptions) (*budget.Signoff, *Stats, error) {
 	if err != nil {
 		return nil, nil, err
 	}
-	file, err := loadBudget(snap, bpath, rev)
+	file, err := requireBudget(snap, bpath, rev)
 	if err != nil {
 		return nil, nil, err
-	}
-	if file == nil {
-		return nil, nil, &BudgetFileError{Err: fmt.Errorf("no budget file: %s is not in %s (write one with loadline init, or name it with --budget)", bpath, rev)}
 	}
 	blob, _ := snap.Hash(bpath)
 	var cache *Cache
