@@ -37,13 +37,14 @@ func Audit(r *Repo, rev string, o Options) (*budget.Result, *Stats, error) {
 	var cache *Cache
 	if !o.NoCache {
 		cache = NewCache(r)
+		defer cache.Close()
 	}
 	today := o.Today
 	if today.IsZero() {
 		today = time.Now()
 	}
 	stats := &Stats{}
-	res, err := judgeSnapshot(snap, bf, bpath, budget.EvalOptions{Strict: o.Strict, Today: today}, o.Bindings, cache, stats, o.Progress)
+	res, err := judgeSnapshot(snap, bf, bpath, budget.EvalOptions{Strict: o.Strict, Today: today}, o.Bindings, o.Detail, cache, stats, o.Progress)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -69,8 +70,9 @@ func requireBudget(snap *Snapshot, bpath, rev string) (*budget.File, error) {
 // and judges each, unchanged, against the budget file f: the state of a
 // revision, not a change. A rule that matches no file of the snapshot is
 // a warning. It is the core of Audit (check --all) and of the sign-off's
-// every model at every release.
-func judgeSnapshot(s *Snapshot, f *budget.File, bpath string, eo budget.EvalOptions, cli Bindings, cache *Cache, stats *Stats, progress io.Writer) (*budget.Result, error) {
+// every model at every release. With detail each model carries its
+// per-layer detail.
+func judgeSnapshot(s *Snapshot, f *budget.File, bpath string, eo budget.EvalOptions, cli Bindings, detail bool, cache *Cache, stats *Stats, progress io.Writer) (*budget.Result, error) {
 	tree, err := s.Paths()
 	if err != nil {
 		return nil, err
@@ -90,7 +92,7 @@ func judgeSnapshot(s *Snapshot, f *budget.File, bpath string, eo budget.EvalOpti
 	for i, p := range paths {
 		jobs[i], dims[i] = blobJob{s, p}, bindingsOf(p, cli, f)
 	}
-	metrics, _ := measureJobs(jobs, dims, runsTogether(f), cache, stats)
+	metrics, _ := measureJobs(jobs, dims, runsTogether(f), detail || withTarget(f), cache, stats)
 	if err := envError(metrics); err != nil {
 		return nil, err
 	}
@@ -101,7 +103,9 @@ func judgeSnapshot(s *Snapshot, f *budget.File, bpath string, eo budget.EvalOpti
 	eo.Tree = tree
 	res := f.Evaluate(inputs, eo)
 	for i := range res.Models {
-		res.Models[i].Detail = DetailOf(metrics[i])
+		if detail {
+			res.Models[i].Detail = DetailOf(metrics[i])
+		}
 	}
 	dj := &deviceJudge{file: f, cli: cli, cache: cache, stats: stats}
 	if err := dj.judge(res, nil, s, nil); err != nil {

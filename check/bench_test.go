@@ -9,14 +9,13 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/loadline/loadline/internal/benchrepo"
 	"github.com/loadline/loadline/internal/corpus"
-	"github.com/loadline/loadline/measure/benchmodel"
-	"github.com/loadline/loadline/model/onnx"
 )
 
-// benchRepo is a repository whose last commit modifies 20 models of about
-// 20 MB each (different weights on each side), with a budget that covers
-// them; made once per benchmark binary.
+// benchRepoDir is a repository whose last commit modifies 20 models of
+// about 20 MB each (different weights on each side), with a budget that
+// covers them; made once per benchmark binary.
 var benchRepoDir string
 
 func makeBenchRepo(b *testing.B) string {
@@ -29,45 +28,8 @@ func makeBenchRepo(b *testing.B) string {
 	if err != nil {
 		b.Fatal(err)
 	}
-	git := func(args ...string) {
-		cmd := exec.Command("git", args...)
-		cmd.Dir = dir
-		cmd.Env = append(os.Environ(), "GIT_CONFIG_NOSYSTEM=1", "HOME="+dir)
-		if out, err := cmd.CombinedOutput(); err != nil {
-			b.Fatalf("git %v: %v\n%s", args, err, out)
-		}
-	}
-	git("init", "-q", "-b", "main")
-	git("config", "user.email", "bench@wrenfield.example")
-	git("config", "user.name", "bench")
-	git("config", "core.compression", "1")
-	os.WriteFile(filepath.Join(dir, "loadline.yaml"), []byte(`version: 1
-devices:
-  hub: {ram: 64MiB, flash: 1GiB}
-models:
-  - path: "models/*.onnx"
-    device: hub
-    dims: {batch: 1}
-    limits: {flash: 100MiB}
-`), 0o644)
-	for side := 0; side < 2; side++ {
-		for i := 0; i < 20; i++ {
-			m, err := benchmodel.BuildSeeded(20, uint64(100*side+i+1))
-			if err != nil {
-				b.Fatal(err)
-			}
-			data, err := onnx.Encode(m)
-			if err != nil {
-				b.Fatal(err)
-			}
-			p := filepath.Join(dir, "models", fmt.Sprintf("m%02d.onnx", i))
-			os.MkdirAll(filepath.Dir(p), 0o755)
-			if err := os.WriteFile(p, data, 0o644); err != nil {
-				b.Fatal(err)
-			}
-		}
-		git("add", "-A")
-		git("commit", "-q", "-m", fmt.Sprintf("side %d", side))
+	if err := benchrepo.Write(dir, 20, 20, false); err != nil {
+		b.Fatal(err)
 	}
 	benchRepoDir = dir
 	return dir
@@ -148,4 +110,34 @@ type countingWriter int64
 func (c *countingWriter) Write(p []byte) (int, error) {
 	*c += countingWriter(len(p))
 	return len(p), nil
+}
+
+// BenchmarkWarmCheck re-checks a change of 500 and of 2,000 small models in
+// one folder with a warm cache: the time per check should grow with the
+// number of models, not with its square.
+func BenchmarkWarmCheck(b *testing.B) {
+	corpus.Tool(b, "git", "git")
+	for _, n := range []int{500, 2000} {
+		b.Run(fmt.Sprintf("models-%d", n), func(b *testing.B) {
+			dir := b.TempDir()
+			if err := benchrepo.Write(dir, n, 0, true); err != nil {
+				b.Fatal(err)
+			}
+			opts := Options{Dir: dir, Base: "HEAD~1", Head: "HEAD"}
+			if _, _, err := Run(opts); err != nil {
+				b.Fatal(err)
+			}
+			b.ReportAllocs()
+			b.ResetTimer()
+			for b.Loop() {
+				res, st, err := Run(opts)
+				if err != nil {
+					b.Fatal(err)
+				}
+				if len(res.Models) != n || st.Measured.Load() != 0 {
+					b.Fatalf("%d models, %d measured; want %d from the cache", len(res.Models), st.Measured.Load(), n)
+				}
+			}
+		})
+	}
 }

@@ -2,12 +2,12 @@ package check
 
 import (
 	"crypto/sha256"
-	"encoding/hex"
 	"encoding/json"
 	"fmt"
-	"os"
 	"path/filepath"
 	"sort"
+	"strings"
+	"sync"
 
 	"github.com/loadline/loadline/measure"
 )
@@ -17,22 +17,66 @@ import (
 // change a figure, so that no stale figure survives an upgrade.
 const AnalyzerVersion = "loadline-figures-9"
 
-// Cache keeps measured figures keyed by blob id, analyzer version and dims,
-// in files under the repository's git directory. It is safe under
-// concurrent runs: entries are written to a temporary file and renamed into
-// place, and a corrupt or unreadable entry counts as a miss and is
-// rewritten.
+// Cache keeps measured figures keyed by blob id, analyzer version and the
+// measuring options, in pack files under the repository's git directory
+// (pack.go): each key has two entries, the figures (small, read by every
+// check) and the per-layer view (read only when a report shows its detail
+// or a device's target estimates from it). A run
+// opens each pack once and reads only the entries it needs; what it
+// measures is written as one new pack when it ends (Flush), and packs are
+// merged when there are more than a few.
+//
+// It is safe under concurrent runs: a pack is written to a temporary file
+// and renamed into place, and never changed after. It trusts nothing it
+// reads: a pack that is not a regular file (a link, a device, a FIFO) or
+// whose index does not fit the file is skipped, and an entry larger than
+// its bound, that does not decode, or that was made for another blob,
+// analyzer version or options is a miss, measured again and rewritten.
 type Cache struct {
 	Dir string
+
+	openOnce sync.Once
+	packs    []*pack // newest first
+
+	mu      sync.Mutex
+	pending map[packKey][]byte // entries of this run, not yet written
 }
 
-// cacheEntry is one stored measurement with the blobs it depended on
-// besides the model itself (external data files), so that an entry is only
-// used when they are unchanged too.
+// Bounds of what the cache reads: figures are a few hundred bytes (the
+// unresolved list of a large model can make them longer); the detail holds
+// the live bytes of every step of the schedule.
+const (
+	maxFiguresEntry = 16 << 20
+	maxDetailEntry  = 64 << 20
+)
+
+// cacheEntry is one stored measurement, bound to the key it was made for,
+// with the blobs it depended on besides the model itself (external data
+// files), so that an entry is only used when they are unchanged too.
 type cacheEntry struct {
+	Blob    string            `json:"blob"`
 	Version string            `json:"version"`
-	Deps    map[string]string `json:"deps"` // path from the model's folder → blob id
-	Metrics *measure.Metrics  `json:"metrics"`
+	Options string            `json:"options"`
+	Deps    map[string]string `json:"deps,omitempty"` // path from the model's folder → blob id
+	Metrics *measure.Metrics  `json:"metrics,omitempty"`
+	// Layers marks a per-layer entry: the model was measured with the
+	// per-layer view, and PerLayer is what it gave.
+	Layers   bool      `json:"layers,omitempty"`
+	PerLayer *perLayer `json:"per_layer,omitempty"`
+}
+
+// perLayer is the part of the figures that only the per-layer view fills,
+// kept apart from them.
+type perLayer struct {
+	Layers          []measure.Layer `json:"layers"`
+	LiveBytesByStep []int64         `json:"live_bytes_by_step"`
+}
+
+// cacheKey is where the figures of one blob are kept.
+type cacheKey struct {
+	blob    string
+	options string   // every option that changes the figures, canonical
+	digest  [20]byte // of version, blob and options: the key in a pack
 }
 
 // NewCache returns the cache of a repository.
@@ -40,102 +84,116 @@ func NewCache(r *Repo) *Cache {
 	return &Cache{Dir: filepath.Join(r.CommonDir, "loadline", "cache")}
 }
 
-// cacheKey names the figures of one blob under every option that can
-// change them: dims, the deployed view's rewrites, and whether the
-// per-layer view was asked for.
-func cacheKey(blob string, opts measure.Options) string {
+// keyOf names the figures of one blob under every option that can change
+// them: dims, shapes and values, lenient binding and the deployed view's
+// rewrites. The per-layer view is no
+// part of it: it is kept as the entry's detail, beside the figures.
+func keyOf(blob string, opts measure.Options) cacheKey {
 	names := make([]string, 0, len(opts.Dims))
 	for k := range opts.Dims {
 		names = append(names, k)
 	}
 	sort.Strings(names)
-	h := sha256.New()
-	fmt.Fprintf(h, "%s\x00%s\x00", AnalyzerVersion, blob)
+	var o strings.Builder
 	for _, k := range names {
-		fmt.Fprintf(h, "%s=%d\x00", k, opts.Dims[k])
+		fmt.Fprintf(&o, "%s=%d\x00", k, opts.Dims[k])
 	}
 	// Shapes and values, when given, and lenient binding (what check
 	// uses) change the figures or their binding issues.
 	for _, k := range sortedKeys(opts.Shapes) {
-		fmt.Fprintf(h, "shape %s=%v\x00", k, opts.Shapes[k])
+		fmt.Fprintf(&o, "shape %s=%v\x00", k, opts.Shapes[k])
 	}
 	for _, k := range sortedKeys(opts.Values) {
-		fmt.Fprintf(h, "value %s=%v\x00", k, opts.Values[k])
+		fmt.Fprintf(&o, "value %s=%v\x00", k, opts.Values[k])
 	}
 	if opts.Lenient {
-		fmt.Fprintf(h, "lenient\x00")
+		fmt.Fprintf(&o, "lenient\x00")
 	}
 	deploy := measure.DefaultDeployOptions()
 	if opts.Deploy != nil {
 		deploy = *opts.Deploy
 	}
-	// The defaults and no layers add nothing, so the keys of earlier
-	// versions stay valid.
-	if deploy != measure.DefaultDeployOptions() {
-		fmt.Fprintf(h, "deploy=%+v\x00", deploy)
-	}
-	if opts.Layers {
-		fmt.Fprintf(h, "layers\x00")
-	}
 	if opts.Digests {
-		fmt.Fprintf(h, "digests\x00")
+		fmt.Fprintf(&o, "digests\x00")
 	}
-	return hex.EncodeToString(h.Sum(nil))[:40]
-}
-
-func (c *Cache) file(key string) string {
-	return filepath.Join(c.Dir, key[:2], key+".json")
+	fmt.Fprintf(&o, "deploy=%+v", deploy)
+	h := sha256.New()
+	fmt.Fprintf(h, "%s\x00%s\x00%s", AnalyzerVersion, blob, o.String())
+	k := cacheKey{blob: blob, options: o.String()}
+	copy(k.digest[:], h.Sum(nil))
+	return k
 }
 
 // Get returns the cached figures and the dependencies they were read with
-// (paths from the model's folder → blob id), or nil. depOK reports whether
-// a dependency's recorded blob id is still the one at the revision.
-func (c *Cache) Get(key string, depOK func(path, blob string) bool) (*measure.Metrics, map[string]string) {
+// (paths from the model's folder → blob id), or nil; with layers, the
+// figures carry the per-layer view too, and it is a miss when that is not
+// cached. depOK reports whether a dependency's recorded blob id is still
+// the one at the revision.
+func (c *Cache) Get(k cacheKey, layers bool, depOK func(path, blob string) bool) (*measure.Metrics, map[string]string) {
 	if c == nil {
 		return nil, nil
 	}
-	b, err := os.ReadFile(c.file(key))
-	if err != nil {
+	e, ok := c.read(k, kindFigures, maxFiguresEntry)
+	if !ok || e.Metrics == nil {
 		return nil, nil
-	}
-	var e cacheEntry
-	if json.Unmarshal(b, &e) != nil || e.Version != AnalyzerVersion || e.Metrics == nil {
-		return nil, nil // corrupt or stale: measured again and rewritten
 	}
 	for p, blob := range e.Deps {
 		if !depOK(p, blob) {
 			return nil, nil
 		}
 	}
+	if !layers {
+		return e.Metrics, e.Deps
+	}
+	d, ok := c.read(k, kindDetail, maxDetailEntry)
+	if !ok || !d.Layers || d.PerLayer == nil {
+		return nil, nil
+	}
+	e.Metrics.Layers, e.Metrics.MemoryDetail.LiveBytesByStep = d.PerLayer.Layers, d.PerLayer.LiveBytesByStep
 	return e.Metrics, e.Deps
 }
 
-// Put stores figures; errors are ignored because the cache only saves time.
-func (c *Cache) Put(key string, m *measure.Metrics, deps map[string]string) {
+// read decodes one entry, refusing one larger than limit bytes, one that
+// does not decode, and one made for another key.
+func (c *Cache) read(k cacheKey, kind byte, limit int64) (*cacheEntry, bool) {
+	b, ok := c.lookup(k.pack(kind), limit)
+	if !ok {
+		return nil, false
+	}
+	var e cacheEntry
+	if json.Unmarshal(b, &e) != nil || e.Blob != k.blob || e.Version != AnalyzerVersion || e.Options != k.options {
+		return nil, false // corrupt, stale or forged for another key: measured again and rewritten
+	}
+	return &e, true
+}
+
+// Put keeps figures, with layers (measured with the per-layer view) in two
+// entries: the figures without it, and the per-layer view; Flush writes
+// them. Errors are ignored because the cache only saves time.
+func (c *Cache) Put(k cacheKey, m *measure.Metrics, deps map[string]string, layers bool) {
 	if c == nil || m == nil || m.Error != "" {
 		return
 	}
-	b, err := json.Marshal(cacheEntry{Version: AnalyzerVersion, Deps: deps, Metrics: m})
-	if err != nil {
+	figures := *m
+	figures.Layers, figures.MemoryDetail.LiveBytesByStep = nil, nil
+	if layers {
+		c.keep(k.pack(kindDetail), cacheEntry{Blob: k.blob, Version: AnalyzerVersion, Options: k.options, Layers: true,
+			PerLayer: &perLayer{Layers: m.Layers, LiveBytesByStep: m.MemoryDetail.LiveBytesByStep}}, maxDetailEntry)
+	}
+	c.keep(k.pack(kindFigures), cacheEntry{Blob: k.blob, Version: AnalyzerVersion, Options: k.options, Deps: deps, Metrics: &figures}, maxFiguresEntry)
+}
+
+func (c *Cache) keep(pk packKey, e cacheEntry, limit int) {
+	b, err := json.Marshal(e)
+	if err != nil || len(b) > limit {
 		return
 	}
-	f := c.file(key)
-	if err := os.MkdirAll(filepath.Dir(f), 0o755); err != nil {
-		return
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	if c.pending == nil {
+		c.pending = map[packKey][]byte{}
 	}
-	tmp, err := os.CreateTemp(filepath.Dir(f), ".tmp-*")
-	if err != nil {
-		return
-	}
-	_, werr := tmp.Write(b)
-	cerr := tmp.Close()
-	if werr != nil || cerr != nil {
-		os.Remove(tmp.Name())
-		return
-	}
-	if os.Rename(tmp.Name(), f) != nil {
-		os.Remove(tmp.Name())
-	}
+	c.pending[pk] = b
 }
 
 func sortedKeys[V any](m map[string]V) []string {

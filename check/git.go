@@ -18,8 +18,10 @@ import (
 
 	git "github.com/go-git/go-git/v5"
 	"github.com/go-git/go-git/v5/plumbing"
+	"github.com/go-git/go-git/v5/plumbing/cache"
 	"github.com/go-git/go-git/v5/plumbing/filemode"
 	"github.com/go-git/go-git/v5/plumbing/object"
+	"github.com/go-git/go-git/v5/storage/filesystem"
 )
 
 // EnvError is an error of the environment rather than of the change:
@@ -42,6 +44,14 @@ func (e *EnvError) Unwrap() error { return e.Err }
 // Repo is an opened git repository.
 type Repo struct {
 	r *git.Repository
+	// mu serialises the calls into go-git's object store, whose caches
+	// (open pack files, decoded objects) are not safe for concurrent use;
+	// a large blob is streamed outside it, from a reader of its own.
+	mu sync.Mutex
+	// closeStore releases the pack files kept open for the run.
+	closeStore func() error
+	// cat reads blobs through git's own reader when it can (catfile.go).
+	cat *catFiles
 	// Root is the top of the working tree.
 	Root string
 	// CommonDir is the git directory shared by all worktrees, where the LFS
@@ -73,7 +83,35 @@ func OpenRepo(dir string) (*Repo, error) {
 	if err != nil {
 		return nil, err
 	}
-	return &Repo{r: r, Root: root, CommonDir: common}, nil
+	partial := false
+	if cfg, err := r.Config(); err == nil && cfg.Raw != nil {
+		partial = cfg.Raw.Section("extensions").Option("partialclone") != ""
+	}
+	repo := &Repo{r: r, Root: root, CommonDir: common, closeStore: func() error { return nil }, cat: newCatFiles(common, partial)}
+	// Reopen the object store so that it keeps each pack file open for the
+	// run instead of opening it again for every object, and hands blobs
+	// larger than largeObject out as streams instead of reading each into
+	// a growing in-memory copy (hashed again when cached).
+	if fs, ok := r.Storer.(*filesystem.Storage); ok {
+		st := filesystem.NewStorageWithOptions(fs.Filesystem(), cache.NewObjectLRUDefault(), filesystem.Options{KeepDescriptors: true, LargeObjectThreshold: largeObject})
+		if kept, err := git.Open(st, wt.Filesystem); err == nil {
+			repo.r, repo.closeStore = kept, st.Close
+		}
+	}
+	return repo, nil
+}
+
+// largeObject is the size above which go-git streams a blob from its pack
+// or loose file rather than inflating it into memory first.
+const largeObject = 1 << 20
+
+// Close releases the files the repository keeps open.
+func (r *Repo) Close() error {
+	if r == nil || r.closeStore == nil {
+		return nil
+	}
+	r.cat.close()
+	return r.closeStore()
 }
 
 // commonDir finds the git directory shared by worktrees: .git itself, or
@@ -114,12 +152,17 @@ type Snapshot struct {
 	Label  string
 	Commit plumbing.Hash
 	tree   *object.Tree
-	// treeMu serialises look-ups in tree: go-git's Tree.FindEntry fills
-	// caches without a lock, and the measuring workers share a snapshot.
+	// treeMu guards the file list of a commit (list).
 	treeMu sync.Mutex
-	files  map[string]plumbing.Hash // for the index
-	links  map[string]bool          // the index's symbolic links
-	subs   []string                 // submodules (the index's, or a commit's once listed)
+	// folders holds each folder of tree decoded so far, by path from the
+	// root ("" is the root): every folder is decoded once per snapshot and
+	// every later look-up is a map read. foldersMu guards it; the
+	// measuring workers share a snapshot.
+	foldersMu sync.Mutex
+	folders   map[string]map[string]object.TreeEntry
+	files     map[string]plumbing.Hash // for the index
+	links     map[string]bool          // the index's symbolic links
+	subs      []string                 // submodules (the index's, or a commit's once listed)
 	// paths and listed cache a commit's file list (see list).
 	paths  []string
 	listed bool
@@ -270,13 +313,72 @@ func (s *Snapshot) entry(p string) (h plumbing.Hash, link, ok bool) {
 		h, ok := s.files[p]
 		return h, s.links[p], ok
 	}
-	s.treeMu.Lock()
-	e, err := s.tree.FindEntry(p)
-	s.treeMu.Unlock()
-	if err != nil || !e.Mode.IsFile() {
+	e, ok := s.lookup(p)
+	if !ok || !e.Mode.IsFile() {
 		return plumbing.ZeroHash, false, false
 	}
 	return e.Hash, e.Mode == filemode.Symlink, true
+}
+
+// lookup returns the tree entry of path in a commit's snapshot, decoding
+// each folder on the way at most once.
+func (s *Snapshot) lookup(p string) (object.TreeEntry, bool) {
+	s.foldersMu.Lock()
+	defer s.foldersMu.Unlock()
+	dir, name := "", p
+	for {
+		entries, err := s.folder(dir)
+		if err != nil {
+			return object.TreeEntry{}, false
+		}
+		first, rest, more := strings.Cut(name, "/")
+		e, ok := entries[first]
+		if !ok || !more {
+			return e, ok
+		}
+		if e.Mode != filemode.Dir {
+			return object.TreeEntry{}, false
+		}
+		dir, name = path.Join(dir, first), rest
+	}
+}
+
+// folder returns the entries of a folder of the snapshot's tree, decoding
+// it on first use; the caller holds foldersMu and has looked up every
+// folder above it, so its entry is known.
+func (s *Snapshot) folder(dir string) (map[string]object.TreeEntry, error) {
+	if f, ok := s.folders[dir]; ok {
+		return f, nil
+	}
+	var h plumbing.Hash
+	if dir == "" {
+		h = s.tree.Hash
+	} else {
+		parent, base := path.Dir(dir), path.Base(dir)
+		if parent == "." {
+			parent = ""
+		}
+		e, ok := s.folders[parent][base]
+		if !ok || e.Mode != filemode.Dir {
+			return nil, fmt.Errorf("%s: not a folder of %s", dir, s.Label)
+		}
+		h = e.Hash
+	}
+	s.repo.mu.Lock()
+	t, err := s.repo.r.TreeObject(h)
+	s.repo.mu.Unlock()
+	if err != nil {
+		return nil, err
+	}
+	f := make(map[string]object.TreeEntry, len(t.Entries))
+	for _, e := range t.Entries {
+		f[e.Name] = e
+	}
+	if s.folders == nil {
+		s.folders = map[string]map[string]object.TreeEntry{}
+	}
+	s.folders[dir] = f
+	return f, nil
 }
 
 // Paths returns every file path in the snapshot, sorted.
@@ -306,6 +408,9 @@ func (s *Snapshot) list() error {
 		return nil
 	}
 	var paths, subs []string
+	// go-git's object store is shared with the measuring workers.
+	s.repo.mu.Lock()
+	defer s.repo.mu.Unlock()
 	w := object.NewTreeWalker(s.tree, true, nil)
 	defer w.Close()
 	// Listing only: no name reaches the file system, so a name git
@@ -352,11 +457,18 @@ const maxBlob = 8 << 30
 // Read returns the contents of path at the snapshot, with an LFS pointer
 // resolved from the repository's local LFS object store.
 func (s *Snapshot) Read(p string) ([]byte, error) {
+	return s.ReadInto(p, nil)
+}
+
+// ReadInto is Read into *buf, grown as needed and kept for the next call
+// (nil: a fresh slice). The bytes returned are valid until the next
+// ReadInto with the same buffer.
+func (s *Snapshot) ReadInto(p string, buf *[]byte) ([]byte, error) {
 	h, ok := s.Hash(p)
 	if !ok {
 		return nil, s.notThere(p)
 	}
-	return s.repo.readBlob(h, p, s.Label, s.fetchRef())
+	return s.repo.readBlob(h, p, s.Label, s.fetchRef(), buf)
 }
 
 // isFolder reports whether p is a folder in the snapshot.
@@ -369,25 +481,14 @@ func (s *Snapshot) isFolder(p string) bool {
 		}
 		return false
 	}
-	s.treeMu.Lock()
-	e, err := s.tree.FindEntry(p)
-	s.treeMu.Unlock()
-	return err == nil && e.Mode == filemode.Dir
+	e, ok := s.lookup(p)
+	return ok && e.Mode == filemode.Dir
 }
 
 // notThere says why a path has no file in the snapshot.
 func (s *Snapshot) notThere(p string) error {
 	if _, link, ok := s.entry(p); ok && link {
 		return fmt.Errorf("%s at %s is a symbolic link that dangles, loops or leaves the repository: point it at a file inside the repository", p, s.Label)
-	}
-	if s.tree != nil {
-		s.treeMu.Lock()
-		_, err := s.tree.FindEntry(p)
-		s.treeMu.Unlock()
-		if err != nil && !errors.Is(err, object.ErrEntryNotFound) && !errors.Is(err, object.ErrDirectoryNotFound) {
-			// go-git refuses some names git stores (control characters).
-			return fmt.Errorf("%s at %s cannot be read: %w", p, s.Label, err)
-		}
 	}
 	return fmt.Errorf("%s: not in %s", p, s.Label)
 }
@@ -401,30 +502,108 @@ func (s *Snapshot) fetchRef() string {
 	return s.Commit.String()
 }
 
-func (r *Repo) readBlob(h plumbing.Hash, p, label, fetchRef string) ([]byte, error) {
-	blob, err := r.r.BlobObject(h)
-	if err != nil {
+func (r *Repo) readBlob(h plumbing.Hash, p, label, fetchRef string, buf *[]byte) ([]byte, error) {
+	data, err := r.streamBlob(h, maxBlob, buf)
+	switch {
+	case errors.Is(err, errBlobMissing):
 		return nil, &EnvError{Err: fmt.Errorf("%s at %s: blob %s is missing from the object store: %w", p, label, h, err), Hint: "fetch the revision's objects (git fetch)"}
-	}
-	if blob.Size > maxBlob {
-		return nil, fmt.Errorf("%s at %s: %d bytes is larger than loadline reads (%d)", p, label, blob.Size, int64(maxBlob))
-	}
-	rd, err := blob.Reader()
-	if err != nil {
-		return nil, &EnvError{Err: fmt.Errorf("%s at %s: %w", p, label, err)}
-	}
-	defer rd.Close()
-	data := make([]byte, blob.Size)
-	if _, err := io.ReadFull(rd, data); err != nil {
+	case errors.Is(err, errBlobTooLarge):
+		return nil, fmt.Errorf("%s at %s: %w", p, label, err)
+	case err != nil:
 		return nil, &EnvError{Err: fmt.Errorf("%s at %s: reading blob %s: %w", p, label, h, err)}
 	}
 	if ptr, ok := parseLFSPointer(data); ok {
-		return r.readLFS(ptr, p, label, fetchRef)
+		return r.readLFS(ptr, p, label, fetchRef, buf)
 	}
 	if len(data) <= maxLFSPointer && bytes.HasPrefix(data, []byte(lfsVersionPrefix)) {
 		return nil, fmt.Errorf("%s at %s is a Git LFS pointer that does not parse (it needs an \"oid sha256:<64 hex digits>\" line and a \"size <bytes>\" line): commit the model again with Git LFS installed (git lfs install, then git add --renormalize %s)", p, label, p)
 	}
 	return data, nil
+}
+
+var (
+	errBlobMissing  = errors.New("not in the object store")
+	errBlobTooLarge = errors.New("blob too large")
+)
+
+// streamBlob reads a blob of at most limit bytes into *buf (grown as
+// needed; nil buf: a fresh slice): through git cat-file when it can
+// (catfile.go says why), else from go-git. go-git's object store is locked
+// only to find the blob and open its stream: a large blob streams from its
+// own file descriptor while the other workers look up theirs.
+//
+// Integrity: go-git does not compare an object's content with its id on
+// read (nor does git cat-file); what catches a damaged object is zlib's
+// Adler-32 checksum, which the inflater checks at the end of the stream.
+// The stream is therefore always read to its end, and a blob longer or
+// shorter than its header says is an error.
+func (r *Repo) streamBlob(h plumbing.Hash, limit int64, buf *[]byte) ([]byte, error) {
+	if p := r.cat.get(); p != nil {
+		data, ok, err := p.read(h, limit, buf)
+		r.cat.put(p, ok)
+		switch {
+		case err == nil:
+			return data, nil
+		case errors.Is(err, errBlobTooLarge):
+			return nil, err
+		case !ok:
+			// git cannot serve this repository (an ownership refusal, a
+			// process that died): go-git reads the rest.
+			r.cat.disable()
+		}
+		// A missing object, or one that is no blob: go-git says so in
+		// its own words.
+	}
+	r.mu.Lock()
+	blob, err := r.r.BlobObject(h)
+	if err != nil {
+		r.mu.Unlock()
+		return nil, fmt.Errorf("%w: %w", errBlobMissing, err)
+	}
+	if blob.Size > limit {
+		r.mu.Unlock()
+		return nil, fmt.Errorf("%w: %d bytes is larger than loadline reads (%d)", errBlobTooLarge, blob.Size, limit)
+	}
+	rd, err := blob.Reader()
+	r.mu.Unlock()
+	if err != nil {
+		return nil, err
+	}
+	defer rd.Close()
+	var data []byte
+	if buf == nil {
+		data = make([]byte, blob.Size)
+	} else {
+		if int64(cap(*buf)) < blob.Size {
+			*buf = make([]byte, blob.Size)
+		}
+		data = (*buf)[:blob.Size]
+	}
+	if _, err := io.ReadFull(rd, data); err != nil {
+		return nil, err
+	}
+	if err := atEnd(rd); err != nil {
+		return nil, err
+	}
+	return data, nil
+}
+
+// atEnd reads a stream to its end (where zlib checks its checksum) and
+// fails if any byte is left.
+func atEnd(rd io.Reader) error {
+	var one [1]byte
+	for {
+		n, err := rd.Read(one[:])
+		if n > 0 {
+			return errors.New("the object is longer than its header says")
+		}
+		if errors.Is(err, io.EOF) {
+			return nil
+		}
+		if err != nil {
+			return err
+		}
+	}
 }
 
 // lfsVersionPrefix starts every Git LFS pointer file; maxLFSPointer is the
@@ -469,24 +648,39 @@ func parseLFSPointer(b []byte) (lfsPointer, bool) {
 	return p, true
 }
 
-func (r *Repo) readLFS(ptr lfsPointer, p, label, fetchRef string) ([]byte, error) {
+func (r *Repo) readLFS(ptr lfsPointer, p, label, fetchRef string, buf *[]byte) ([]byte, error) {
 	obj := filepath.Join(r.CommonDir, "lfs", "objects", ptr.OID[0:2], ptr.OID[2:4], ptr.OID)
-	st, err := os.Stat(obj)
+	f, err := os.Open(obj)
+	var st os.FileInfo
+	if err == nil {
+		defer f.Close()
+		st, err = f.Stat()
+	}
 	if err != nil {
 		return nil, &EnvError{
 			Err:  fmt.Errorf("%s at %s is a Git LFS pointer (oid %s…, %d bytes) and the object is not in the local LFS store", p, label, ptr.OID[:12], ptr.Size),
 			Hint: "fetch it: git lfs fetch origin " + fetchRef + " (on CI, check out with lfs: true)",
 		}
 	}
-	if st.Size() != ptr.Size || ptr.Size > maxBlob {
+	if !st.Mode().IsRegular() || st.Size() != ptr.Size || ptr.Size > maxBlob {
 		return nil, &EnvError{Err: fmt.Errorf("%s at %s: LFS object %s has %d bytes, its pointer says %d", p, label, ptr.OID[:12], st.Size(), ptr.Size), Hint: "refetch it: git lfs fetch --all"}
 	}
-	data, err := os.ReadFile(obj)
-	if err != nil {
-		return nil, &EnvError{Err: err}
+	var data []byte
+	if buf == nil {
+		data = make([]byte, ptr.Size)
+	} else {
+		if int64(cap(*buf)) < ptr.Size {
+			*buf = make([]byte, ptr.Size)
+		}
+		data = (*buf)[:ptr.Size]
 	}
-	sum := sha256.Sum256(data)
-	if hex.EncodeToString(sum[:]) != ptr.OID {
+	// The pointer's blob is read into the same buffer first; it is
+	// parsed already and no longer needed.
+	sum := sha256.New()
+	if _, err := io.ReadFull(io.TeeReader(f, sum), data); err != nil {
+		return nil, &EnvError{Err: fmt.Errorf("%s at %s: reading LFS object %s: %w", p, label, ptr.OID[:12], err)}
+	}
+	if hex.EncodeToString(sum.Sum(nil)) != ptr.OID {
 		return nil, &EnvError{Err: fmt.Errorf("%s at %s: LFS object %s is corrupt (its sha256 does not match)", p, label, ptr.OID[:12]), Hint: "refetch it: git lfs fetch --all"}
 	}
 	return data, nil
@@ -569,7 +763,9 @@ func Diff(base, head *Snapshot, want func(p string) bool) ([]FileChange, error) 
 }
 
 func diffTrees(base, head *Snapshot, want func(p string) bool) ([]FileChange, error) {
+	base.repo.mu.Lock()
 	changes, err := object.DiffTreeWithOptions(context.Background(), base.tree, head.tree, &object.DiffTreeOptions{DetectRenames: true, RenameScore: 60, RenameLimit: 1000})
+	base.repo.mu.Unlock()
 	if err != nil {
 		return nil, &EnvError{Err: fmt.Errorf("diffing %s..%s: %w", base.Label, head.Label, err)}
 	}
@@ -652,17 +848,5 @@ func linkTarget(link, target string) (string, error) {
 // readRawBlob returns a blob's bytes as stored, without LFS resolution,
 // refusing a blob larger than limit bytes.
 func (r *Repo) readRawBlob(h plumbing.Hash, limit int64) ([]byte, error) {
-	blob, err := r.r.BlobObject(h)
-	if err != nil {
-		return nil, err
-	}
-	if blob.Size > limit {
-		return nil, fmt.Errorf("blob %s has %d bytes, more than %d", h, blob.Size, limit)
-	}
-	rd, err := blob.Reader()
-	if err != nil {
-		return nil, err
-	}
-	defer rd.Close()
-	return io.ReadAll(io.LimitReader(rd, limit))
+	return r.streamBlob(h, limit, nil)
 }

@@ -317,19 +317,26 @@ func TestCacheWarmAndCorrupt(t *testing.T) {
 	if dims.Measured.Load() != 1 {
 		t.Error("a different --dim reused a cached entry")
 	}
-	// So are the per-layer view and the deployed view's rewrites: an
-	// entry without layers cannot answer a check that reports them.
+	// An entry measured without the per-layer view cannot answer a check
+	// that reports it; once measured with it, both are answered.
 	var layers Stats
 	if m := measureBlobs(jobs[:1], measure.Options{Layers: true}, cache, &layers)[0]; layers.Measured.Load() != 1 || len(m.Layers) == 0 {
 		t.Errorf("Layers: measured %d, %d layers; an entry without the per-layer view was reused", layers.Measured.Load(), len(m.Layers))
 	}
+	var layersWarm Stats
+	if m := measureBlobs(jobs[:1], measure.Options{Layers: true}, cache, &layersWarm)[0]; layersWarm.CacheHits.Load() != 1 || len(m.Layers) == 0 {
+		t.Errorf("Layers again: hits %d, %d layers; want the per-layer view from the cache", layersWarm.CacheHits.Load(), len(m.Layers))
+	}
+	// The deployed view's rewrites are a different key.
 	var deploy Stats
 	inPlace := measure.DefaultDeployOptions()
 	inPlace.InPlaceDepthwise = true
 	if measureBlobs(jobs[:1], measure.Options{Deploy: &inPlace}, cache, &deploy); deploy.Measured.Load() != 1 {
 		t.Error("other deployed-view rewrites reused a cached entry")
 	}
-	// Corrupt every entry: ignored, measured again, rewritten.
+	// Corrupt every pack: ignored, measured again, rewritten.
+	cache.Flush()
+	cache = NewCache(r)
 	filepath.Walk(cache.Dir, func(p string, info os.FileInfo, err error) error {
 		if err == nil && !info.IsDir() {
 			os.WriteFile(p, []byte("{not json"), 0o644)
@@ -341,6 +348,8 @@ func TestCacheWarmAndCorrupt(t *testing.T) {
 	if again.Measured.Load() != 2 {
 		t.Fatalf("corrupt entries were used: measured %d", again.Measured.Load())
 	}
+	cache.Flush()
+	cache = NewCache(r)
 	var healed Stats
 	measureBlobs(jobs, measure.Options{}, cache, &healed)
 	if healed.CacheHits.Load() != 2 {

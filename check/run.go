@@ -43,6 +43,11 @@ type Options struct {
 	// Bindings from the command line apply to every model, over the
 	// budget rules' dims: and inputs:.
 	Bindings Bindings
+	// Detail fills each model's per-layer detail (heaviest layers, live
+	// memory over the schedule), which the markdown report shows; without
+	// it the per-layer view is measured, or read from the cache, only for
+	// the models of a device with a target.
+	Detail bool
 }
 
 // BudgetFileError is a budget file that cannot be used (exit 2).
@@ -151,6 +156,7 @@ func Run(o Options) (*budget.Result, *Stats, error) {
 	if err != nil {
 		return nil, nil, err
 	}
+	defer r.Close()
 	if o.All {
 		return Audit(r, o.Head, o)
 	}
@@ -407,6 +413,7 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	var cache *Cache
 	if !o.NoCache {
 		cache = NewCache(r)
+		defer cache.Close()
 	}
 	stats := &Stats{}
 	var jobs []blobJob
@@ -440,7 +447,7 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 			dims = append(dims, dimsFor(rulePath))
 		}
 	}
-	metrics, deps := measureJobs(jobs, dims, runsTogether(inForce), cache, stats)
+	metrics, deps := measureJobs(jobs, dims, runsTogether(inForce), o.Detail || withTarget(files...), cache, stats)
 	changes, pairs = dropUnreadData(changes, pairs, all, metrics, deps)
 	// A missing object is the environment's fault, not the model's.
 	if err := envError(metrics); err != nil {
@@ -475,14 +482,18 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 	} else {
 		res = inForce.Evaluate(inputs, eo)
 	}
+	headJob := make(map[string]int, len(changes))
+	for j, c := range changes {
+		if pairs[j].head >= 0 {
+			headJob[c.Path] = pairs[j].head
+		}
+	}
 	for i := range res.Models {
 		if res.Models[i].Change == budget.Unchanged {
 			res.Models[i].Notes = append(res.Models[i].Notes, "not changed: judged again because the budget file's rules for it changed")
 		}
-		for j, c := range changes {
-			if c.Path == res.Models[i].Path && pairs[j].head >= 0 {
-				res.Models[i].Detail = DetailOf(metrics[pairs[j].head])
-			}
+		if j, ok := headJob[res.Models[i].Path]; ok && o.Detail {
+			res.Models[i].Detail = DetailOf(metrics[j])
 		}
 	}
 	res.Base = budget.Revision{Ref: rg.BaseRef, Commit: commitOf(rg.Base)}
@@ -654,8 +665,9 @@ func concerns(changes []budget.BudgetChange, base, head *budget.File, p string) 
 
 // measureJobs measures blobs, each with its dims, sharing one pool per set
 // of dims, with the cache; it returns each job's figures and the files
-// besides the model that its measurement read.
-func measureJobs(jobs []blobJob, dims []*boundSet, digests bool, cache *Cache, stats *Stats) ([]*measure.Metrics, [][]string) {
+// besides the model that its measurement read. With layers the figures
+// carry the per-layer view (measured, or read from the cache, only then).
+func measureJobs(jobs []blobJob, dims []*boundSet, digests, layers bool, cache *Cache, stats *Stats) ([]*measure.Metrics, [][]string) {
 	metrics := make([]*measure.Metrics, len(jobs))
 	deps := make([][]string, len(jobs))
 	groups := map[string][]int{}
@@ -673,13 +685,29 @@ func measureJobs(jobs []blobJob, dims []*boundSet, digests bool, cache *Cache, s
 		for j, i := range idx {
 			sub[j] = jobs[i]
 		}
-		out := measureBlobs(sub, dims[idx[0]].options(measure.Options{Layers: true, Digests: digests}), cache, stats)
+		out := measureBlobs(sub, dims[idx[0]].options(measure.Options{Layers: layers, Digests: digests}), cache, stats)
 		for j, i := range idx {
 			metrics[i], deps[i] = out[j].Metrics, out[j].deps
 			dims[i].judge(metrics[i])
 		}
 	}
 	return metrics, deps
+}
+
+// withTarget reports whether a device of the budget files names a target:
+// its estimates are made from the per-layer view.
+func withTarget(files ...*budget.File) bool {
+	for _, f := range files {
+		if f == nil {
+			continue
+		}
+		for _, d := range f.Devices {
+			if d != nil && d.Target != nil {
+				return true
+			}
+		}
+	}
+	return false
 }
 
 // envError is the first measurement error caused by a missing object: the

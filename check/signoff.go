@@ -56,6 +56,7 @@ func Signoff(o SignoffOptions) (*budget.Signoff, *Stats, error) {
 	if err != nil {
 		return nil, nil, err
 	}
+	defer r.Close()
 	rev := o.Rev
 	if rev == "" {
 		rev = "HEAD"
@@ -80,6 +81,7 @@ func Signoff(o SignoffOptions) (*budget.Signoff, *Stats, error) {
 	var cache *Cache
 	if !o.NoCache {
 		cache = NewCache(r)
+		defer cache.Close()
 	}
 	stats := &Stats{}
 	out := &budget.Signoff{
@@ -162,7 +164,8 @@ func oneLineErr(err error) string {
 // Waivers expire by the revision's own date, as they stood when it was
 // made. It is the audit's core (judgeSnapshot), as check --all runs it.
 func judgeAll(s *Snapshot, f *budget.File, bpath string, day time.Time, strict bool, cache *Cache, stats *Stats) (*budget.Result, error) {
-	return judgeSnapshot(s, f, bpath, budget.EvalOptions{Strict: strict, Today: day}, Bindings{}, cache, stats, nil)
+	// The sign-off shows every model's live memory over its schedule.
+	return judgeSnapshot(s, f, bpath, budget.EvalOptions{Strict: strict, Today: day}, Bindings{}, true, cache, stats, nil)
 }
 
 type releaseTag struct {

@@ -39,46 +39,55 @@ type blobJob struct {
 }
 
 // measured is one job's figures and the repository paths of the external
-// data files they were read with.
+// data files they were read with. The figures carry the per-layer view
+// (Layers, LiveBytesByStep) when it was asked for, and only then, whether
+// they were measured now or read from the cache.
 type measured struct {
 	*measure.Metrics
 	deps []string
 }
 
-// measureBlobs measures each job in a pool bounded by the number of CPUs;
-// each worker holds one model in memory at a time.
+// measureBlobs measures each job in a pool of one worker per CPU; each
+// worker reads its models into one buffer it reuses, and holds one model
+// in memory at a time.
 func measureBlobs(jobs []blobJob, opts measure.Options, cache *Cache, stats *Stats) []measured {
 	out := make([]measured, len(jobs))
+	next := make(chan int)
 	var wg sync.WaitGroup
-	sem := make(chan struct{}, max(1, runtime.NumCPU()))
-	for i, j := range jobs {
+	for range min(len(jobs), max(1, runtime.NumCPU())) {
 		wg.Add(1)
-		sem <- struct{}{}
 		go func() {
 			defer wg.Done()
-			defer func() { <-sem }()
-			out[i] = measureBlob(j.snap, j.path, opts, cache, stats)
+			var buf []byte
+			for i := range next {
+				out[i] = measureBlob(jobs[i].snap, jobs[i].path, opts, cache, stats, &buf)
+			}
 		}()
 	}
+	for i := range jobs {
+		next <- i
+	}
+	close(next)
 	wg.Wait()
 	return out
 }
 
 // measureBlob reads one model from the git object store at a snapshot
-// (never from the working tree: what is checked is what is committed) and
-// measures it, using the cache when it can.
-func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stats *Stats) measured {
+// (never from the working tree: what is checked is what is committed) into
+// buf and measures it, using the cache when it can. Nothing returned
+// refers to buf.
+func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stats *Stats, buf *[]byte) measured {
 	h, ok := s.Hash(p)
 	if !ok {
 		return measured{Metrics: failed(p, s.notThere(p))}
 	}
-	key := cacheKey(h.String(), opts)
+	key := keyOf(h.String(), opts)
 	// External data is resolved against the model's own folder, and the
 	// same blob may sit in two folders with different data beside it: the
 	// cache records dependencies relative to the folder and checks them
 	// against this copy's folder.
 	dir := path.Dir(p)
-	if m, deps := cache.Get(key, func(dep, blob string) bool {
+	if m, deps := cache.Get(key, opts.Layers, func(dep, blob string) bool {
 		dh, ok := s.Hash(path.Join(dir, dep))
 		return ok && dh.String() == blob
 	}); m != nil {
@@ -86,7 +95,7 @@ func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stat
 		m.Path = p
 		return measured{m, repoPaths(dir, deps)}
 	}
-	data, err := s.Read(p)
+	data, err := s.ReadInto(p, buf)
 	if err != nil {
 		return measured{Metrics: failed(p, err)}
 	}
@@ -114,7 +123,7 @@ func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stat
 		return measured{Metrics: met}
 	}
 	stats.Measured.Add(1)
-	cache.Put(key, met, deps)
+	cache.Put(key, met, deps, opts.Layers)
 	return measured{met, repoPaths(dir, deps)}
 }
 

@@ -51,3 +51,42 @@ func BenchmarkMeasureLarge(b *testing.B) {
 		}
 	}
 }
+
+var (
+	nodesOnce  sync.Once
+	nodesBytes []byte
+	nodesErr   error
+)
+
+// BenchmarkMeasureNodes100k decodes and measures a model of about 100,000
+// small nodes (benchmodel.BuildNodes): the cost per node, where
+// BenchmarkMeasureLarge is the cost per weight byte.
+func BenchmarkMeasureNodes100k(b *testing.B) {
+	nodesOnce.Do(func() {
+		m, err := benchmodel.BuildNodes(100_000)
+		if err != nil {
+			nodesErr = err
+			return
+		}
+		nodesBytes, nodesErr = onnx.Encode(m)
+	})
+	if nodesErr != nil {
+		b.Fatal(nodesErr)
+	}
+	b.SetBytes(int64(len(nodesBytes)))
+	b.ReportAllocs()
+	b.ResetTimer()
+	for b.Loop() {
+		m, err := onnx.Decode(nodesBytes, onnx.Options{Path: "nodes.onnx"})
+		if err != nil {
+			b.Fatal(err)
+		}
+		met, err := Measure(m, int64(len(nodesBytes)), Options{Dims: map[string]int64{"batch": 1}})
+		if err != nil {
+			b.Fatal(err)
+		}
+		if met.Nodes < 100_000 || len(met.Unresolved) > 0 {
+			b.Fatalf("%d nodes, unresolved %v", met.Nodes, met.Unresolved)
+		}
+	}
+}

@@ -176,6 +176,9 @@ func newCheckCmd(stdin io.Reader, stdout, stderr io.Writer) *cobra.Command {
 				return &exitError{exitUsage, err}
 			}
 			o.Progress = stderr
+			// Only the markdown report (which --post posts) shows the
+			// per-layer detail.
+			o.Detail = rf.format == "markdown" || post
 			res, stats, err := check.Run(o)
 			if err != nil {
 				return pipelineExit(err)

@@ -400,7 +400,7 @@ func newDemoCmd(stdout, stderr io.Writer) *cobra.Command {
 			fmt.Fprintln(stdout, "\n== loadline check (branch retrain-160 against main) ==")
 			// The demo repository is its own world: no CI variable (a pull
 			// request's GITHUB_BASE_REF) may choose its base.
-			res, _, err := check.Run(check.Options{Dir: dir, Base: "main", Getenv: func(string) string { return "" }, Today: check.DemoToday})
+			res, _, err := check.Run(check.Options{Dir: dir, Base: "main", Detail: true, Getenv: func(string) string { return "" }, Today: check.DemoToday})
 			if err != nil {
 				return pipelineExit(err)
 			}

@@ -33,3 +33,22 @@ func BuildSeeded(mb int, seed uint64) (*model.Model, error) {
 	b.Output(x)
 	return b.Model()
 }
+
+// BuildNodes returns a model of about n nodes and little weight, as deep
+// exported networks of small layers are: blocks of MatMul (a 16×16
+// weight), Add (a 16-element bias) and Relu on x [batch, 16], every tenth
+// block followed by a Reshape to [-1, 16] whose shape is a constant.
+func BuildNodes(n int) (*model.Model, error) {
+	b := build.New(fmt.Sprintf("bench-%dnodes", n), 13)
+	x := b.InputShape("x", model.Float32, model.Shape{model.Sym("batch"), model.Known(16)})
+	for i := 0; b.Err() == nil && i*3 < n; i++ {
+		x = b.MatMul(fmt.Sprintf("mm%d", i), x, b.Weight(fmt.Sprintf("w%d", i), model.Float32, 16, 16))
+		x = b.Add(fmt.Sprintf("add%d", i), x, b.Weight(fmt.Sprintf("b%d", i), model.Float32, 16))
+		x = b.Relu(fmt.Sprintf("relu%d", i), x)
+		if i%10 == 9 {
+			x = b.Reshape(fmt.Sprintf("reshape%d", i), x, -1, 16)
+		}
+	}
+	b.Output(x)
+	return b.Model()
+}

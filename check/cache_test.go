@@ -1,0 +1,256 @@
+package check
+
+import (
+	"bytes"
+	"errors"
+	"math/rand"
+	"os"
+	"path/filepath"
+	"runtime"
+	"strings"
+	"testing"
+
+	"github.com/go-git/go-git/v5/plumbing"
+
+	"github.com/loadline/loadline/measure"
+)
+
+// cacheFixture is a commit of two models of different widths (params
+// 32·8+4 = 260 and 32·12+4 = 388, from smallModel's definition), measured
+// once with the per-layer view so that the cache's pack holds their
+// entries.
+func cacheFixture(t *testing.T) (*Repo, []blobJob, []measured) {
+	t.Helper()
+	g := newGitRepo(t)
+	g.write("a.onnx", smallModel(t, 8))
+	g.write("b.onnx", smallModel(t, 12))
+	g.commit("base")
+	r, s := snapshotAt(t, g.dir, "HEAD")
+	jobs := []blobJob{{s, "a.onnx"}, {s, "b.onnx"}}
+	first, st := cachedRun(r, jobs)
+	if st.Measured.Load() != 2 || first[0].Params == first[1].Params {
+		t.Fatalf("cold: measured %d, params %d and %d", st.Measured.Load(), first[0].Params, first[1].Params)
+	}
+	return r, jobs, first
+}
+
+// cachedRun measures jobs as one run of check does: a cache opened for the
+// run, written when it ends.
+func cachedRun(r *Repo, jobs []blobJob) ([]measured, *Stats) {
+	cache := NewCache(r)
+	defer cache.Close()
+	var st Stats
+	out := measureBlobs(jobs, measure.Options{Layers: true}, cache, &st)
+	cache.Flush()
+	return out, &st
+}
+
+// entryOf is the stored bytes of a job's entry of one kind.
+func entryOf(t *testing.T, r *Repo, j blobJob, kind byte) []byte {
+	t.Helper()
+	h, _ := j.snap.Hash(j.path)
+	c := NewCache(r)
+	defer c.Close()
+	b, ok := c.lookup(keyOf(h.String(), measure.Options{Layers: true}).pack(kind), maxDetailEntry)
+	if !ok {
+		t.Fatalf("%s: no entry of kind %c", j.path, kind)
+	}
+	return b
+}
+
+// replacePacks removes every pack of the cache and writes one holding
+// entries.
+func replacePacks(t *testing.T, r *Repo, entries map[packKey][]byte) {
+	t.Helper()
+	c := NewCache(r)
+	for _, p := range c.packPaths() {
+		os.Remove(p)
+	}
+	if _, err := writePack(c.Dir, entries); err != nil {
+		t.Fatal(err)
+	}
+}
+
+// TestCachePackLinkedToDevZero: a pack that is a symbolic link to
+// /dev/zero is refused without reading it (an entry linked there took a
+// check to 6.1 GB): the models are measured again and written to a new
+// pack, which the next run uses.
+func TestCachePackLinkedToDevZero(t *testing.T) {
+	if runtime.GOOS == "windows" {
+		t.Skip("no /dev/zero")
+	}
+	r, jobs, first := cacheFixture(t)
+	for _, p := range NewCache(r).packPaths() {
+		os.Remove(p)
+		if err := os.Symlink("/dev/zero", p); err != nil {
+			t.Fatal(err)
+		}
+	}
+	got, st := cachedRun(r, jobs)
+	if st.Measured.Load() != 2 || st.CacheHits.Load() != 0 || got[0].Params != first[0].Params {
+		t.Fatalf("linked pack: measured %d, hits %d, params %d (want both measured again, params %d)", st.Measured.Load(), st.CacheHits.Load(), got[0].Params, first[0].Params)
+	}
+	if _, st := cachedRun(r, jobs); st.CacheHits.Load() != 2 {
+		t.Errorf("after the rewrite: hits %d, want 2", st.CacheHits.Load())
+	}
+}
+
+// TestCacheEntryForgedForAnotherBlob: an entry copied from another blob's
+// key (or made by another analyzer version, or under other options) is a
+// miss: the model is measured again and reported with its own figures.
+func TestCacheEntryForgedForAnotherBlob(t *testing.T) {
+	r, jobs, first := cacheFixture(t)
+	key := func(j blobJob, kind byte) packKey {
+		h, _ := j.snap.Hash(j.path)
+		return keyOf(h.String(), measure.Options{Layers: true}).pack(kind)
+	}
+	aFig, aDetail := entryOf(t, r, jobs[0], kindFigures), entryOf(t, r, jobs[0], kindDetail)
+	replacePacks(t, r, map[packKey][]byte{
+		key(jobs[0], kindFigures): aFig, key(jobs[0], kindDetail): aDetail,
+		key(jobs[1], kindFigures): aFig, key(jobs[1], kindDetail): aDetail, // a's figures under b's key
+	})
+	got, st := cachedRun(r, jobs)
+	if st.Measured.Load() != 1 || st.CacheHits.Load() != 1 || got[1].Params != first[1].Params {
+		t.Fatalf("forged entry: measured %d, hits %d, b's params %d; want b.onnx measured again with its own params %d (the forged entry says %d)", st.Measured.Load(), st.CacheHits.Load(), got[1].Params, first[1].Params, first[0].Params)
+	}
+	// The entry is rewritten for its own blob: the next run hits.
+	if _, st := cachedRun(r, jobs[1:]); st.CacheHits.Load() != 1 {
+		t.Errorf("the forged entry was not rewritten: hits %d", st.CacheHits.Load())
+	}
+	// Another analyzer version's entry, or one made under other options,
+	// stored under a's key, is a miss too.
+	for _, c := range []struct{ what, from, to string }{
+		{"version", `"version":"` + AnalyzerVersion + `"`, `"version":"loadline-figures-0"`},
+		{"options", `"options":"deploy=`, `"options":"batch=4\u0000deploy=`},
+	} {
+		changed := strings.Replace(string(aFig), c.from, c.to, 1)
+		if changed == string(aFig) {
+			t.Fatalf("%s: %q is not in the entry %s", c.what, c.from, aFig)
+		}
+		replacePacks(t, r, map[packKey][]byte{key(jobs[0], kindFigures): []byte(changed), key(jobs[0], kindDetail): aDetail})
+		if _, st := cachedRun(r, jobs[:1]); st.Measured.Load() != 1 {
+			t.Errorf("an entry of another %s was used", c.what)
+		}
+	}
+}
+
+// TestCachePackRefused: what is not a regular file, and a pack whose index
+// claims more than the file holds, are refused; a pack read back gives
+// what was written.
+func TestCachePackRefused(t *testing.T) {
+	dir := t.TempDir()
+	k := packKey{1, 2, 3}
+	p, err := writePack(dir, map[packKey][]byte{k: []byte("entry")})
+	if err != nil {
+		t.Fatal(err)
+	}
+	pk, err := openPack(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if b, ok := pk.get(k, 5); !ok || string(b) != "entry" {
+		t.Errorf("entry read back: %q, %v", b, ok)
+	}
+	if _, ok := pk.get(k, 4); ok {
+		t.Error("an entry over its bound was read")
+	}
+	pk.f.Close()
+	if _, err := openPack(dir); err == nil {
+		t.Error("a folder was opened as a pack")
+	}
+	link := filepath.Join(dir, "link"+packSuffix)
+	if err := os.Symlink(p, link); err == nil {
+		if _, err := openPack(link); err == nil {
+			t.Error("a symbolic link was followed")
+		}
+	}
+	// A count of 1,000 records (33 bytes each) in a file of a few bytes.
+	claim := filepath.Join(dir, "claim"+packSuffix)
+	os.WriteFile(claim, append([]byte(packMagic), 0xe8, 0x03, 0, 0), 0o644)
+	if _, err := openPack(claim); err == nil {
+		t.Error("an index larger than its file was accepted")
+	}
+}
+
+// TestLargeBlobChecksumVerified: a blob above the streaming threshold is
+// read to the end of its zlib stream, so a damaged object fails on the
+// Adler-32 checksum (RFC 1950) instead of being measured; reading exactly
+// the size the header gives would never look at it. Both readers, git
+// cat-file and go-git, refuse it.
+func TestLargeBlobChecksumVerified(t *testing.T) {
+	g := newGitRepo(t)
+	data := make([]byte, 2*largeObject)
+	rand.New(rand.NewSource(1)).Read(data)
+	g.write("big.bin", data)
+	g.commit("big")
+	id := g.git("rev-parse", "HEAD:big.bin")
+	r, s := snapshotAt(t, g.dir, "HEAD")
+	got, err := s.ReadInto("big.bin", new([]byte))
+	if err != nil || !bytes.Equal(got, data) {
+		t.Fatalf("intact blob: %d bytes, %v", len(got), err)
+	}
+	r.Close()
+	loose := filepath.Join(g.dir, ".git", "objects", id[:2], id[2:])
+	obj, err := os.ReadFile(loose)
+	if err != nil {
+		t.Fatalf("the blob is not loose: %v", err)
+	}
+	obj[len(obj)-1] ^= 0xff // the last byte of the zlib stream's Adler-32
+	os.Chmod(loose, 0o644)
+	if err := os.WriteFile(loose, obj, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, reader := range []string{"git", "go-git"} {
+		t.Setenv("LOADLINE_GIT_READER", strings.TrimPrefix(reader, "git"))
+		r, s := snapshotAt(t, g.dir, "HEAD")
+		// git refuses the object and stops; go-git then reads it and
+		// finds the checksum wrong.
+		if _, err := s.ReadInto("big.bin", new([]byte)); err == nil || !strings.Contains(err.Error(), "checksum") {
+			t.Errorf("%s: damaged blob: %v; want a checksum error", reader, err)
+		}
+		r.Close()
+	}
+}
+
+// TestBlobReadersAgree: git cat-file and go-git (the fallback) read the
+// same bytes, for small and large blobs, loose and packed; a missing blob
+// is an environment error either way.
+func TestBlobReadersAgree(t *testing.T) {
+	g := newGitRepo(t)
+	big := make([]byte, 2*largeObject+17)
+	rand.New(rand.NewSource(2)).Read(big)
+	g.write("big.bin", big)
+	g.write("small.bin", []byte("small"))
+	g.commit("blobs")
+	for _, packed := range []bool{false, true} {
+		if packed {
+			g.git("gc", "-q")
+		}
+		for _, reader := range []string{"git", "go-git"} {
+			if reader == "go-git" {
+				t.Setenv("LOADLINE_GIT_READER", "go-git")
+			} else {
+				t.Setenv("LOADLINE_GIT_READER", "")
+			}
+			r, s := snapshotAt(t, g.dir, "HEAD")
+			buf := new([]byte)
+			for p, want := range map[string][]byte{"big.bin": big, "small.bin": []byte("small")} {
+				got, err := s.ReadInto(p, buf)
+				if err != nil || !bytes.Equal(got, want) {
+					t.Errorf("packed %v, %s: %s read %d bytes, %v", packed, reader, p, len(got), err)
+				}
+			}
+			if used := len(r.cat.all) > 0; used != (reader == "git") {
+				t.Errorf("packed %v, %s: cat-file processes started: %v", packed, reader, used)
+			}
+			var missing plumbing.Hash
+			missing[0] = 1
+			_, err := r.readBlob(missing, "gone.onnx", "HEAD", "HEAD", buf)
+			var env *EnvError
+			if !errors.As(err, &env) || !strings.Contains(err.Error(), "missing from the object store") {
+				t.Errorf("packed %v, %s: a missing blob gave %v", packed, reader, err)
+			}
+			r.Close()
+		}
+	}
+}

@@ -1,0 +1,324 @@
+package check
+
+import (
+	"bufio"
+	"bytes"
+	"crypto/rand"
+	"encoding/binary"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"sort"
+	"strings"
+	"sync"
+	"syscall"
+)
+
+// A cache pack is one file of entries with a sorted index in front:
+//
+//	magic   "loadline-cache-pack-1\n"
+//	count   uint32, little-endian
+//	index   count × (key [21]byte, offset uint64, length uint32), by key
+//	data    the entries, each a JSON document
+//
+// A key is the 20-byte digest of a cacheKey and one byte for the kind of
+// entry (figures or detail). A pack is written once, to a temporary file
+// renamed into place, and never changed.
+const packMagic = "loadline-cache-pack-1\n"
+
+const (
+	kindFigures byte = 'f'
+	kindDetail  byte = 'd'
+
+	packKeyLen    = 21
+	packRecordLen = packKeyLen + 8 + 4
+	packSuffix    = ".llpack"
+	// maxPackEntries bounds the index a pack may claim; maxPacks is how
+	// many packs may pile up before a run merges them into one.
+	maxPackEntries = 1 << 20
+	maxPacks       = 8
+)
+
+// packKey names one entry in a pack.
+type packKey [packKeyLen]byte
+
+func (k cacheKey) pack(kind byte) packKey {
+	var pk packKey
+	copy(pk[:], k.digest[:])
+	pk[20] = kind
+	return pk
+}
+
+// pack is one open pack file and its index.
+type pack struct {
+	path string
+	f    *os.File
+	size int64
+	keys []packKey
+	at   []packSpan
+}
+
+type packSpan struct {
+	off int64
+	n   int64
+}
+
+// openPack opens a pack for the run, refusing what is not a regular file
+// and an index that does not fit the file.
+func openPack(p string) (*pack, error) {
+	f, st, err := openRegular(p)
+	if err != nil {
+		return nil, err
+	}
+	fail := func(why string) (*pack, error) {
+		f.Close()
+		return nil, fmt.Errorf("%s: %s", p, why)
+	}
+	size := st.Size()
+	head := make([]byte, len(packMagic)+4)
+	if _, err := f.ReadAt(head, 0); err != nil || string(head[:len(packMagic)]) != packMagic {
+		return fail("not a cache pack")
+	}
+	n := int64(binary.LittleEndian.Uint32(head[len(packMagic):]))
+	start := int64(len(head))
+	if n > maxPackEntries || start+n*packRecordLen > size {
+		return fail("its index does not fit the file")
+	}
+	index := make([]byte, n*packRecordLen)
+	if _, err := f.ReadAt(index, start); err != nil {
+		return fail("its index cannot be read")
+	}
+	pk := &pack{path: p, f: f, size: size, keys: make([]packKey, n), at: make([]packSpan, n)}
+	for i := range pk.keys {
+		r := index[int64(i)*packRecordLen:]
+		copy(pk.keys[i][:], r[:packKeyLen])
+		pk.at[i] = packSpan{int64(binary.LittleEndian.Uint64(r[packKeyLen:])), int64(binary.LittleEndian.Uint32(r[packKeyLen+8:]))}
+		if i > 0 && bytes.Compare(pk.keys[i-1][:], pk.keys[i][:]) >= 0 {
+			return fail("its index is not sorted")
+		}
+	}
+	return pk, nil
+}
+
+// get returns the entry of a key, refusing one longer than limit or
+// outside the file.
+func (p *pack) get(k packKey, limit int64) ([]byte, bool) {
+	i := sort.Search(len(p.keys), func(i int) bool { return bytes.Compare(p.keys[i][:], k[:]) >= 0 })
+	if i == len(p.keys) || p.keys[i] != k {
+		return nil, false
+	}
+	s := p.at[i]
+	if s.n > limit || s.off < 0 || s.off > p.size-s.n {
+		return nil, false
+	}
+	b := make([]byte, s.n)
+	if _, err := p.f.ReadAt(b, s.off); err != nil {
+		return nil, false
+	}
+	return b, true
+}
+
+// openRegular opens a regular file for reading. A symbolic link, a device
+// (/dev/zero), a FIFO or a folder is refused before it is read: the file
+// is examined without following links, opened without blocking, and must
+// still be the same file once open.
+func openRegular(p string) (*os.File, os.FileInfo, error) {
+	lst, err := os.Lstat(p)
+	if err != nil {
+		return nil, nil, err
+	}
+	if !lst.Mode().IsRegular() {
+		return nil, nil, fmt.Errorf("%s: %w", p, errNotRegular)
+	}
+	f, err := os.OpenFile(p, os.O_RDONLY|syscall.O_NONBLOCK, 0)
+	if err != nil {
+		return nil, nil, err
+	}
+	st, err := f.Stat()
+	if err != nil {
+		f.Close()
+		return nil, nil, err
+	}
+	if !st.Mode().IsRegular() || !os.SameFile(lst, st) {
+		f.Close()
+		return nil, nil, fmt.Errorf("%s: %w", p, errNotRegular)
+	}
+	return f, st, nil
+}
+
+var errNotRegular = errors.New("not a regular file")
+
+// open opens the cache's packs, newest first, once per run; a pack that
+// cannot be used is skipped.
+func (c *Cache) open() {
+	c.openOnce.Do(func() {
+		for _, p := range c.packPaths() {
+			if pk, err := openPack(p); err == nil {
+				c.packs = append(c.packs, pk)
+			}
+		}
+	})
+}
+
+// packPaths lists the cache's pack files, newest first.
+func (c *Cache) packPaths() []string {
+	ents, err := os.ReadDir(c.Dir)
+	if err != nil {
+		return nil
+	}
+	type named struct {
+		path string
+		mod  int64
+	}
+	var ps []named
+	for _, e := range ents {
+		if !strings.HasSuffix(e.Name(), packSuffix) || strings.HasPrefix(e.Name(), ".") {
+			continue
+		}
+		var mod int64
+		if info, err := e.Info(); err == nil {
+			mod = info.ModTime().UnixNano()
+		}
+		ps = append(ps, named{filepath.Join(c.Dir, e.Name()), mod})
+	}
+	sort.SliceStable(ps, func(i, j int) bool { return ps[i].mod > ps[j].mod })
+	out := make([]string, len(ps))
+	for i, p := range ps {
+		out[i] = p.path
+	}
+	return out
+}
+
+// lookup finds an entry among this run's and then in the packs, newest
+// first.
+func (c *Cache) lookup(k packKey, limit int64) ([]byte, bool) {
+	c.mu.Lock()
+	b, ok := c.pending[k]
+	c.mu.Unlock()
+	if ok {
+		return b, true
+	}
+	c.open()
+	for _, p := range c.packs {
+		if b, ok := p.get(k, limit); ok {
+			return b, true
+		}
+	}
+	return nil, false
+}
+
+// Flush writes the entries of this run as one new pack, and merges the
+// packs into one when there are more than maxPacks; errors are ignored
+// because the cache only saves time.
+func (c *Cache) Flush() {
+	if c == nil {
+		return
+	}
+	c.mu.Lock()
+	pending := c.pending
+	c.pending = nil
+	c.mu.Unlock()
+	if len(pending) == 0 {
+		return
+	}
+	c.open()
+	p, err := writePack(c.Dir, pending)
+	if err != nil {
+		return
+	}
+	paths := c.packPaths()
+	if len(paths) <= maxPacks {
+		if pk, err := openPack(p); err == nil {
+			c.packs = append([]*pack{pk}, c.packs...)
+		}
+		return
+	}
+	// Merge: every entry of every pack, the newest copy of each key.
+	all := map[packKey][]byte{}
+	for i := len(paths) - 1; i >= 0; i-- {
+		pk, err := openPack(paths[i])
+		if err != nil {
+			continue
+		}
+		for _, k := range pk.keys {
+			if b, ok := pk.get(k, maxDetailEntry); ok && len(all) < maxPackEntries {
+				all[k] = b
+			}
+		}
+		pk.f.Close()
+	}
+	if _, err := writePack(c.Dir, all); err != nil {
+		return
+	}
+	// The merged packs go; a run that has one open keeps reading it.
+	for _, old := range paths {
+		os.Remove(old)
+	}
+	c.release()
+	c.openOnce = sync.Once{}
+}
+
+// Close writes what the run measured (Flush) and releases the packs the
+// cache holds open.
+func (c *Cache) Close() {
+	if c == nil {
+		return
+	}
+	c.Flush()
+	c.release()
+}
+
+func (c *Cache) release() {
+	for _, p := range c.packs {
+		p.f.Close()
+	}
+	c.packs = nil
+}
+
+// writePack writes entries as a new pack in dir and returns its path.
+func writePack(dir string, entries map[packKey][]byte) (string, error) {
+	keys := make([]packKey, 0, len(entries))
+	for k := range entries {
+		keys = append(keys, k)
+	}
+	sort.Slice(keys, func(i, j int) bool { return bytes.Compare(keys[i][:], keys[j][:]) < 0 })
+	var head bytes.Buffer
+	head.WriteString(packMagic)
+	binary.Write(&head, binary.LittleEndian, uint32(len(keys)))
+	off := int64(head.Len()) + int64(len(keys))*packRecordLen
+	for _, k := range keys {
+		head.Write(k[:])
+		binary.Write(&head, binary.LittleEndian, uint64(off))
+		binary.Write(&head, binary.LittleEndian, uint32(len(entries[k])))
+		off += int64(len(entries[k]))
+	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return "", err
+	}
+	tmp, err := os.CreateTemp(dir, ".tmp-*")
+	if err != nil {
+		return "", err
+	}
+	w := bufio.NewWriterSize(tmp, 1<<16)
+	w.Write(head.Bytes())
+	for _, k := range keys {
+		w.Write(entries[k])
+	}
+	err = w.Flush()
+	if cerr := tmp.Close(); err == nil {
+		err = cerr
+	}
+	var id [12]byte
+	rand.Read(id[:])
+	p := filepath.Join(dir, "pack-"+hex.EncodeToString(id[:])+packSuffix)
+	if err == nil {
+		err = os.Rename(tmp.Name(), p)
+	}
+	if err != nil {
+		os.Remove(tmp.Name())
+		return "", err
+	}
+	return p, nil
+}
