@@ -132,7 +132,8 @@ func (j *deviceJudge) measure(dev *budget.Device, s *Snapshot, in []budget.Devic
 	for i := range in {
 		jobs[i], dims[i] = blobJob{s, in[i].Path}, bindingsOf(in[i].Path, j.cli, j.file)
 	}
-	metrics, _ := measureJobs(jobs, dims, true, false, j.cache, j.stats)
+	// A target estimates from the per-layer view.
+	metrics, _ := measureJobs(jobs, dims, true, dev != nil && dev.Target != nil, j.cache, j.stats)
 	if err := envError(metrics); err != nil {
 		return err
 	}
