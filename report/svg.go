@@ -281,17 +281,28 @@ func axes(b *strings.Builder, metric string, ticks []int64, yMax int64, plotW, p
 // marker draws one point, its shape chosen by the series so that series
 // differ without colour.
 func marker(b *strings.Builder, si int, x, y float64, col string, v int64, title string) {
-	t := html.EscapeString(title)
+	shapeOf(b, si, x, y, fmt.Sprintf(`fill="%s" class="point" data-value="%d"`, col, v), "<title>"+html.EscapeString(title)+"</title>")
+}
+
+// shapeOf draws series si's marker shape at (x, y) with the given
+// attributes and content; an empty content closes the element at once.
+func shapeOf(b *strings.Builder, si int, x, y float64, attrs, content string) {
+	var tag, geom string
 	switch si % 4 {
 	case 0:
-		fmt.Fprintf(b, `<circle cx="%.1f" cy="%.1f" r="4" fill="%s" class="point" data-value="%d"><title>%s</title></circle>`+"\n", x, y, col, v, t)
+		tag, geom = "circle", fmt.Sprintf(`cx="%.1f" cy="%.1f" r="4"`, x, y)
 	case 1:
-		fmt.Fprintf(b, `<rect x="%.1f" y="%.1f" width="8" height="8" fill="%s" class="point" data-value="%d"><title>%s</title></rect>`+"\n", x-4, y-4, col, v, t)
+		tag, geom = "rect", fmt.Sprintf(`x="%.1f" y="%.1f" width="8" height="8"`, x-4, y-4)
 	case 2:
-		fmt.Fprintf(b, `<polygon points="%.1f,%.1f %.1f,%.1f %.1f,%.1f" fill="%s" class="point" data-value="%d"><title>%s</title></polygon>`+"\n", x, y-5, x-5, y+4, x+5, y+4, col, v, t)
+		tag, geom = "polygon", fmt.Sprintf(`points="%.1f,%.1f %.1f,%.1f %.1f,%.1f"`, x, y-5, x-5, y+4, x+5, y+4)
 	default:
-		fmt.Fprintf(b, `<polygon points="%.1f,%.1f %.1f,%.1f %.1f,%.1f %.1f,%.1f" fill="%s" class="point" data-value="%d"><title>%s</title></polygon>`+"\n", x, y-5, x+5, y, x, y+5, x-5, y, col, v, t)
+		tag, geom = "polygon", fmt.Sprintf(`points="%.1f,%.1f %.1f,%.1f %.1f,%.1f %.1f,%.1f"`, x, y-5, x+5, y, x, y+5, x-5, y)
 	}
+	if content == "" {
+		fmt.Fprintf(b, "<%s %s %s/>\n", tag, geom, attrs)
+		return
+	}
+	fmt.Fprintf(b, "<%s %s %s>%s</%s>\n", tag, geom, attrs, content, tag)
 }
 
 // axisScale is niceScale in the metric's own unit: byte axes tick at round
@@ -313,16 +324,7 @@ func axisScale(metric string, top int64) (int64, []int64) {
 
 // legendMarker is marker's shape without a figure, for the legend.
 func legendMarker(b *strings.Builder, si int, x, y float64, col string) {
-	switch si % 4 {
-	case 0:
-		fmt.Fprintf(b, `<circle cx="%.1f" cy="%.1f" r="4" fill="%s"/>`+"\n", x, y, col)
-	case 1:
-		fmt.Fprintf(b, `<rect x="%.1f" y="%.1f" width="8" height="8" fill="%s"/>`+"\n", x-4, y-4, col)
-	case 2:
-		fmt.Fprintf(b, `<polygon points="%.1f,%.1f %.1f,%.1f %.1f,%.1f" fill="%s"/>`+"\n", x, y-5, x-5, y+4, x+5, y+4, col)
-	default:
-		fmt.Fprintf(b, `<polygon points="%.1f,%.1f %.1f,%.1f %.1f,%.1f %.1f,%.1f" fill="%s"/>`+"\n", x, y-5, x+5, y, x, y+5, x-5, y, col)
-	}
+	shapeOf(b, si, x, y, fmt.Sprintf(`fill="%s"`, col), "")
 }
 
 // niceScale picks the axis top and 4–5 round ticks for values up to top.
