@@ -236,7 +236,7 @@ func boundInputs(g *model.Graph, ins []*model.ValueInfo, opts InferOptions, stri
 		dt := v.Type.DType
 		switch {
 		case dt.IsFloat():
-			v.Const = &Data{Floats: append([]float64{}, x...)}
+			v.held = &Data{Floats: append([]float64{}, x...)}
 		case dt == model.String || dt == model.Complex64 || dt == model.Complex128 || dt == model.Undefined:
 			bad("value", name, false, "input %s is %s; a value binding holds numbers", name, dt)
 			continue
@@ -254,7 +254,7 @@ func boundInputs(g *model.Graph, ins []*model.ValueInfo, opts InferOptions, stri
 				bad("value", name, false, "input %s is %s; the value must be a whole number", name, dt)
 				continue
 			}
-			v.Const = intData(ints...)
+			v.held = intData(ints...)
 		}
 	}
 	if strict && len(issues) > 0 {
@@ -411,7 +411,7 @@ func missingBindings(inf *Inference, unresolved []Unresolved) []MissingBinding {
 				v = in.Value
 			}
 		}
-		if v == nil || v.Const != nil {
+		if v == nil || v.Const() != nil {
 			continue
 		}
 		if n, ok := v.Type.Shape.Elements(); !v.Type.RankKnown || !ok || n > 16 {

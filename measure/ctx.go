@@ -74,7 +74,7 @@ func (c *ctx) dtype(i int) model.DType {
 // consts returns the contents of input i when known.
 func (c *ctx) consts(i int) *Data {
 	if v := c.input(i); v != nil {
-		return v.Const
+		return v.Const()
 	}
 	return nil
 }
@@ -136,7 +136,7 @@ func tensor(dt model.DType, s model.Shape) *Value {
 func tensorConst(dt model.DType, s model.Shape, d *Data) *Value {
 	v := tensor(dt, s)
 	if d != nil && d.Len() <= maxFoldElements {
-		v.Const = d
+		v.held = d
 	}
 	return v
 }

@@ -285,8 +285,8 @@ func TestHostileGatherFoldBlowup(t *testing.T) {
 	if !v.Type.Shape.Equal(model.KnownShape(n, n)) {
 		t.Errorf("y: shape %v, want [%d,%d]", v.Type.Shape, n, n)
 	}
-	if v.Const != nil {
-		t.Errorf("y: %d elements folded, more than maxFoldElements", v.Const.Len())
+	if v.Const() != nil {
+		t.Errorf("y: %d elements folded, more than maxFoldElements", v.Const().Len())
 	}
 }
 
@@ -319,8 +319,8 @@ func TestHostileConcatFoldDoubling(t *testing.T) {
 	if !v.Type.Shape.Equal(model.KnownShape(1024 << steps)) {
 		t.Errorf("%s: shape %v, want [%d]", prev, v.Type.Shape, int64(1024)<<steps)
 	}
-	if v.Const != nil {
-		t.Errorf("%s: %d elements folded, more than maxFoldElements", prev, v.Const.Len())
+	if v.Const() != nil {
+		t.Errorf("%s: %d elements folded, more than maxFoldElements", prev, v.Const().Len())
 	}
 }
 

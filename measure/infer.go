@@ -113,6 +113,7 @@ type engine struct {
 	subgraphs  map[*model.Graph]map[string]*Value
 	calls      map[*model.Node]*CallBody
 	work       int64 // units of inference work spent (work.go)
+	workLimit  int64 // the model's budget (workBudget)
 	depth      int
 	quiet      int // >0 while evaluating speculatively (loop unrolling)
 	// poisoned maps a value produced by an unresolved node to the name of
@@ -156,7 +157,7 @@ func (s *scope) lookup(name string) *Value {
 }
 
 func newEngine(m *model.Model, opts InferOptions) *engine {
-	return &engine{m: m, opts: opts, subgraphs: map[*model.Graph]map[string]*Value{}, calls: map[*model.Node]*CallBody{}, poisoned: map[string]string{},
+	return &engine{m: m, opts: opts, workLimit: workBudget(m), subgraphs: map[*model.Graph]map[string]*Value{}, calls: map[*model.Node]*CallBody{}, poisoned: map[string]string{},
 		memo: map[string]*callResult{}, ids: map[any]int{}, opsets: map[string]*mergedOpsets{},
 		producers: map[string]*model.Node{}, inputs: map[string]bool{}}
 }
@@ -316,7 +317,7 @@ func (e *engine) inferNodes(g *model.Graph, sc *scope, path *trail) error {
 		}
 		e.cur = i
 		at := path.at(i)
-		if err := e.charge(1+valuesSize(ins), at, n); err != nil {
+		if err := e.charge(1, at, n); err != nil {
 			return err
 		}
 		outs, err := e.inferNode(n, ins, sc, at)
@@ -336,7 +337,9 @@ func (e *engine) inferNodes(g *model.Graph, sc *scope, path *trail) error {
 			}
 			outs = nil
 		}
-		if err := e.charge(valuesSize(outs), at, n); err != nil {
+		// Charged after the rule: a stored tensor's contents count once
+		// a rule has read them (Value.Const), not for being passed on.
+		if err := e.charge(valuesSize(ins)+valuesSize(outs), at, n); err != nil {
 			return err
 		}
 		for j, name := range n.Outputs {

@@ -45,16 +45,16 @@ func TestNNRulesNoPanic(t *testing.T) {
 		if rng.Intn(2) == 0 {
 			n := rng.Intn(9)
 			if rng.Intn(2) == 0 {
-				v.Const = intData(randInts(n)...)
+				v.held = intData(randInts(n)...)
 				if rng.Intn(4) == 0 && n > 0 {
-					v.Const.Ints[0] = model.Sym("N")
+					v.Const().Ints[0] = model.Sym("N")
 				}
 			} else {
 				f := make([]float64, n)
 				for i := range f {
 					f[i] = []float64{-1, 0, 0.5, 1, 2, 1e30, 1e-30}[rng.Intn(7)]
 				}
-				v.Const = &Data{Floats: f}
+				v.held = &Data{Floats: f}
 			}
 		}
 		return v

@@ -87,8 +87,8 @@ func mergeValues(a, b *Value, name string) *Value {
 		}
 	}
 	v := tensor(dt, s)
-	if dataEqual(a.Const, b.Const) {
-		v.Const = a.Const
+	if dataEqual(a.Const(), b.Const()) {
+		v.shareContents(a)
 	}
 	return v
 }
@@ -294,7 +294,7 @@ func inferLoop(c *ctx) ([]*Value, error) {
 }
 
 func isConstTrue(v *Value) bool {
-	x, ok := v.Const.KnownInts()
+	x, ok := v.Const().KnownInts()
 	return ok && len(x) == 1 && x[0] != 0
 }
 
@@ -326,7 +326,7 @@ func unrollLoop(c *ctx, body *model.Graph, trip int64, condIn *Value, carried []
 	if trip < 0 && condIn == nil {
 		return no()
 	}
-	if condIn != nil && condIn.Const == nil {
+	if condIn != nil && condIn.Const() == nil {
 		return no()
 	}
 	if trip < 0 && isConstTrue(condIn) && passesCond(body) {
@@ -349,7 +349,7 @@ func unrollLoop(c *ctx, body *model.Graph, trip int64, condIn *Value, carried []
 	i := int64(0)
 	for ; i < limit; i++ {
 		if cond != nil {
-			x, ok := cond.Const.KnownInts()
+			x, ok := cond.Const().KnownInts()
 			if !ok || len(x) != 1 {
 				return no()
 			}
@@ -367,7 +367,7 @@ func unrollLoop(c *ctx, body *model.Graph, trip int64, condIn *Value, carried []
 		cond = outs[0]
 		if condIn == nil {
 			cond = nil
-		} else if cond.Const == nil {
+		} else if cond.Const() == nil {
 			return no()
 		}
 		state = outs[1 : 1+len(carried)]
@@ -596,7 +596,7 @@ func inferSequenceLength(c *ctx) ([]*Value, error) {
 	}
 	v := tensor(model.Int64, model.Shape{})
 	if s.SeqKnown {
-		v.Const = intData(int64(len(s.Seq)))
+		v.held = intData(int64(len(s.Seq)))
 	}
 	return []*Value{v}, nil
 }
@@ -831,9 +831,9 @@ func inferStringNormalizer(c *ctx) ([]*Value, error) {
 	}
 	caseSensitive := c.attrInt("is_case_sensitive", 0) == 1
 	kept := model.Dim{}
-	if in.Const != nil && in.Const.Strings != nil {
+	if in.Const() != nil && in.Const().Strings != nil {
 		n := int64(0)
-		for _, w := range in.Const.Strings {
+		for _, w := range in.Const().Strings {
 			drop := stop[w]
 			if !caseSensitive {
 				for sw := range stop {

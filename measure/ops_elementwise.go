@@ -137,21 +137,21 @@ func unaryRule(op string, f func(float64) float64) func(c *ctx) ([]*Value, error
 			return nil, err
 		}
 		out := &Value{Type: in.Type}
-		if in.Const != nil {
+		if in.Const() != nil {
 			switch {
-			case in.Const.Floats != nil && f != nil:
-				fs := make([]float64, len(in.Const.Floats))
-				for i, x := range in.Const.Floats {
+			case in.Const().Floats != nil && f != nil:
+				fs := make([]float64, len(in.Const().Floats))
+				for i, x := range in.Const().Floats {
 					fs[i] = f(x)
 				}
-				out.Const = &Data{Floats: fs}
-			case in.Const.Ints != nil && f != nil:
-				if xs, ok := in.Const.KnownInts(); ok {
+				out.held = &Data{Floats: fs}
+			case in.Const().Ints != nil && f != nil:
+				if xs, ok := in.Const().KnownInts(); ok {
 					r := make([]int64, len(xs))
 					for i, x := range xs {
 						r[i] = int64(f(float64(x)))
 					}
-					out.Const = intData(r...)
+					out.held = intData(r...)
 				}
 			}
 		}
@@ -161,7 +161,7 @@ func unaryRule(op string, f func(float64) float64) func(c *ctx) ([]*Value, error
 
 // foldBinary folds fn over a and b broadcast to out; nil when not possible.
 func foldBinary(a, b *Value, out model.Shape, op binaryOp) *Data {
-	if a.Const == nil || b.Const == nil {
+	if a.Const() == nil || b.Const() == nil {
 		return nil
 	}
 	od, ok := out.Ints()
@@ -177,13 +177,13 @@ func foldBinary(a, b *Value, out model.Shape, op binaryOp) *Data {
 		return nil
 	}
 	ai, bi := broadcastIndex(od, ad), broadcastIndex(od, bd)
-	if a.Const.Ints != nil && b.Const.Ints != nil && op.ints != nil {
+	if a.Const().Ints != nil && b.Const().Ints != nil && op.ints != nil {
 		res := make([]model.Dim, len(ai))
 		for k := range ai {
-			if ai[k] >= len(a.Const.Ints) || bi[k] >= len(b.Const.Ints) {
+			if ai[k] >= len(a.Const().Ints) || bi[k] >= len(b.Const().Ints) {
 				return nil
 			}
-			v, ok := op.ints(a.Const.Ints[ai[k]], b.Const.Ints[bi[k]])
+			v, ok := op.ints(a.Const().Ints[ai[k]], b.Const().Ints[bi[k]])
 			if !ok {
 				return nil
 			}
@@ -194,8 +194,8 @@ func foldBinary(a, b *Value, out model.Shape, op binaryOp) *Data {
 	if op.floats == nil {
 		return nil
 	}
-	af, ok1 := a.Const.AsFloats()
-	bf, ok2 := b.Const.AsFloats()
+	af, ok1 := a.Const().AsFloats()
+	bf, ok2 := b.Const().AsFloats()
 	if !ok1 || !ok2 {
 		return nil
 	}
@@ -206,7 +206,7 @@ func foldBinary(a, b *Value, out model.Shape, op binaryOp) *Data {
 		}
 		res[k] = op.floats(af[ai[k]], bf[bi[k]])
 	}
-	if op.bool || a.Const.Ints != nil {
+	if op.bool || a.Const().Ints != nil {
 		out := make([]int64, len(res))
 		for i, x := range res {
 			out[i] = int64(x)
@@ -250,7 +250,7 @@ func binaryRule(op string, b binaryOp) func(c *ctx) ([]*Value, error) {
 				acc = tensorConst(c.dtype(0), s, d)
 			}
 			if acc != nil && len(c.in) > 1 {
-				res.Const = acc.Const
+				res.shareContents(acc)
 			}
 		}
 		return []*Value{res}, nil
@@ -300,12 +300,12 @@ func inferNot(c *ctx) ([]*Value, error) {
 		return nil, err
 	}
 	out := tensor(model.Bool, in.Type.Shape)
-	if xs, ok := in.Const.KnownInts(); ok && in.Const.Ints != nil {
+	if xs, ok := in.Const().KnownInts(); ok && in.Const().Ints != nil {
 		r := make([]int64, len(xs))
 		for i, x := range xs {
 			r[i] = b2i(x == 0)
 		}
-		out.Const = intData(r...)
+		out.held = intData(r...)
 	}
 	return []*Value{out}, nil
 }
@@ -333,16 +333,16 @@ func inferWhere(c *ctx) ([]*Value, error) {
 	}
 	res := tensor(c.dtype(1), out)
 	cond, x, y := c.in[0], c.in[1], c.in[2]
-	if cond.Const != nil && x.Const != nil && y.Const != nil && x.Const.kind() == y.Const.kind() {
+	if cond.Const() != nil && x.Const() != nil && y.Const() != nil && x.Const().kind() == y.Const().kind() {
 		od, ok := out.Ints()
 		cd, ok1 := cond.Type.Shape.Ints()
 		xd, ok2 := x.Type.Shape.Ints()
 		yd, ok3 := y.Type.Shape.Ints()
-		cv, ok4 := cond.Const.KnownInts()
+		cv, ok4 := cond.Const().KnownInts()
 		if ok && ok1 && ok2 && ok3 && ok4 {
 			if n, fits := knownElems(out); fits {
 				ci, xi, yi := broadcastIndex(od, cd), broadcastIndex(od, xd), broadcastIndex(od, yd)
-				xs, ys := x.Const, y.Const
+				xs, ys := x.Const(), y.Const()
 				sel := make([]int, n)
 				// Build from a joined source: x's elements, then y's.
 				joined := concatData([]*Data{xs, ys})
@@ -356,7 +356,7 @@ func inferWhere(c *ctx) ([]*Value, error) {
 						sel[k] = xs.Len() + yi[k]
 					}
 				}
-				res.Const = joined.take(sel)
+				res.held = joined.take(sel)
 			}
 		}
 	}
@@ -369,7 +369,7 @@ func inferClip(c *ctx) ([]*Value, error) {
 		return nil, err
 	}
 	out := &Value{Type: in.Type}
-	if in.Const != nil {
+	if in.Const() != nil {
 		lo, hi := math.Inf(-1), math.Inf(1)
 		if c.opset < 11 {
 			lo, hi = c.attrFloat("min", lo), c.attrFloat("max", hi)
@@ -385,19 +385,19 @@ func inferClip(c *ctx) ([]*Value, error) {
 				return []*Value{out}, nil
 			}
 		}
-		if fs, ok := in.Const.AsFloats(); ok {
+		if fs, ok := in.Const().AsFloats(); ok {
 			r := make([]float64, len(fs))
 			for i, x := range fs {
 				r[i] = math.Min(math.Max(x, lo), hi)
 			}
-			if in.Const.Ints != nil {
+			if in.Const().Ints != nil {
 				ints := make([]int64, len(r))
 				for i, x := range r {
 					ints[i] = int64(x)
 				}
-				out.Const = intData(ints...)
+				out.held = intData(ints...)
 			} else {
-				out.Const = &Data{Floats: r}
+				out.held = &Data{Floats: r}
 			}
 		}
 	}
@@ -474,7 +474,7 @@ func inferCast(c *ctx) ([]*Value, error) {
 	}
 	to := model.DType(c.attrInt("to", 0))
 	out := tensor(to, in.Type.Shape)
-	out.Const = castData(in.Const, to)
+	out.held = castData(in.Const(), to)
 	return []*Value{out}, nil
 }
 
@@ -485,7 +485,7 @@ func inferCastLike(c *ctx) ([]*Value, error) {
 	}
 	to := c.dtype(1)
 	out := tensor(to, in.Type.Shape)
-	out.Const = castData(in.Const, to)
+	out.held = castData(in.Const(), to)
 	return []*Value{out}, nil
 }
 
@@ -494,7 +494,7 @@ func inferDropout(c *ctx) ([]*Value, error) {
 	if err != nil {
 		return nil, err
 	}
-	return []*Value{{Type: in.Type, Const: in.Const}, tensor(model.Bool, in.Type.Shape)}, nil
+	return []*Value{{Type: in.Type, held: in.Const()}, tensor(model.Bool, in.Type.Shape)}, nil
 }
 
 func inferIdentity(c *ctx) ([]*Value, error) {

@@ -75,7 +75,7 @@ func reduceRule(op string, fold reduceFold) func(c *ctx) ([]*Value, error) {
 				}
 			}
 			if len(axes) == 0 && c.attrInt("noop_with_empty_axes", 0) != 0 {
-				return []*Value{{Type: in.Type, Const: in.Const}}, nil
+				return []*Value{{Type: in.Type, held: in.Const()}}, nil
 			}
 		} else if a, ok := c.attrInts("axes"); ok {
 			axes = a
@@ -105,7 +105,7 @@ func reduceRule(op string, fold reduceFold) func(c *ctx) ([]*Value, error) {
 			}
 		}
 		res := tensor(c.dtype(0), out)
-		res.Const = foldReduce(in, reduced, fold)
+		res.held = foldReduce(in, reduced, fold)
 		return []*Value{res}, nil
 	}
 }
@@ -113,7 +113,7 @@ func reduceRule(op string, fold reduceFold) func(c *ctx) ([]*Value, error) {
 // foldReduce combines the known contents of in over the reduced axes; nil
 // when they are not known, too large, or the operator does not fold.
 func foldReduce(in *Value, reduced []bool, fold reduceFold) *Data {
-	if in.Const == nil || fold.ints == nil {
+	if in.Const() == nil || fold.ints == nil {
 		return nil
 	}
 	dims, ok := in.Type.Shape.Ints()
@@ -121,7 +121,7 @@ func foldReduce(in *Value, reduced []bool, fold reduceFold) *Data {
 		return nil
 	}
 	n, ok := knownElems(in.Type.Shape)
-	if !ok || int64(in.Const.Len()) != n {
+	if !ok || int64(in.Const().Len()) != n {
 		return nil
 	}
 	// Output strides over the kept axes, in row-major order.
@@ -152,7 +152,7 @@ func foldReduce(in *Value, reduced []bool, fold reduceFold) *Data {
 		return nil
 	}
 	filled := make([]bool, outN)
-	switch in.Const.kind() {
+	switch in.Const().kind() {
 	case 'i':
 		// Known entries and symbols accumulate apart and meet at the end,
 		// so a shape's element count reads "N*12", not "(N*3)*4" (every
@@ -161,7 +161,7 @@ func foldReduce(in *Value, reduced []bool, fold reduceFold) *Data {
 		syms := make([]model.Dim, outN)
 		hasSym := make([]bool, outN)
 		for k, t := range target {
-			d := in.Const.Ints[k]
+			d := in.Const().Ints[k]
 			switch {
 			case !d.IsKnown() && hasSym[t]:
 				syms[t] = fold.ints(syms[t], d)
@@ -191,9 +191,9 @@ func foldReduce(in *Value, reduced []bool, fold reduceFold) *Data {
 		acc := make([]float64, outN)
 		for k, t := range target {
 			if filled[t] {
-				acc[t] = fold.floats(acc[t], in.Const.Floats[k])
+				acc[t] = fold.floats(acc[t], in.Const().Floats[k])
 			} else {
-				acc[t], filled[t] = in.Const.Floats[k], true
+				acc[t], filled[t] = in.Const().Floats[k], true
 			}
 		}
 		for t := range acc {

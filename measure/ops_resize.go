@@ -28,7 +28,7 @@ func presentInput(c *ctx, i int) bool {
 	if v == nil || v.Absent {
 		return false
 	}
-	if v.Const != nil && v.Const.Len() == 0 {
+	if v.Const() != nil && v.Const().Len() == 0 {
 		return false
 	}
 	if v.Type.RankKnown {

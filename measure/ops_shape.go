@@ -58,16 +58,16 @@ func coords(k int64, st []int64, out []int64) {
 
 // moveData builds output contents from an index map over the input.
 func moveData(in *Value, idx []int) *Data {
-	if in == nil || in.Const == nil {
+	if in == nil || in.Const() == nil {
 		return nil
 	}
-	n := in.Const.Len()
+	n := in.Const().Len()
 	for _, j := range idx {
 		if j < 0 || j >= n {
 			return nil
 		}
 	}
-	return in.Const.take(idx)
+	return in.Const().take(idx)
 }
 
 func sameWithData(c *ctx) ([]*Value, error) {
@@ -196,7 +196,7 @@ func inferReshape(c *ctx) ([]*Value, error) {
 			return nil, fmt.Errorf("shape input is missing")
 		}
 		sv := c.in[1]
-		if sv.Const == nil || sv.Const.Ints == nil {
+		if sv.Const() == nil || sv.Const().Ints == nil {
 			if r, ok := sv.rank(); ok && r == 1 && sv.Type.Shape[0].IsKnown() {
 				n := sv.Type.Shape[0].Value
 				if err := checkRuntimeRank(n); err != nil {
@@ -206,14 +206,14 @@ func inferReshape(c *ctx) ([]*Value, error) {
 			}
 			return nil, fmt.Errorf("shape input (%q) is computed at run time and its length is unknown", c.node.Inputs[1])
 		}
-		target = sv.Const.Ints
+		target = sv.Const().Ints
 	}
 	out, err := reshapeTo(in.Type.Shape, target, c.attrInt("allowzero", 0) == 1)
 	if err != nil {
 		return nil, err
 	}
 	v := tensor(in.Type.DType, out)
-	v.Const = in.Const
+	v.shareContents(in)
 	return []*Value{v}, nil
 }
 
@@ -254,7 +254,7 @@ func inferFlatten(c *ctx) ([]*Value, error) {
 	}
 	out := model.Shape{shapeElems(s[:axis]), shapeElems(s[axis:])}
 	v := tensor(in.Type.DType, out)
-	v.Const = in.Const
+	v.shareContents(in)
 	return []*Value{v}, nil
 }
 
@@ -312,7 +312,7 @@ func inferSqueeze(c *ctx) ([]*Value, error) {
 		out = model.Shape{}
 	}
 	v := tensor(in.Type.DType, out)
-	v.Const = in.Const
+	v.shareContents(in)
 	return []*Value{v}, nil
 }
 
@@ -348,7 +348,7 @@ func inferUnsqueeze(c *ctx) ([]*Value, error) {
 		}
 	}
 	v := tensor(in.Type.DType, out)
-	v.Const = in.Const
+	v.shareContents(in)
 	return []*Value{v}, nil
 }
 
@@ -377,9 +377,9 @@ func inferTranspose(c *ctx) ([]*Value, error) {
 		out[i] = s[a]
 	}
 	v := tensor(in.Type.DType, out)
-	if dims, ok := s.Ints(); ok && in.Const != nil {
+	if dims, ok := s.Ints(); ok && in.Const() != nil {
 		od, _ := out.Ints()
-		n := in.Const.Len()
+		n := in.Const().Len()
 		idx := make([]int, n)
 		ist, ost := strides(dims), strides(od)
 		co := make([]int64, len(od))
@@ -391,7 +391,7 @@ func inferTranspose(c *ctx) ([]*Value, error) {
 			}
 			idx[k] = int(src)
 		}
-		v.Const = moveData(in, idx)
+		v.held = moveData(in, idx)
 	}
 	return []*Value{v}, nil
 }
@@ -432,10 +432,10 @@ func inferConcat(c *ctx) ([]*Value, error) {
 			}
 			out[a] = m
 		}
-		if c.in[i].Const == nil {
+		if c.in[i].Const() == nil {
 			foldable = false
 		} else {
-			parts = append(parts, c.in[i].Const)
+			parts = append(parts, c.in[i].Const())
 		}
 	}
 	v := tensor(c.dtype(0), out)
@@ -445,9 +445,9 @@ func inferConcat(c *ctx) ([]*Value, error) {
 		foldable = false
 	}
 	if foldable && r == 1 {
-		v.Const = concatData(parts)
+		v.held = concatData(parts)
 	} else if foldable {
-		v.Const = concatAxis(c, axis, out)
+		v.held = concatAxis(c, axis, out)
 	}
 	return []*Value{v}, nil
 }
@@ -669,7 +669,7 @@ func inferSlice(c *ctx) ([]*Value, error) {
 		rstart[a], rstep[a] = st, steps[i]
 	}
 	v := tensor(in.Type.DType, out)
-	if dims, ok := s.Ints(); ok && in.Const != nil {
+	if dims, ok := s.Ints(); ok && in.Const() != nil {
 		od, _ := out.Ints()
 		n, _ := out.Elements()
 		idx := make([]int, n)
@@ -683,7 +683,7 @@ func inferSlice(c *ctx) ([]*Value, error) {
 			}
 			idx[k] = int(src)
 		}
-		v.Const = moveData(in, idx)
+		v.held = moveData(in, idx)
 	}
 	return []*Value{v}, nil
 }
@@ -712,11 +712,11 @@ func inferGather(c *ctx) ([]*Value, error) {
 	v := tensor(data.Type.DType, out)
 	dims, ok1 := s.Ints()
 	od, ok2 := out.Ints()
-	ind, ok3 := idxV.Const.KnownInts()
+	ind, ok3 := idxV.Const().KnownInts()
 	// Small data and small indices can still make a large output (data
 	// [1, 65536] gathered by 65536 indices): fold within the limit only.
 	n, fits := knownElems(out)
-	if ok1 && ok2 && ok3 && fits && data.Const != nil {
+	if ok1 && ok2 && ok3 && fits && data.Const() != nil {
 		idx := make([]int, n)
 		ist, ost := strides(dims), strides(od)
 		co := make([]int64, len(od))
@@ -745,7 +745,7 @@ func inferGather(c *ctx) ([]*Value, error) {
 			}
 			idx[k] = int(src)
 		}
-		v.Const = moveData(data, idx)
+		v.held = moveData(data, idx)
 	}
 	return []*Value{v}, nil
 }
@@ -801,18 +801,18 @@ func inferExpand(c *ctx) ([]*Value, error) {
 	if err != nil {
 		return nil, err
 	}
-	if sv.Const == nil || sv.Const.Ints == nil {
+	if sv.Const() == nil || sv.Const().Ints == nil {
 		return nil, fmt.Errorf("target shape (%q) is computed at run time", c.node.Inputs[1])
 	}
-	out, err := broadcast(in.Type.Shape, model.Shape(sv.Const.Ints))
+	out, err := broadcast(in.Type.Shape, model.Shape(sv.Const().Ints))
 	if err != nil {
 		return nil, err
 	}
 	v := tensor(in.Type.DType, out)
-	if od, ok := out.Ints(); ok && in.Const != nil {
+	if od, ok := out.Ints(); ok && in.Const() != nil {
 		if id, ok := in.Type.Shape.Ints(); ok {
 			if _, fits := knownElems(out); fits {
-				v.Const = moveData(in, broadcastIndex(od, id))
+				v.held = moveData(in, broadcastIndex(od, id))
 			}
 		}
 	}
@@ -837,7 +837,7 @@ func inferTile(c *ctx) ([]*Value, error) {
 		out[i] = dimMul(d, model.Known(reps[i]))
 	}
 	v := tensor(in.Type.DType, out)
-	if dims, ok := s.Ints(); ok && in.Const != nil {
+	if dims, ok := s.Ints(); ok && in.Const() != nil {
 		if n, fits := knownElems(out); fits {
 			od, _ := out.Ints()
 			idx := make([]int, n)
@@ -851,7 +851,7 @@ func inferTile(c *ctx) ([]*Value, error) {
 				}
 				idx[k] = int(src)
 			}
-			v.Const = moveData(in, idx)
+			v.held = moveData(in, idx)
 		}
 	}
 	return []*Value{v}, nil
@@ -883,13 +883,13 @@ func inferRange(c *ctx) ([]*Value, error) {
 			for i := range f {
 				f[i] = start[0] + float64(i)*delta[0]
 			}
-			v.Const = &Data{Floats: f}
+			v.held = &Data{Floats: f}
 		} else {
 			r := make([]int64, n)
 			for i := range r {
 				r[i] = int64(start[0]) + int64(i)*int64(delta[0])
 			}
-			v.Const = intData(r...)
+			v.held = intData(r...)
 		}
 	}
 	return []*Value{v}, nil
@@ -906,7 +906,7 @@ func inferConstantOfShape(c *ctx) ([]*Value, error) {
 		dt = a.Tensor.DType
 		fill = dataFromTensor(a.Tensor)
 	}
-	if sv.Const == nil || sv.Const.Ints == nil {
+	if sv.Const() == nil || sv.Const().Ints == nil {
 		if r, ok := sv.rank(); ok && r == 1 && sv.Type.Shape[0].IsKnown() {
 			if err := checkRuntimeRank(sv.Type.Shape[0].Value); err != nil {
 				return nil, err
@@ -915,7 +915,7 @@ func inferConstantOfShape(c *ctx) ([]*Value, error) {
 		}
 		return nil, fmt.Errorf("shape input (%q) is computed at run time", c.node.Inputs[0])
 	}
-	out := model.Shape(append([]model.Dim{}, sv.Const.Ints...))
+	out := model.Shape(append([]model.Dim{}, sv.Const().Ints...))
 	for i, d := range out {
 		if d.IsKnown() && d.Value < 0 {
 			return nil, fmt.Errorf("dim %d is negative (%d)", i, d.Value)
@@ -929,7 +929,7 @@ func inferConstantOfShape(c *ctx) ([]*Value, error) {
 				fill = intData(0)
 			}
 		}
-		v.Const = fill.take(make([]int, n))
+		v.held = fill.take(make([]int, n))
 	}
 	return []*Value{v}, nil
 }
@@ -948,21 +948,21 @@ func inferConstant(c *ctx) ([]*Value, error) {
 			}
 			return []*Value{{Type: model.TensorType(a.Sparse.Values.DType, model.KnownShape(a.Sparse.Dims...)), Weight: true}}, nil
 		case "value_float":
-			return []*Value{{Type: model.TensorType(model.Float32, model.Shape{}), Const: &Data{Floats: []float64{float64(a.Float)}}, Weight: true}}, nil
+			return []*Value{{Type: model.TensorType(model.Float32, model.Shape{}), held: &Data{Floats: []float64{float64(a.Float)}}, Weight: true}}, nil
 		case "value_floats":
 			f := make([]float64, len(a.Floats))
 			for i, x := range a.Floats {
 				f[i] = float64(x)
 			}
-			return []*Value{{Type: model.TensorType(model.Float32, model.KnownShape(int64(len(f)))), Const: &Data{Floats: f}, Weight: true}}, nil
+			return []*Value{{Type: model.TensorType(model.Float32, model.KnownShape(int64(len(f)))), held: &Data{Floats: f}, Weight: true}}, nil
 		case "value_int":
-			return []*Value{{Type: model.TensorType(model.Int64, model.Shape{}), Const: intData(a.Int), Weight: true}}, nil
+			return []*Value{{Type: model.TensorType(model.Int64, model.Shape{}), held: intData(a.Int), Weight: true}}, nil
 		case "value_ints":
-			return []*Value{{Type: model.TensorType(model.Int64, model.KnownShape(int64(len(a.Ints)))), Const: intData(a.Ints...), Weight: true}}, nil
+			return []*Value{{Type: model.TensorType(model.Int64, model.KnownShape(int64(len(a.Ints)))), held: intData(a.Ints...), Weight: true}}, nil
 		case "value_string":
-			return []*Value{{Type: model.TensorType(model.String, model.Shape{}), Const: &Data{Strings: []string{a.String}}, Weight: true}}, nil
+			return []*Value{{Type: model.TensorType(model.String, model.Shape{}), held: &Data{Strings: []string{a.String}}, Weight: true}}, nil
 		case "value_strings":
-			return []*Value{{Type: model.TensorType(model.String, model.KnownShape(int64(len(a.Strings)))), Const: &Data{Strings: append([]string{}, a.Strings...)}, Weight: true}}, nil
+			return []*Value{{Type: model.TensorType(model.String, model.KnownShape(int64(len(a.Strings)))), held: &Data{Strings: append([]string{}, a.Strings...)}, Weight: true}}, nil
 		}
 	}
 	return nil, fmt.Errorf("Constant has no value attribute")
@@ -1068,7 +1068,7 @@ func inferNonZero(c *ctx) ([]*Value, error) {
 		return nil, err
 	}
 	r := int64(len(in.Type.Shape))
-	vals, ok := in.Const.AsFloats()
+	vals, ok := in.Const().AsFloats()
 	dims, ok2 := in.Type.Shape.Ints()
 	if !ok || !ok2 {
 		return []*Value{tensor(model.Int64, model.Shape{model.Known(r), symbolic("nonzero_" + c.outName(0))})}, nil
@@ -1139,10 +1139,10 @@ func inferUnique(c *ctx) ([]*Value, error) {
 	var total model.Dim
 	if a == nil {
 		total = shapeElems(s)
-		if in.Const != nil {
+		if in.Const() != nil {
 			seen := map[string]bool{}
-			for i := 0; i < in.Const.Len(); i++ {
-				seen[fmt.Sprint(in.Const.take([]int{i}))] = true
+			for i := 0; i < in.Const().Len(); i++ {
+				seen[fmt.Sprint(in.Const().take([]int{i}))] = true
 			}
 			count = model.Known(int64(len(seen)))
 		}
@@ -1152,22 +1152,22 @@ func inferUnique(c *ctx) ([]*Value, error) {
 			return nil, err
 		}
 		total = s[axis]
-		if dims, ok := s.Ints(); ok && in.Const != nil {
+		if dims, ok := s.Ints(); ok && in.Const() != nil {
 			st := strides(dims)
 			seen := map[string]bool{}
 			co := make([]int64, len(dims))
 			groups := map[int64][]int{}
-			for k := int64(0); k < int64(in.Const.Len()); k++ {
+			for k := int64(0); k < int64(in.Const().Len()); k++ {
 				coords(k, st, co)
 				groups[co[axis]] = append(groups[co[axis]], int(k))
 			}
-			if dims[axis] > int64(in.Const.Len()) {
+			if dims[axis] > int64(in.Const().Len()) {
 				// The other dims hold a zero: every slice is empty, so all
 				// are one value (none when the axis is empty too).
 				count = model.Known(min(1, dims[axis]))
 			} else {
 				for i := int64(0); i < dims[axis]; i++ {
-					seen[fmt.Sprint(in.Const.take(groups[i]))] = true
+					seen[fmt.Sprint(in.Const().take(groups[i]))] = true
 				}
 				count = model.Known(int64(len(seen)))
 			}

@@ -212,7 +212,7 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 		for _, n := range nodes {
 			folded := len(n.Outputs) > 0
 			for _, o := range n.Outputs {
-				if v := sc.lookup(o); o != "" && (v == nil || v.Const == nil) {
+				if v := sc.lookup(o); o != "" && (v == nil || v.Const() == nil) {
 					folded = false
 				}
 			}

@@ -41,21 +41,21 @@ func TestShapeRulesNoPanic(t *testing.T) {
 		if n >= 0 && n <= 64 && rng.Intn(2) == 0 {
 			switch {
 			case dt == model.String:
-				v.Const = &Data{Strings: make([]string, n)}
+				v.held = &Data{Strings: make([]string, n)}
 			case dt == f32:
 				f := make([]float64, n)
 				for i := range f {
 					f[i] = []float64{-1, 0, 0.5, 3, 1e30}[rng.Intn(5)]
 				}
-				v.Const = &Data{Floats: f}
+				v.held = &Data{Floats: f}
 			default:
 				x := make([]int64, n)
 				for i := range x {
 					x[i] = ints[rng.Intn(len(ints))]
 				}
-				v.Const = intData(x...)
+				v.held = intData(x...)
 				if n > 0 && rng.Intn(4) == 0 {
-					v.Const.Ints[0] = model.Sym("N")
+					v.Const().Ints[0] = model.Sym("N")
 				}
 			}
 		}

@@ -10,9 +10,16 @@ import (
 // and, when it is small and statically known, its contents. Contents are what
 // lets exporter output such as Shape→Gather→Concat→Reshape resolve to numbers.
 type Value struct {
-	Type  model.Type
-	Const *Data    // known contents, nil when unknown or too large to hold
-	Seq   []*Value // elements of a sequence whose length is known
+	Type model.Type
+	// held is the known contents once read, nil when unknown, too large
+	// to hold or not yet read from lazy (Const reads them).
+	held *Data
+	// lazy is the stored tensor whose contents held will be, read only
+	// when a rule asks for them: most weights are never read element by
+	// element, and converting each to float64s up front costs time and
+	// memory for nothing.
+	lazy *model.Tensor
+	Seq  []*Value // elements of a sequence whose length is known
 	// SeqKnown reports that Seq lists every element of a sequence value.
 	SeqKnown bool
 	// Weight marks a value that comes straight from an initializer or a
@@ -208,9 +215,26 @@ func dataFromTensor(t *model.Tensor) *Data {
 func tensorValue(t *model.Tensor) *Value {
 	return &Value{
 		Type:   model.TensorType(t.DType, t.Shape()),
-		Const:  dataFromTensor(t),
+		lazy:   t,
 		Weight: true,
 	}
+}
+
+// Const is the known contents of v: nil when unknown or too large to hold
+// (more than maxFoldElements). A stored tensor's contents are read on the
+// first call.
+func (v *Value) Const() *Data {
+	if v.held == nil && v.lazy != nil {
+		v.held = dataFromTensor(v.lazy)
+		v.lazy = nil
+	}
+	return v.held
+}
+
+// shareContents makes v's contents those of src, in the same element order,
+// without reading them.
+func (v *Value) shareContents(src *Value) {
+	v.held, v.lazy = src.held, src.lazy
 }
 
 // String prints the type and, for small known contents, the values.
@@ -219,12 +243,12 @@ func (v *Value) String() string {
 		return "<none>"
 	}
 	s := v.Type.String()
-	if v.Const != nil && v.Const.Len() <= 8 {
-		switch v.Const.kind() {
+	if v.Const() != nil && v.Const().Len() <= 8 {
+		switch v.Const().kind() {
 		case 'i':
-			s += fmt.Sprint(model.Shape(v.Const.Ints))
+			s += fmt.Sprint(model.Shape(v.Const().Ints))
 		case 'f':
-			s += fmt.Sprint(v.Const.Floats)
+			s += fmt.Sprint(v.Const().Floats)
 		}
 	}
 	return s

@@ -17,30 +17,75 @@ import (
 // subgraph is inferred (both branches of an If, every unrolled iteration of
 // a Loop, every item of a SequenceMap, a Scan body), and of a model-local
 // function's body every time it is instantiated — plus one unit for every
-// workElemsPerUnit dims, folded elements and sequence items that a node
-// reads or produces. A function called again with the same signature (the
-// same function, attributes, operator sets and inputs) reuses the result
-// of the first call and costs only its signature. A model whose inference
-// needs more than maxInferWork units is refused with an error that names
-// the node where the budget ran out: nested calls, loops and branches
-// multiply work, so that a file of a few kilobytes could otherwise keep a
-// check busy for hours.
+// workElemsPerUnit dims, held elements (folded, or stored and read by a
+// rule) and sequence items that a node reads or produces. A function called
+// again with the same signature (the same function, attributes, operator
+// sets and inputs) reuses the result of the first call and costs only its
+// signature. A model whose inference needs more than its budget —
+// maxInferWork units plus workPerStoredNode for every node stored in the
+// file (main graph, subgraphs and function bodies, each counted once) — is
+// refused with an error that names the node where the budget ran out:
+// nested calls, loops and branches multiply work, so that a file of a few
+// kilobytes could otherwise keep a check busy for hours, while the work of
+// a large graph inferred once grows only with the file.
 const (
-	// maxInferWork is the budget: 2^19 units, about half a million node
-	// evaluations. From memory, the largest graphs exported for deployment
-	// (ONNX exports of multi-billion-parameter decoders) have some 10^4 to
-	// 10^5 nodes; the most any model of ONNX's backend test suite needs is
-	// 118 units (measured); a loop unrolled to its limit (maxUnroll = 4,096
-	// iterations) of a 100-node body is 409,600. Spent in full by a hostile
-	// file, the budget costs a few seconds and about 400 MB
-	// (work_test.go, TestWorkBoundDistinctCalls).
+	// maxInferWork is the budget of any file: 2^19 units, about half a
+	// million node evaluations. The most any model of ONNX's backend test
+	// suite needs is 118 units (measured); a loop unrolled to its limit
+	// (maxUnroll = 4,096 iterations) of a 100-node body is 409,600. Spent
+	// in full by a hostile file, the budget costs a few seconds and about
+	// 400 MB (work_test.go, TestWorkBoundDistinctCalls).
 	maxInferWork = 1 << 19
-	// workElemsPerUnit is how many dims, folded elements or sequence items
+	// workPerStoredNode is the budget added for every node the file
+	// stores: a graph inferred once needs one unit a node and a few more
+	// for its dims (measured: 1.3 units a node on the 100,000-node
+	// benchmark model, benchmodel.BuildNodes), so a file of any size
+	// can be inferred once over, while what a small file can make nested
+	// work multiply to stays near maxInferWork.
+	workPerStoredNode = 8
+	// workElemsPerUnit is how many dims, held elements or sequence items
 	// cost one unit on top of a node's own unit.
 	workElemsPerUnit = 16
 	// keyBytesPerUnit is how many bytes of a call signature cost one unit.
 	keyBytesPerUnit = 128
 )
+
+// workBudget is the inference work budget of m: maxInferWork plus
+// workPerStoredNode for every node m stores, in every graph and function
+// body, each graph counted once however often it is referenced.
+func workBudget(m *model.Model) int64 {
+	seen := map[*model.Graph]bool{}
+	var nodes int64
+	var stack []*model.Graph
+	push := func(g *model.Graph) {
+		if g != nil && !seen[g] {
+			seen[g] = true
+			stack = append(stack, g)
+		}
+	}
+	pushAttrs := func(ns []*model.Node) {
+		for _, n := range ns {
+			for _, a := range n.Attrs {
+				push(a.Graph)
+				for _, sg := range a.Graphs {
+					push(sg)
+				}
+			}
+		}
+	}
+	push(m.Graph)
+	for _, f := range m.Functions {
+		nodes += int64(len(f.Nodes))
+		pushAttrs(f.Nodes)
+	}
+	for len(stack) > 0 {
+		g := stack[len(stack)-1]
+		stack = stack[:len(stack)-1]
+		nodes += int64(len(g.Nodes))
+		pushAttrs(g.Nodes)
+	}
+	return maxInferWork + workPerStoredNode*nodes
+}
 
 // errWork is wrapped by the error that stops inference when the work
 // budget is spent.
@@ -68,13 +113,13 @@ func (e *WorkLimitError) Error() string {
 func (e *WorkLimitError) Unwrap() error { return errWork }
 
 // charge adds units of work done at path (node n) and fails once the total
-// passes maxInferWork.
+// passes the model's budget (workBudget).
 func (e *engine) charge(units int64, path *trail, n *model.Node) error {
 	e.work += units
-	if e.work <= maxInferWork {
+	if e.work <= e.workLimit {
 		return nil
 	}
-	return &WorkLimitError{Where: path.String(), Op: n.Op, Limit: maxInferWork}
+	return &WorkLimitError{Where: path.String(), Op: n.Op, Limit: e.workLimit}
 }
 
 // valuesSize is the count of dims, folded elements and sequence items of
@@ -86,8 +131,8 @@ func valuesSize(vs []*Value) int64 {
 			continue
 		}
 		n += int64(len(v.Type.Shape)) + int64(len(v.Seq))
-		if v.Const != nil {
-			n += int64(v.Const.Len())
+		if v.held != nil {
+			n += int64(v.held.Len())
 		}
 	}
 	return n / workElemsPerUnit
@@ -226,7 +271,7 @@ func appendValue(b []byte, v *Value, depth int) []byte {
 	}
 	b = append(b, flags)
 	b = appendType(b, &v.Type, depth)
-	if d := v.Const; d != nil {
+	if d := v.Const(); d != nil {
 		b = append(b, d.kind())
 		b = appendInt(b, int64(d.Len()))
 		for _, x := range d.Ints {

@@ -102,7 +102,7 @@ func TestWorkBoundDistinctCalls(t *testing.T) {
 	if !errors.As(err, &wl) || !errors.Is(err, errWork) {
 		t.Fatalf("want a WorkLimitError, got %v", err)
 	}
-	if wl.Limit != maxInferWork || !strings.Contains(err.Error(), "function(F24)") || !strings.Contains(err.Error(), "units of work") {
+	if wl.Limit != workBudget(doublingCalls(24, true)) || !strings.Contains(err.Error(), "function(F24)") || !strings.Contains(err.Error(), "units of work") {
 		t.Errorf("the error should name the limit and where it ran out: %v", err)
 	}
 	// Measured: about 380 MB allocated in all for the whole budget; 1 GB
@@ -185,5 +185,90 @@ func TestWorkBoundWhileTrueLoop(t *testing.T) {
 	}
 	if s := sc.vals["out"].Type.Shape; len(s) != 1 || s[0].IsKnown() {
 		t.Errorf("out: shape %v, want one symbolic dim", s)
+	}
+}
+
+// TestWorkStoredWeightsPassedOn: a weight that a rule passes on without
+// reading its elements costs nothing beyond the node's unit. Hand-worked:
+// MatMul of x[1,16] by a stored [16,16] weight is one unit for the node
+// plus (2 + 2 + 2 dims read and produced) / 16 = 0; before contents were
+// read lazily it also paid 256 elements / 16 = 16 units.
+func TestWorkStoredWeightsPassedOn(t *testing.T) {
+	w := &model.Tensor{Name: "w", DType: model.Float32, Dims: []int64{16, 16},
+		Data: model.TensorData{Encoding: model.EncodingRaw, Segments: [][]byte{make([]byte, 16*16*4)}}}
+	g := &model.Graph{Name: "g", Inputs: []*model.ValueInfo{input("x", model.Float32, model.Known(1), model.Known(16))},
+		Initializers: []*model.Tensor{w},
+		Nodes:        []*model.Node{node("MatMul", []string{"x", "w"}, []string{"y"})},
+		Outputs:      []*model.ValueInfo{{Name: "y"}}}
+	m := graphModel(g)
+	e := newEngine(m, InferOptions{})
+	sc := &scope{vals: map[string]*Value{"x": {Type: g.Inputs[0].Type}, "w": tensorValue(w)}}
+	if err := e.inferNodes(g, sc, &trail{seg: "graph", node: -1}); err != nil {
+		t.Fatal(err)
+	}
+	if e.work != 1 {
+		t.Errorf("work %d units, want 1", e.work)
+	}
+	if sc.vals["w"].held != nil {
+		t.Errorf("MatMul read the weight's elements; only its shape is needed")
+	}
+}
+
+// reluChain is n Relu nodes in a chain on an input of the given rank.
+func reluChain(n, rank int) *model.Model {
+	dims := make([]model.Dim, rank)
+	for i := range dims {
+		dims[i] = model.Known(1)
+	}
+	g := &model.Graph{Name: "g", Inputs: []*model.ValueInfo{input("x0", model.Float32, dims...)}}
+	for i := range n {
+		g.Nodes = append(g.Nodes, &model.Node{Op: "Relu", Inputs: []string{fmt.Sprintf("x%d", i)}, Outputs: []string{fmt.Sprintf("x%d", i+1)}})
+	}
+	g.Outputs = []*model.ValueInfo{{Name: fmt.Sprintf("x%d", n)}}
+	return graphModel(g)
+}
+
+// TestWorkBudgetGrowsWithTheFile: a large graph inferred once is within
+// its budget however large it is, because the budget grows with the nodes
+// the file stores. Hand-worked: 60,000 Relu nodes on a rank-64 input each
+// cost 1 + (64 + 64) / 16 = 9 units, 540,000 in all: past the 524,288 of
+// a small file, within 524,288 + 8 × 60,000 = 1,004,288.
+func TestWorkBudgetGrowsWithTheFile(t *testing.T) {
+	m := reluChain(60_000, 64)
+	if got, want := workBudget(m), int64(maxInferWork+workPerStoredNode*60_000); got != want {
+		t.Errorf("budget %d, want %d", got, want)
+	}
+	inf, err := Infer(m, InferOptions{})
+	if err != nil {
+		t.Fatalf("Infer: %v", err)
+	}
+	if len(inf.Unresolved) != 0 {
+		t.Errorf("unresolved: %v", inf.Unresolved)
+	}
+	e := newEngine(m, InferOptions{})
+	sc := &scope{vals: map[string]*Value{"x0": {Type: m.Graph.Inputs[0].Type}}}
+	if err := e.inferNodes(m.Graph, sc, &trail{seg: "graph", node: -1}); err != nil {
+		t.Fatal(err)
+	}
+	if e.work != 540_000 {
+		t.Errorf("work %d units, want 540,000", e.work)
+	}
+}
+
+// TestWorkBudgetCountsEveryStoredGraph: subgraphs and function bodies add
+// their nodes to the budget once each, however often a graph is referenced
+// (a model built in memory may share one).
+func TestWorkBudgetCountsEveryStoredGraph(t *testing.T) {
+	body := &model.Graph{Name: "b", Nodes: []*model.Node{node("Identity", []string{"a"}, []string{"b"}), node("Identity", []string{"b"}, []string{"c"})}}
+	g := &model.Graph{Name: "g", Nodes: []*model.Node{
+		node("If", []string{"c"}, []string{"y"}, &model.Attr{Name: "then_branch", Kind: model.AttrGraph, Graph: body},
+			&model.Attr{Name: "else_branch", Kind: model.AttrGraph, Graph: body}),
+	}}
+	m := graphModel(g)
+	m.Functions = []*model.Function{{Name: "F", Nodes: []*model.Node{node("Relu", []string{"x"}, []string{"y"})}}}
+	// Hand-worked: 1 main node + 2 body nodes (shared, counted once) + 1
+	// function node = 4 stored nodes.
+	if got, want := workBudget(m), int64(maxInferWork+4*workPerStoredNode); got != want {
+		t.Errorf("budget %d, want %d", got, want)
 	}
 }
