@@ -527,11 +527,16 @@ func windowArea(c *costCtx) (int64, error) {
 type tally struct {
 	macs, flops int64
 	known       bool
-	byOp        map[string]OpCost
-	overflow    bool
+	// op is the operator of a tally of one node, whose own figures are
+	// macs and flops; byOp holds the figures by operator of a tally of
+	// several, made when a second is added (most tallies are of one node,
+	// and a map each would cost more than the node).
+	op       string
+	byOp     map[string]OpCost
+	overflow bool
 }
 
-func newTally() *tally { return &tally{known: true, byOp: map[string]OpCost{}} }
+func newTally() *tally { return &tally{known: true} }
 
 func addChecked(a, b int64) (int64, bool) {
 	s := a + b
@@ -541,29 +546,52 @@ func addChecked(a, b int64) (int64, bool) {
 	return s, true
 }
 
+// eachOp calls fn with t's figures of each operator.
+func (t *tally) eachOp(fn func(op string, c OpCost)) {
+	if t.op != "" {
+		fn(t.op, OpCost{Nodes: 1, MACs: t.macs, FLOPs: t.flops})
+		return
+	}
+	for op, c := range t.byOp {
+		fn(op, c)
+	}
+}
+
+// byOperator is t's figures by operator, a map of its own.
+func (t *tally) byOperator() map[string]OpCost {
+	out := make(map[string]OpCost, max(1, len(t.byOp)))
+	t.eachOp(func(op string, c OpCost) { out[op] = c })
+	return out
+}
+
 // add adds u into t.
 func (t *tally) add(u *tally) {
 	var ok1, ok2 bool
+	if t.op != "" {
+		t.byOp, t.op = t.byOperator(), ""
+	}
+	if t.byOp == nil {
+		t.byOp = map[string]OpCost{}
+	}
 	t.macs, ok1 = addChecked(t.macs, u.macs)
 	t.flops, ok2 = addChecked(t.flops, u.flops)
 	t.overflow = t.overflow || u.overflow || !ok1 || !ok2
 	t.known = t.known && u.known
-	for op, c := range u.byOp {
+	u.eachOp(func(op string, c OpCost) {
 		s := t.byOp[op]
 		s.Nodes += c.Nodes
 		s.MACs, ok1 = addChecked(s.MACs, c.MACs)
 		s.FLOPs, ok2 = addChecked(s.FLOPs, c.FLOPs)
 		t.overflow = t.overflow || !ok1 || !ok2
 		t.byOp[op] = s
-	}
+	})
 }
 
 // clone returns a copy of t that can be changed without changing t.
 func (t *tally) clone() *tally {
 	out := *t
-	out.byOp = make(map[string]OpCost, len(t.byOp))
-	for op, c := range t.byOp {
-		out.byOp[op] = c
+	if t.byOp != nil {
+		out.byOp = t.byOperator()
 	}
 	return &out
 }
@@ -576,12 +604,12 @@ func (t *tally) times(n int64) *tally {
 	out.macs, ok1 = checkedMul(t.macs, n)
 	out.flops, ok2 = checkedMul(t.flops, n)
 	out.overflow = out.overflow || !ok1 || !ok2
-	for op, c := range t.byOp {
+	t.eachOp(func(op string, c OpCost) {
 		c.MACs, ok1 = checkedMul(c.MACs, n)
 		c.FLOPs, ok2 = checkedMul(c.FLOPs, n)
 		out.overflow = out.overflow || !ok1 || !ok2
 		out.byOp[op] = c
-	}
+	})
 	return out
 }
 
@@ -615,7 +643,7 @@ func CountCosts(inf *Inference) *Costs {
 	if k.opset == 0 {
 		k.opset = 21
 	}
-	out := &Costs{ByOp: map[string]OpCost{}, Nodes: []NodeCost{}}
+	out := &Costs{ByOp: map[string]OpCost{}, Nodes: make([]NodeCost, 0, len(inf.Model.Graph.Nodes))}
 	total := newTally()
 	sc := scopes{inf.Values}
 	for i, n := range inf.Model.Graph.Nodes {
@@ -626,7 +654,7 @@ func CountCosts(inf *Inference) *Costs {
 	if total.overflow {
 		k.unresolved = append(k.unresolved, Unresolved{Node: inf.Model.Graph.Name, Op: "", Reason: "the model's MACs or FLOPs overflow int64; totals are not meaningful"})
 	}
-	out.MACs, out.FLOPs, out.ByOp = total.macs, total.flops, total.byOp
+	out.MACs, out.FLOPs, out.ByOp = total.macs, total.flops, total.byOperator()
 	out.Unresolved = k.unresolved
 	if out.Unresolved == nil {
 		out.Unresolved = []Unresolved{}
@@ -670,7 +698,8 @@ func (k *coster) node(n *model.Node, i int, sc scopes) *tally {
 	if !ok {
 		return k.fail(n, i, "MACs unknown: no cost rule for operator %s", key)
 	}
-	c := &costCtx{node: n, ins: make([]*Value, len(n.Inputs)), outs: make([]*Value, len(n.Outputs))}
+	vs := make([]*Value, len(n.Inputs)+len(n.Outputs))
+	c := &costCtx{node: n, ins: vs[:len(n.Inputs):len(n.Inputs)], outs: vs[len(n.Inputs):]}
 	for j, name := range n.Inputs {
 		if name != "" {
 			c.ins[j] = sc.lookup(name)
@@ -728,7 +757,7 @@ func (k *coster) node(n *model.Node, i int, sc scopes) *tally {
 			return k.fail(n, i, "FLOPs unknown: fused activation: %v", err)
 		}
 	}
-	t.byOp[n.Op] = OpCost{Nodes: 1, MACs: t.macs, FLOPs: t.flops}
+	t.op = n.Op
 	return t
 }
 
@@ -836,7 +865,7 @@ func takenBranch(n *model.Node, cond *Value) string {
 	if n.Op != "If" || cond == nil {
 		return ""
 	}
-	x, ok := cond.Const.KnownInts()
+	x, ok := cond.Const().KnownInts()
 	if !ok || len(x) != 1 {
 		return ""
 	}
@@ -852,7 +881,7 @@ func (k *coster) tripCount(n *model.Node, c *costCtx) (int64, string) {
 	switch n.Op {
 	case "Loop":
 		if cond := c.in(1); cond != nil {
-			if v, ok := cond.Const.KnownInts(); ok && len(v) == 1 && v[0] == 0 {
+			if v, ok := cond.Const().KnownInts(); ok && len(v) == 1 && v[0] == 0 {
 				return 0, "" // the condition is false before the first iteration
 			}
 		}
@@ -860,7 +889,7 @@ func (k *coster) tripCount(n *model.Node, c *costCtx) (int64, string) {
 		if m == nil {
 			return -1, "M is not given; the loop ends on its condition"
 		}
-		v, ok := m.Const.KnownInts()
+		v, ok := m.Const().KnownInts()
 		if !ok || len(v) != 1 {
 			return -1, "M is computed at run time"
 		}

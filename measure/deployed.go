@@ -112,7 +112,7 @@ func noOpView(n *model.Node, vals map[string]*Value) bool {
 		if v == nil {
 			return false
 		}
-		x, ok := v.Const.KnownInts()
+		x, ok := v.Const().KnownInts()
 		return ok && len(x) == 1 && x[0] == 0
 	}
 	return false
@@ -156,16 +156,16 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 
 	// Readers of each value: the nodes reading it (once per node, nested
 	// subgraphs included) and the graph's outputs.
-	readers := map[string]int{}
-	readBy := map[string][]int{}
+	readers := make(map[string]int, len(g.Nodes))
+	readBy := make(map[string][]int, len(g.Nodes))
 	isOutput := map[string]bool{}
 	for i, n := range g.Nodes {
-		seen := map[string]bool{}
 		read := func(name string) {
-			if name != "" && !seen[name] {
-				seen[name] = true
+			// A node that reads a value twice is one reader: the
+			// value's last reader is then this node already.
+			if r := readBy[name]; name != "" && (len(r) == 0 || r[len(r)-1] != i) {
 				readers[name]++
-				readBy[name] = append(readBy[name], i)
+				readBy[name] = append(r, i)
 			}
 		}
 		for _, name := range n.Inputs {
@@ -198,10 +198,10 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 		regions = decomposedActivations(g, vals, isStatic, readBy, isOutput, views)
 	}
 
-	recs := map[string]*dtensor{}
+	recs := make(map[string]*dtensor, len(g.Nodes)+len(g.Inputs))
 	fusedInto := map[string]string{} // a dropped tensor → the tensor written instead
 	var order []*dtensor
-	groupOut := map[int]*dtensor{} // head node → its group's stored output
+	groupOut := make([]*dtensor, len(g.Nodes)) // head node → its group's stored output
 	add := func(t *dtensor) {
 		if old := recs[t.name]; old != nil {
 			old.last = max(old.last, t.first)
@@ -218,7 +218,9 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 
 	bodyPeak := map[int]int64{}
 	bodyArena := map[int]int64{}
-	hasBody := map[int]bool{}
+	hasBody := make([]bool, len(g.Nodes))
+	st := &deployState{g: g, recs: recs, readers: readers, isOutput: isOutput, isStatic: isStatic,
+		hasBody: hasBody, views: views, groupOut: groupOut, add: add, fusedInto: fusedInto}
 	for i, n := range g.Nodes {
 		for _, name := range n.Inputs {
 			if r := recs[name]; r != nil && name != "" {
@@ -257,8 +259,6 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 			}
 			outs = append(outs, name)
 		}
-		st := &deployState{g: g, recs: recs, readers: readers, isOutput: isOutput, isStatic: isStatic,
-			hasBody: hasBody, views: views, groupOut: groupOut, add: add, fusedInto: fusedInto}
 		if r := regions[i]; r != nil && len(outs) == 1 && outs[0] == n.Outputs[0] && st.region(r, i, outs[0]) {
 			continue
 		}
@@ -298,8 +298,10 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 		}
 	}
 
-	for _, r := range roots {
-		r.segs = []Lifetime{{Name: r.name, Size: r.size, First: r.first, Last: r.last}}
+	segs := make([]Lifetime, len(roots))
+	for k, r := range roots {
+		segs[k] = Lifetime{Name: r.name, Size: r.size, First: r.first, Last: r.last}
+		r.segs = segs[k : k+1 : k+1]
 	}
 
 	if opts.InPlaceDepthwise {
@@ -379,9 +381,9 @@ type deployState struct {
 	readers   map[string]int
 	isOutput  map[string]bool
 	isStatic  func(string) bool
-	hasBody   map[int]bool
+	hasBody   []bool
 	views     []bool // views[i]: node i's output aliases its input
-	groupOut  map[int]*dtensor
+	groupOut  []*dtensor
 	add       func(*dtensor)
 	fusedInto map[string]string
 }

@@ -16,7 +16,7 @@ import (
 //   - The schedule is the file's node order: step i is node i.
 //   - Every non-constant tensor is counted: graph inputs and node outputs,
 //     not initializers and not tensors whose values are known statically
-//     (Value.Const != nil or Value.Weight, and the outputs of a node whose
+//     (Value.Const() != nil or Value.Weight, and the outputs of a node whose
 //     every input is itself known statically, such as the DequantizeLinear
 //     of an int8 weight: a runtime folds it once, at load time).
 //   - A tensor is live from its producer's step (graph inputs: step 0)
@@ -143,8 +143,8 @@ func planGraph(g *model.Graph, vals map[string]*Value, subs map[*model.Graph]map
 
 	static, isStatic := staticValues(g, vals)
 
-	recs := map[string]*tensorRec{}
-	var order []*tensorRec
+	recs := make(map[string]*tensorRec, len(g.Nodes)+len(g.Inputs))
+	order := make([]*tensorRec, 0, len(g.Nodes)+len(g.Inputs))
 	add := func(name string, step, producer int) {
 		r := &tensorRec{name: name, first: step, last: step, producer: producer}
 		if old := recs[name]; old != nil {
@@ -544,7 +544,17 @@ type runTree struct {
 }
 
 func newRunTree(size int) *runTree {
-	return &runTree{size: size, cover: make([][]byteRun, 4*size), part: make([][]byteRun, 4*size)}
+	n := treeNodes(size)
+	return &runTree{size: size, cover: make([][]byteRun, n), part: make([][]byteRun, n)}
+}
+
+// treeNodes is the length of the node arrays of a segment tree over size
+// steps, numbered from 1 at the root with children 2k and 2k+1: halving
+// [0, size-1] reaches single steps after ⌈log2 size⌉ levels, so every
+// index is below 2 × the next power of two ≥ size (at most 4 × size, the
+// bound usually quoted, and about 2.6 × size on average).
+func treeNodes(size int) int {
+	return 2 << bits.Len(uint(max(size, 1)-1))
 }
 
 func (t *runTree) insert(a, b int, r byteRun) { t.ins(1, 0, t.size-1, a, b, r) }
@@ -613,7 +623,7 @@ type treeEntry struct{ id, next int32 }
 // newStepTree makes a tree for n intervals, each of which takes about two
 // entries a level.
 func newStepTree(size, n int) *stepTree {
-	t := &stepTree{size: size, cover: make([]int32, 4*size), part: make([]int32, 4*size),
+	t := &stepTree{size: size, cover: make([]int32, treeNodes(size)), part: make([]int32, treeNodes(size)),
 		entries: make([]treeEntry, 0, n*(2*bits.Len(uint(size))+2))}
 	for i := range t.cover {
 		t.cover[i], t.part[i] = -1, -1
@@ -673,13 +683,13 @@ func (t *stepTree) q(node, l, r, a, b int, mark int32, stamp []int32, out []int3
 
 // staticValues tells which values of g take no activation memory: the
 // initializers and sparse initializers, whatever inference knows
-// statically (Value.Const) or found stored in the file (Value.Weight), and
+// statically (Value.Const()) or found stored in the file (Value.Weight), and
 // state kept between invocations (Value.State, counted apart as
 // persistent bytes).
 // Both memory views plan only the other tensors. The map is returned so
 // that a planner can mark the outputs it folds as static too.
 func staticValues(g *model.Graph, vals map[string]*Value) (map[string]bool, func(name string) bool) {
-	static := map[string]bool{}
+	static := make(map[string]bool, len(g.Initializers)+len(g.Sparse))
 	for _, t := range g.Initializers {
 		static[t.Name] = true
 	}
@@ -693,6 +703,6 @@ func staticValues(g *model.Graph, vals map[string]*Value) (map[string]bool, func
 			return true
 		}
 		v := vals[name]
-		return v != nil && (v.Const != nil || v.Weight || v.State)
+		return v != nil && (v.Weight || v.State || v.Const() != nil)
 	}
 }

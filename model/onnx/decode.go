@@ -151,9 +151,9 @@ func (d *decoder) model() (*model.Model, error) {
 				err = within(d.opset(f.lo, f.hi, m.Opsets), name)
 			}
 		case 14:
-			name := indexed("metadata_props", nMeta)
+			i := nMeta
 			nMeta++
-			if err = d.msg(&f, name); err == nil {
+			if err = d.msg(&f, ""); err == nil {
 				var k, v string
 				k, v, err = d.stringPair(f.lo, f.hi)
 				if err == nil {
@@ -162,19 +162,19 @@ func (d *decoder) model() (*model.Model, error) {
 					}
 					m.Metadata[k] = v
 				}
-				err = within(err, name)
 			}
+			err = withinAt(err, "metadata_props", i)
 		case 20:
 			err = d.skipBytes(&f, "training_info")
 		case 25:
-			name := indexed("functions", nFunc)
+			i := nFunc
 			nFunc++
-			if err = d.msg(&f, name); err == nil {
+			if err = d.msg(&f, ""); err == nil {
 				var fn *model.Function
 				fn, err = d.function(f.lo, f.hi)
 				m.Functions = append(m.Functions, fn)
-				err = within(err, name)
 			}
+			err = withinAt(err, "functions", i)
 		}
 		if err != nil {
 			return nil, err
@@ -258,56 +258,57 @@ func (d *decoder) graph(lo, hi, depth, off int) (*model.Graph, error) {
 		}
 		switch f.num {
 		case 1:
-			name := indexed("node", nNode)
+			i := nNode
 			nNode++
-			if err = d.msg(&f, name); err == nil {
+			if err = d.msg(&f, ""); err == nil {
 				var n *model.Node
 				n, err = d.node(f.lo, f.hi, depth)
 				g.Nodes = append(g.Nodes, n)
-				err = within(err, name)
 			}
+			err = withinAt(err, "node", i)
 		case 2:
 			g.Name, err = d.str(&f, "name")
 		case 5:
-			name := indexed("initializer", nInit)
+			i := nInit
 			nInit++
-			if err = d.msg(&f, name); err == nil {
+			if err = d.msg(&f, ""); err == nil {
 				var t *model.Tensor
 				t, err = d.tensor(f.lo, f.hi, f.off)
 				g.Initializers = append(g.Initializers, t)
-				err = within(err, name)
 			}
+			err = withinAt(err, "initializer", i)
 		case 15:
-			name := indexed("sparse_initializer", nSparse)
+			i := nSparse
 			nSparse++
-			if err = d.msg(&f, name); err == nil {
+			if err = d.msg(&f, ""); err == nil {
 				var s *model.SparseTensor
 				s, err = d.sparse(f.lo, f.hi, f.off)
 				g.Sparse = append(g.Sparse, s)
-				err = within(err, name)
 			}
+			err = withinAt(err, "sparse_initializer", i)
 		case 10:
 			err = d.skipBytes(&f, "doc_string")
 		case 11, 12, 13:
-			var name string
+			var field string
+			var i int
 			var list *[]*model.ValueInfo
 			switch f.num {
 			case 11:
-				name, list = indexed("input", nIn), &g.Inputs
+				field, i, list = "input", nIn, &g.Inputs
 				nIn++
 			case 12:
-				name, list = indexed("output", nOut), &g.Outputs
+				field, i, list = "output", nOut, &g.Outputs
 				nOut++
 			default:
-				name, list = indexed("value_info", nVI), &g.ValueInfo
+				field, i, list = "value_info", nVI, &g.ValueInfo
 				nVI++
 			}
-			if err = d.msg(&f, name); err == nil {
+			if err = d.msg(&f, ""); err == nil {
 				var vi *model.ValueInfo
 				vi, err = d.valueInfo(f.lo, f.hi)
 				*list = append(*list, vi)
-				err = within(err, name)
 			}
+			err = withinAt(err, field, i)
 		case 14:
 			err = d.skipBytes(&f, "quantization_annotation")
 		case 16:
@@ -368,10 +369,12 @@ func (d *decoder) node(lo, hi, depth int) (*model.Node, error) {
 		var s string
 		switch f.num {
 		case 1:
-			s, err = d.str(&f, indexed("input", len(n.Inputs)))
+			s, err = d.str(&f, "")
+			err = withinAt(err, "input", len(n.Inputs))
 			n.Inputs = append(n.Inputs, s)
 		case 2:
-			s, err = d.str(&f, indexed("output", len(n.Outputs)))
+			s, err = d.str(&f, "")
+			err = withinAt(err, "output", len(n.Outputs))
 			n.Outputs = append(n.Outputs, s)
 		case 3:
 			n.Name, err = d.str(&f, "name")
@@ -380,14 +383,14 @@ func (d *decoder) node(lo, hi, depth int) (*model.Node, error) {
 		case 7:
 			n.Domain, err = d.str(&f, "domain")
 		case 5:
-			name := indexed("attribute", nAttr)
+			i := nAttr
 			nAttr++
-			if err = d.msg(&f, name); err == nil {
+			if err = d.msg(&f, ""); err == nil {
 				var a *model.Attr
 				a, err = d.attr(f.lo, f.hi, depth)
 				n.Attrs = append(n.Attrs, a)
-				err = within(err, name)
 			}
+			err = withinAt(err, "attribute", i)
 		case 6:
 			err = d.skipBytes(&f, "doc_string")
 		}
@@ -500,12 +503,12 @@ func (d *decoder) attr(lo, hi, depth int) (*model.Attr, error) {
 		case 23:
 			// model.Attr has no field for a list of sparse tensors: they are
 			// checked and dropped.
-			name := indexed("sparse_tensors", nSparse)
+			i := nSparse
 			nSparse++
-			if err = d.msg(&f, name); err == nil {
+			if err = d.msg(&f, ""); err == nil {
 				_, err = d.sparse(f.lo, f.hi, f.off)
-				err = within(err, name)
 			}
+			err = withinAt(err, "sparse_tensors", i)
 		case 15:
 			name := indexed("type_protos", len(a.Types))
 			if err = d.msg(&f, name); err == nil {
@@ -636,23 +639,23 @@ func (d *decoder) function(lo, hi int) (*model.Function, error) {
 			s, err = d.str(&f, indexed("attribute", len(fn.Attributes)))
 			fn.Attributes = append(fn.Attributes, s)
 		case 11:
-			name := indexed("attribute_proto", nAttrProto)
+			i := nAttrProto
 			nAttrProto++
-			if err = d.msg(&f, name); err == nil {
+			if err = d.msg(&f, ""); err == nil {
 				var a *model.Attr
 				a, err = d.attr(f.lo, f.hi, 0)
 				fn.AttrProtos = append(fn.AttrProtos, a)
-				err = within(err, name)
 			}
+			err = withinAt(err, "attribute_proto", i)
 		case 7:
-			name := indexed("node", nNode)
+			i := nNode
 			nNode++
-			if err = d.msg(&f, name); err == nil {
+			if err = d.msg(&f, ""); err == nil {
 				var n *model.Node
 				n, err = d.node(f.lo, f.hi, 0)
 				fn.Nodes = append(fn.Nodes, n)
-				err = within(err, name)
 			}
+			err = withinAt(err, "node", i)
 		case 8:
 			err = d.skipBytes(&f, "doc_string")
 		case 9:
@@ -665,12 +668,12 @@ func (d *decoder) function(lo, hi int) (*model.Function, error) {
 			fn.Domain, err = d.str(&f, "domain")
 		case 12:
 			// model.Function has no place for value_info: checked and dropped.
-			name := indexed("value_info", nVI)
+			i := nVI
 			nVI++
-			if err = d.msg(&f, name); err == nil {
+			if err = d.msg(&f, ""); err == nil {
 				_, err = d.valueInfo(f.lo, f.hi)
-				err = within(err, name)
 			}
+			err = withinAt(err, "value_info", i)
 		}
 		if err != nil {
 			return nil, err

@@ -63,6 +63,15 @@ func within(err error, component string) error {
 	return err
 }
 
+// withinAt is within(err, indexed(field, i)), the index formatted only
+// for an error: decoding a large graph passes here for every element.
+func withinAt(err error, field string, i int) error {
+	if err == nil {
+		return nil
+	}
+	return within(err, indexed(field, i))
+}
+
 // indexed names element i of a repeated field.
 func indexed(name string, i int) string {
 	return fmt.Sprintf("%s[%d]", name, i)
