@@ -10,6 +10,7 @@ import (
 	"io"
 	"math"
 	"os"
+	"runtime/pprof"
 	"strconv"
 	"strings"
 
@@ -117,13 +118,44 @@ const conventions = `Figures (static estimates from the model file; measure on t
                from the runtime's operator table.
   work         inference is charged a unit per node evaluated (subgraphs, unrolled
                loop iterations and function bodies each time they are inferred;
-               calls with one signature share one result) and per 16 dims or folded
-               elements; past 524,288 units the model is refused with an error.
+               calls with one signature share one result) and per 16 dims or held
+               elements; past 524,288 units plus 8 per node the file stores, the
+               model is refused with an error.
 Units: B, KiB, MiB (1024-based) for bytes; k, M, G (1000-based) for counts;
 ms, µs for latency; µJ, mJ for energy.`
 
 func main() {
-	os.Exit(runWith(os.Args[1:], os.Stdin, os.Stdout, os.Stderr))
+	stop := startProfile(os.Getenv("LOADLINE_CPUPROFILE"), os.Stderr)
+	code := runWith(os.Args[1:], os.Stdin, os.Stdout, os.Stderr)
+	stop()
+	os.Exit(code)
+}
+
+// startProfile writes a CPU profile of the whole run to path when it is
+// set (LOADLINE_CPUPROFILE, for contributors: DEVELOPERS.md, "Speed") and
+// returns the function that ends it. A profile that cannot be written is
+// said and the run goes on.
+func startProfile(path string, stderr io.Writer) func() {
+	if path == "" {
+		return func() {}
+	}
+	f, err := os.Create(path)
+	if err == nil {
+		err = pprof.StartCPUProfile(f)
+	}
+	if err != nil {
+		fmt.Fprintf(stderr, "loadline: LOADLINE_CPUPROFILE: %v; running without a profile\n", err)
+		if f != nil {
+			f.Close()
+		}
+		return func() {}
+	}
+	return func() {
+		pprof.StopCPUProfile()
+		if err := f.Close(); err != nil {
+			fmt.Fprintf(stderr, "loadline: LOADLINE_CPUPROFILE: %v\n", err)
+		}
+	}
 }
 
 // run executes the command line with no standard input; tests call it.
