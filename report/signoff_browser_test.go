@@ -45,7 +45,11 @@ func TestSignoffHTMLInBrowser(t *testing.T) {
 		t.Fatal(err)
 	}
 	shot := filepath.Join(dir, "shot.png")
-	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
+	// A hang guard, not a speed check: headless chromium can wait for
+	// ever on a stuck page or profile, and go test's own -timeout would
+	// leave it running. The bound is far above any real render.
+	const hangGuard = 5 * time.Minute
+	ctx, cancel := context.WithTimeout(context.Background(), hangGuard)
 	defer cancel()
 	// The flags Debian's chromium needs in a container without a display,
 	// and those that keep it from reaching for the network on its own.
@@ -55,6 +59,9 @@ func TestSignoffHTMLInBrowser(t *testing.T) {
 		"--window-size=1100,1600", "--screenshot="+shot, "file://"+page)
 	cmd.Env = append(os.Environ(), "HOME="+dir)
 	out, err := cmd.CombinedOutput()
+	if ctx.Err() != nil {
+		t.Fatalf("chromium did not finish; stopped by the %s hang guard: %v\n%s", hangGuard, err, out)
+	}
 	if err != nil {
 		t.Fatalf("chromium: %v\n%s", err, out)
 	}
