@@ -2,6 +2,7 @@ package measure
 
 import (
 	"fmt"
+	"slices"
 
 	"github.com/loadline/loadline/model"
 )
@@ -118,10 +119,11 @@ func noOpView(n *model.Node, vals map[string]*Value) bool {
 	return false
 }
 
-// dtensor is one tensor of the deployed view. A tensor whose parent is set
-// shares its root's buffer; a dropped tensor is never stored.
+// dtensor is one tensor of the deployed view, the value numbered id in the
+// graph's index. A tensor whose parent is set shares its root's buffer; a
+// dropped tensor is never stored.
 type dtensor struct {
-	name        string
+	id          int32
 	first, last int
 	producer    int // node whose output it is; -1 for a graph input
 	head        int // node heading its fused group (the step it is written at)
@@ -141,36 +143,77 @@ func (t *dtensor) root() *dtensor {
 	return t
 }
 
+// readerLists holds, per value number, the nodes reading the value in node
+// order, each node once (nested subgraphs' reads count at their
+// control-flow node): one list for the graph, linked through entries.
+type readerLists struct {
+	head, tail []int32 // per value, its first and last entry; -1 for none
+	count      []int32 // per value, how many nodes read it
+	entries    []readerEntry
+}
+
+type readerEntry struct{ node, next int32 }
+
+func newReaderLists(values, reads int) *readerLists {
+	r := &readerLists{head: make([]int32, values), tail: make([]int32, values), count: make([]int32, values),
+		entries: make([]readerEntry, 0, reads)}
+	for i := range r.head {
+		r.head[i], r.tail[i] = -1, -1
+	}
+	return r
+}
+
+// add records that node i reads value id, once however often it does.
+func (r *readerLists) add(id int32, i int) {
+	if id < 0 {
+		return
+	}
+	if t := r.tail[id]; t >= 0 && r.entries[t].node == int32(i) {
+		return
+	}
+	r.entries = append(r.entries, readerEntry{node: int32(i), next: -1})
+	e := int32(len(r.entries) - 1)
+	if t := r.tail[id]; t >= 0 {
+		r.entries[t].next = e
+	} else {
+		r.head[id] = e
+	}
+	r.tail[id] = e
+	r.count[id]++
+}
+
+// reads reports whether node i reads value id.
+func (r *readerLists) reads(id int32, i int) bool {
+	for e := r.head[id]; e >= 0; e = r.entries[e].next {
+		if r.entries[e].node == int32(i) {
+			return true
+		}
+	}
+	return false
+}
+
 // PlanDeployed computes the deployed view of the activation memory of the
 // inferred model's main graph.
 func PlanDeployed(inf *Inference, opts DeployOptions) *MemoryPlan {
-	return planDeployedGraph(inf.Model.Graph, inf.Values, inf.Subgraphs, opts, 0)
+	return planDeployedGraph(inf, inf.Model.Graph, inf.Values, opts, 0)
 }
 
-func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.Graph]map[string]*Value, opts DeployOptions, depth int) *MemoryPlan {
+func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, opts DeployOptions, depth int) *MemoryPlan {
 	plan := &MemoryPlan{}
 	steps := max(1, len(g.Nodes))
 	lastStep := steps - 1
 
-	static, isStatic := staticValues(g, vals)
+	x := inf.index(g, vals)
+	static := newStaticSet(g, x)
 
 	// Readers of each value: the nodes reading it (once per node, nested
-	// subgraphs included) and the graph's outputs.
-	readers := make(map[string]int, len(g.Nodes))
-	readBy := make(map[string][]int, len(g.Nodes))
-	isOutput := map[string]bool{}
+	// subgraphs included) and, in readers, the graph's outputs too.
+	readBy := newReaderLists(len(x.names), len(x.in))
 	for i, n := range g.Nodes {
-		read := func(name string) {
-			// A node that reads a value twice is one reader: the
-			// value's last reader is then this node already.
-			if r := readBy[name]; name != "" && (len(r) == 0 || r[len(r)-1] != i) {
-				readers[name]++
-				readBy[name] = append(r, i)
-			}
+		for _, id := range x.ins(i) {
+			readBy.add(id, i)
 		}
-		for _, name := range n.Inputs {
-			read(name)
-		}
+		read := func(name string) { readBy.add(x.lookup(name), i) }
 		for _, a := range n.Attrs {
 			if a.Graph != nil {
 				forEachNestedInput(a.Graph, read)
@@ -182,9 +225,13 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 			}
 		}
 	}
+	readers := slices.Clone(readBy.count)
+	isOutput := make([]bool, len(x.names))
 	for _, o := range g.Outputs {
-		readers[o.Name]++
-		isOutput[o.Name] = true
+		if id := x.lookup(o.Name); id >= 0 {
+			readers[id]++
+			isOutput[id] = true
+		}
 	}
 
 	views := make([]bool, len(g.Nodes))
@@ -193,87 +240,96 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 			views[i] = isView(n, vals)
 		}
 	}
-	var regions map[int]*actRegion
+	var regions []*actRegion
 	if opts.FuseActivations {
-		regions = decomposedActivations(g, vals, isStatic, readBy, isOutput, views)
+		regions = decomposedActivations(g, x, static, readBy, isOutput, views)
 	}
 
-	recs := make(map[string]*dtensor, len(g.Nodes)+len(g.Inputs))
-	fusedInto := map[string]string{} // a dropped tensor → the tensor written instead
-	var order []*dtensor
+	recs := make([]*dtensor, len(x.names))
+	var fused []fusion // dropped tensors and what was written instead, in turn
+	order := make([]*dtensor, 0, len(g.Inputs)+len(x.out))
 	groupOut := make([]*dtensor, len(g.Nodes)) // head node → its group's stored output
 	add := func(t *dtensor) {
-		if old := recs[t.name]; old != nil {
+		if old := recs[t.id]; old != nil {
 			old.last = max(old.last, t.first)
 		}
-		recs[t.name] = t
+		recs[t.id] = t
 		order = append(order, t)
 	}
 	for _, in := range g.Inputs {
-		if in.Name == "" || isStatic(in.Name) {
-			continue
+		if id := x.lookup(in.Name); id >= 0 && !static.has(id) {
+			add(&dtensor{id: id, producer: -1, head: -1})
 		}
-		add(&dtensor{name: in.Name, producer: -1, head: -1})
 	}
 
 	bodyPeak := map[int]int64{}
 	bodyArena := map[int]int64{}
 	hasBody := make([]bool, len(g.Nodes))
-	st := &deployState{g: g, recs: recs, readers: readers, isOutput: isOutput, isStatic: isStatic,
-		hasBody: hasBody, views: views, groupOut: groupOut, add: add, fusedInto: fusedInto}
+	st := &deployState{g: g, x: x, recs: recs, readers: readers, isOutput: isOutput, static: static,
+		hasBody: hasBody, views: views, groupOut: groupOut, add: add, fused: &fused}
+	var outs []int32
 	for i, n := range g.Nodes {
-		for _, name := range n.Inputs {
-			if r := recs[name]; r != nil && name != "" {
-				r.last = i
+		ins := x.ins(i)
+		for _, id := range ins {
+			if id >= 0 && recs[id] != nil {
+				recs[id].last = i
 			}
 		}
-		hasBody[i] = plan.bodies(n, i, depth, vals, subs, bodyPeak, bodyArena,
+		var cond *Value
+		if len(ins) > 0 {
+			cond = x.value(ins[0])
+		}
+		hasBody[i] = plan.bodies(n, i, depth, cond, inf.Subgraphs, bodyPeak, bodyArena,
 			func(name string) {
-				if r := recs[name]; r != nil {
-					r.last = i
+				if id := x.lookup(name); id >= 0 && recs[id] != nil {
+					recs[id].last = i
 				}
 			},
 			func(body *model.Graph, bv map[string]*Value) *MemoryPlan {
-				return planDeployedGraph(body, bv, subs, opts, depth+1)
+				return planDeployedGraph(inf, body, bv, opts, depth+1)
 			})
 		fold := !hasBody[i] && !randomOps[n.Op]
 		inputs := 0
-		for _, name := range n.Inputs {
-			if name == "" {
+		for _, id := range ins {
+			if id < 0 {
 				continue
 			}
 			inputs++
-			if !isStatic(name) {
+			if !static.has(id) {
 				fold = false
 			}
 		}
 		fold = fold && inputs > 0
-		var outs []string
-		for _, name := range n.Outputs {
-			if name == "" {
+		outs = outs[:0]
+		for _, id := range x.outs(i) {
+			if id < 0 {
 				continue
 			}
-			if fold || isStatic(name) {
-				static[name] = true
+			if fold || static.has(id) {
+				static.mark(id)
 				continue
 			}
-			outs = append(outs, name)
+			outs = append(outs, id)
 		}
-		if r := regions[i]; r != nil && len(outs) == 1 && outs[0] == n.Outputs[0] && st.region(r, i, outs[0]) {
+		first := x.outs(i)
+		sole := len(outs) == 1 && len(first) > 0 && outs[0] == first[0]
+		if regions != nil {
+			if r := regions[i]; r != nil && sole && st.region(r, i, outs[0]) {
+				continue
+			}
+		}
+		if sole && storedOutputs(n) == 1 && st.rewrite(i, n, outs[0], opts) {
 			continue
 		}
-		if len(outs) == 1 && storedOutputs(n) == 1 && outs[0] == n.Outputs[0] && st.rewrite(i, n, outs[0], opts) {
-			continue
-		}
-		for _, name := range outs {
-			t := &dtensor{name: name, first: i, last: i, producer: i, head: i}
+		for _, id := range outs {
+			t := &dtensor{id: id, first: i, last: i, producer: i, head: i}
 			add(t)
 			groupOut[i] = t
 		}
 	}
 	for _, o := range g.Outputs {
-		if r := recs[o.Name]; r != nil {
-			r.last = lastStep
+		if id := x.lookup(o.Name); id >= 0 && recs[id] != nil {
+			recs[id].last = lastStep
 		}
 	}
 
@@ -286,13 +342,13 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 		r := t.root()
 		if r == t {
 			roots = append(roots, t)
-			t.size, t.reason = tensorBytes(vals[t.name])
+			t.size, t.reason = tensorBytes(x.vals[t.id])
 			continue
 		}
 		r.first, r.last = min(r.first, t.first), max(r.last, t.last)
 	}
 	for _, t := range order {
-		if !t.dropped && isOutput[t.name] {
+		if !t.dropped && isOutput[t.id] {
 			t.root().last = lastStep
 			t.root().isOut = true
 		}
@@ -300,18 +356,21 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 
 	segs := make([]Lifetime, len(roots))
 	for k, r := range roots {
-		segs[k] = Lifetime{Name: r.name, Size: r.size, First: r.first, Last: r.last}
+		segs[k] = Lifetime{Name: x.names[r.id], Size: r.size, First: r.first, Last: r.last}
 		r.segs = segs[k : k+1 : k+1]
 	}
 
 	if opts.InPlaceDepthwise {
 		for i, n := range g.Nodes {
 			y := groupOut[i]
-			x := recs[n.Input(0)]
-			if n.Op != "Conv" || storedOutputs(n) != 1 || y == nil || x == nil || !isDepthwise(n, vals) {
+			var xt *dtensor
+			if ins := x.ins(i); len(ins) > 0 && ins[0] >= 0 {
+				xt = recs[ins[0]]
+			}
+			if n.Op != "Conv" || storedOutputs(n) != 1 || y == nil || xt == nil || !isDepthwise(n, vals) {
 				continue
 			}
-			rx, ry := x.root(), y.root()
+			rx, ry := xt.root(), y.root()
 			if rx == ry || rx.last != i || ry.first != i || rx.reason != "" || ry.reason != "" || rx.isOut || ry.size > rx.size {
 				continue
 			}
@@ -337,8 +396,9 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 		if r.parent != nil {
 			continue // merged in place into another buffer
 		}
+		name := x.names[r.id]
 		if r.reason != "" {
-			u := Unresolved{Node: r.name, Reason: fmt.Sprintf("memory unknown: %s (tensor %q)", r.reason, r.name)}
+			u := Unresolved{Node: name, Reason: fmt.Sprintf("memory unknown: %s (tensor %q)", r.reason, name)}
 			if r.producer >= 0 {
 				n := g.Nodes[r.producer]
 				u.Node, u.Op = nodeLabel(n, r.producer), n.Op
@@ -346,7 +406,7 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 			plan.Unresolved = append(plan.Unresolved, u)
 			continue
 		}
-		lts = append(lts, Lifetime{Name: r.name, Size: r.size, First: r.first, Last: r.last})
+		lts = append(lts, Lifetime{Name: name, Size: r.size, First: r.first, Last: r.last})
 		live = append(live, r.segs...)
 	}
 	// Where each tensor's values end up: a view or in-place output in its
@@ -354,16 +414,26 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 	bufferOf := map[string]string{}
 	for _, t := range order {
 		if r := t.root(); r != t && !t.dropped {
-			bufferOf[t.name] = r.name
+			bufferOf[x.names[t.id]] = x.names[r.id]
 		}
 	}
-	for name := range fusedInto {
-		to := name
-		for k := 0; k < len(fusedInto) && fusedInto[to] != ""; k++ {
-			to = fusedInto[to]
+	if len(fused) > 0 {
+		into := make(map[int32]int32, len(fused))
+		for _, f := range fused {
+			into[f.from] = f.to
 		}
-		if r := recs[to]; r != nil && !r.dropped {
-			bufferOf[name] = r.root().name
+		for _, f := range fused {
+			to := f.from
+			for k := 0; k < len(into); k++ {
+				next, ok := into[to]
+				if !ok {
+					break
+				}
+				to = next
+			}
+			if r := recs[to]; r != nil && !r.dropped {
+				bufferOf[x.names[f.from]] = x.names[r.root().id]
+			}
 		}
 	}
 	if len(bufferOf) > 0 {
@@ -373,19 +443,24 @@ func planDeployedGraph(g *model.Graph, vals map[string]*Value, subs map[*model.G
 	return plan
 }
 
+// fusion is a tensor the deployed view dropped (from) and the tensor
+// written instead (to).
+type fusion struct{ from, to int32 }
+
 // deployState is what the deployed view's rewrites read and change while
 // planDeployedGraph walks the nodes.
 type deployState struct {
-	g         *model.Graph
-	recs      map[string]*dtensor
-	readers   map[string]int
-	isOutput  map[string]bool
-	isStatic  func(string) bool
-	hasBody   []bool
-	views     []bool // views[i]: node i's output aliases its input
-	groupOut  []*dtensor
-	add       func(*dtensor)
-	fusedInto map[string]string
+	g        *model.Graph
+	x        *graphIndex
+	recs     []*dtensor
+	readers  []int32
+	isOutput []bool
+	static   *staticSet
+	hasBody  []bool
+	views    []bool // views[i]: node i's output aliases its input
+	groupOut []*dtensor
+	add      func(*dtensor)
+	fused    *[]fusion
 }
 
 // fusable returns the buffer a node reading x can be fused into: x itself,
@@ -398,7 +473,7 @@ func (st *deployState) fusable(x *dtensor, shared bool) (*dtensor, []*dtensor, b
 	var chain []*dtensor
 	t := x
 	for t.parent != nil {
-		if (t != x || !shared) && (st.readers[t.name] != 1 || st.isOutput[t.name]) {
+		if (t != x || !shared) && (st.readers[t.id] != 1 || st.isOutput[t.id]) {
 			return nil, nil, false
 		}
 		if t.dropped || t.producer < 0 || !st.views[t.producer] {
@@ -407,7 +482,7 @@ func (st *deployState) fusable(x *dtensor, shared bool) (*dtensor, []*dtensor, b
 		chain = append(chain, t)
 		t = t.parent
 	}
-	if t.dropped || t.producer < 0 || st.isOutput[t.name] || ((t != x || !shared) && st.readers[t.name] != 1) {
+	if t.dropped || t.producer < 0 || st.isOutput[t.id] || ((t != x || !shared) && st.readers[t.id] != 1) {
 		return nil, nil, false
 	}
 	if p := st.g.Nodes[t.producer]; st.views[t.producer] || viewOps[p.Op] || st.hasBody[t.producer] || storedOutputs(p) != 1 {
@@ -418,33 +493,37 @@ func (st *deployState) fusable(x *dtensor, shared bool) (*dtensor, []*dtensor, b
 
 // fuseInto drops root and the views over it and records out, made by node
 // i, as written at root's step in root's group instead.
-func (st *deployState) fuseInto(root *dtensor, chain []*dtensor, out string, i int) {
+func (st *deployState) fuseInto(root *dtensor, chain []*dtensor, out int32, i int) {
 	root.dropped = true
-	st.fusedInto[root.name] = out
+	*st.fused = append(*st.fused, fusion{root.id, out})
 	for _, c := range chain {
 		c.dropped = true
-		st.fusedInto[c.name] = out
+		*st.fused = append(*st.fused, fusion{c.id, out})
 	}
-	t := &dtensor{name: out, first: root.first, last: root.first, producer: i, head: root.head}
+	t := &dtensor{id: out, first: root.first, last: root.first, producer: i, head: root.head}
 	st.add(t)
 	st.groupOut[root.head] = t
 }
 
 // rewrite applies the deployed view's rewrites to node n (step i), whose one
 // stored output is out. It reports whether it handled the output.
-func (st *deployState) rewrite(i int, n *model.Node, out string, opts DeployOptions) bool {
-	x := st.recs[n.Input(0)]
+func (st *deployState) rewrite(i int, n *model.Node, out int32, opts DeployOptions) bool {
+	ins := st.x.ins(i)
+	if len(ins) == 0 || ins[0] < 0 {
+		return false
+	}
+	x := st.recs[ins[0]]
 	if x == nil || x.dropped {
 		return false
 	}
 	othersStatic := true
-	for j, name := range n.Inputs {
-		if j > 0 && name != "" && !st.isStatic(name) {
+	for _, id := range ins[1:] {
+		if id >= 0 && !st.static.has(id) {
 			othersStatic = false
 		}
 	}
 	alias := func() bool {
-		st.add(&dtensor{name: out, first: i, last: i, producer: i, head: i, parent: x})
+		st.add(&dtensor{id: out, first: i, last: i, producer: i, head: i, parent: x})
 		return true
 	}
 	// fuse writes out at x's step instead of x, when nothing else reads x.
@@ -483,7 +562,7 @@ func (st *deployState) rewrite(i int, n *model.Node, out string, opts DeployOpti
 // group fuses into the producer of its input; when it does, the members'
 // outputs are never stored and the last one's is written at the
 // producer's step. It reports whether it handled the output.
-func (st *deployState) region(r *actRegion, i int, out string) bool {
+func (st *deployState) region(r *actRegion, i int, out int32) bool {
 	if r.state == 0 {
 		r.state = -1
 		if x := st.recs[r.x]; x != nil {
@@ -504,7 +583,7 @@ func (st *deployState) region(r *actRegion, i int, out string) bool {
 // actRegion is a decomposed activation: the nodes members, which compute
 // the one tensor made by node last from x and constants alone.
 type actRegion struct {
-	x     string
+	x     int32
 	last  int
 	state int8 // 0 undecided, 1 fused, -1 left alone
 	root  *dtensor
@@ -534,31 +613,30 @@ const (
 )
 
 // decomposedActivations finds the decomposed activations of g (see the
-// definition at the top of this file), keyed by the index of each member
-// node. readBy lists, per value, the nodes reading it (nested subgraphs
-// included, at the control-flow node).
-func decomposedActivations(g *model.Graph, vals map[string]*Value, isStatic func(string) bool,
-	readBy map[string][]int, isOutput map[string]bool, views []bool) map[int]*actRegion {
-	out := map[int]*actRegion{}
+// definition at the top of this file): out[i] is the group node i is a
+// member of, nil for none. readBy lists, per value, the nodes reading it
+// (nested subgraphs included, at the control-flow node).
+func decomposedActivations(g *model.Graph, x *graphIndex, static *staticSet, readBy *readerLists, isOutput []bool, views []bool) []*actRegion {
+	out := make([]*actRegion, len(g.Nodes))
 	for p, n := range g.Nodes {
-		if _, claimed := out[p]; claimed || storedOutputs(n) != 1 || len(n.Outputs) == 0 || views[p] {
+		if out[p] != nil || storedOutputs(n) != 1 || len(n.Outputs) == 0 || views[p] {
 			continue
 		}
-		x := n.Outputs[0]
-		if x == "" || isStatic(x) || isOutput[x] {
+		xid := x.outs(p)[0]
+		if xid < 0 || static.has(xid) || isOutput[xid] {
 			continue
 		}
-		xv := vals[x]
+		xv := x.vals[xid]
 		if xv == nil || !xv.shapeKnown() {
 			continue
 		}
-		members, last, ok := growRegion(g, p, x, xv, vals, isStatic, readBy, isOutput)
+		members, last, ok := growRegion(g, p, xid, xv, x, static, readBy, isOutput)
 		if !ok {
 			continue
 		}
-		r := &actRegion{x: x, last: last}
+		r := &actRegion{x: xid, last: last}
 		for _, j := range members {
-			if _, taken := out[j]; taken {
+			if out[j] != nil {
 				r = nil
 				break
 			}
@@ -578,17 +656,24 @@ func decomposedActivations(g *model.Graph, vals map[string]*Value, isStatic func
 // activation: at least two members, one a nonlinearity, every tensor of
 // the group of x's shape and dtype, x and every intermediate tensor read by
 // members only, and exactly one result, made by the last member.
-func growRegion(g *model.Graph, p int, x string, xv *Value, vals map[string]*Value, isStatic func(string) bool,
-	readBy map[string][]int, isOutput map[string]bool) (members []int, last int, ok bool) {
-	inRegion := map[string]bool{x: true}
-	pending := len(readBy[x])
-	escapes := map[string]bool{}
+func growRegion(g *model.Graph, p int, xid int32, xv *Value, x *graphIndex, static *staticSet,
+	readBy *readerLists, isOutput []bool) (members []int, last int, ok bool) {
+	// A group holds at most maxRegionNodes + 1 values: short lists.
+	inRegion := []int32{xid}
+	pending := int(readBy.count[xid])
+	var escapes []int32
+	escape := func(id int32) {
+		if !slices.Contains(escapes, id) {
+			escapes = append(escapes, id)
+		}
+	}
 	nonlinear := false
+	var reads []int32
 	for j := p + 1; j < len(g.Nodes) && j <= p+maxRegionScan && pending > 0; j++ {
 		n := g.Nodes[j]
-		var reads []string
-		for v := range inRegion {
-			if slicesContains(readBy[v], j) {
+		reads = reads[:0]
+		for _, v := range inRegion {
+			if readBy.reads(v, j) {
 				reads = append(reads, v)
 			}
 		}
@@ -597,23 +682,25 @@ func growRegion(g *model.Graph, p int, x string, xv *Value, vals map[string]*Val
 		}
 		pending -= len(reads)
 		member := regionOps[n.Op] && storedOutputs(n) == 1 && len(n.Outputs) == 1 && n.Outputs[0] != "" && !hasSubgraph(n)
-		for _, in := range n.Inputs {
-			if in != "" && !inRegion[in] && !isStatic(in) {
+		for _, in := range x.ins(j) {
+			if in >= 0 && !slices.Contains(inRegion, in) && !static.has(in) {
 				member = false
 			}
 		}
 		if member {
-			o := n.Outputs[0]
-			ov := vals[o]
+			o := x.outs(j)[0]
+			ov := x.vals[o]
 			if ov == nil || !ov.shapeKnown() || ov.Type.DType != xv.Type.DType || !ov.Type.Shape.Equal(xv.Type.Shape) {
 				member = false
 			} else {
 				members = append(members, j)
-				inRegion[o] = true
-				pending += len(readBy[o])
+				if !slices.Contains(inRegion, o) {
+					inRegion = append(inRegion, o)
+				}
+				pending += int(readBy.count[o])
 				nonlinear = nonlinear || regionNonlinear[n.Op]
 				if isOutput[o] {
-					escapes[o] = true
+					escape(o)
 				}
 				if len(members) > maxRegionNodes {
 					return nil, 0, false
@@ -622,27 +709,18 @@ func growRegion(g *model.Graph, p int, x string, xv *Value, vals map[string]*Val
 		}
 		if !member {
 			for _, v := range reads {
-				escapes[v] = true
+				escape(v)
 			}
 		}
 	}
-	if pending > 0 || len(members) < 2 || !nonlinear || escapes[x] || len(escapes) != 1 {
+	if pending > 0 || len(members) < 2 || !nonlinear || slices.Contains(escapes, xid) || len(escapes) != 1 {
 		return nil, 0, false
 	}
 	last = members[len(members)-1]
-	if !escapes[g.Nodes[last].Outputs[0]] {
+	if !slices.Contains(escapes, x.outs(last)[0]) {
 		return nil, 0, false
 	}
 	return members, last, true
-}
-
-func slicesContains(s []int, v int) bool {
-	for _, x := range s {
-		if x == v {
-			return true
-		}
-	}
-	return false
 }
 
 // hasSubgraph reports whether a node holds a subgraph.

@@ -70,6 +70,24 @@ type Inference struct {
 	// Undecided lists the If nodes whose condition was not known, with
 	// the graph inputs it depends on, in the order met.
 	Undecided []UndecidedIf
+	// indexes holds each graph's numbered values (index.go), made when a
+	// pass first asks and shared by the passes after it.
+	indexes map[*model.Graph]*graphIndex
+}
+
+// index is the numbered values of g, a graph of the model whose inferred
+// values are vals, made on the first call. An Inference is read by one
+// pass at a time.
+func (inf *Inference) index(g *model.Graph, vals map[string]*Value) *graphIndex {
+	if x := inf.indexes[g]; x != nil {
+		return x
+	}
+	if inf.indexes == nil {
+		inf.indexes = map[*model.Graph]*graphIndex{}
+	}
+	x := newGraphIndex(g, vals)
+	inf.indexes[g] = x
+	return x
 }
 
 // DecidedIf is an If node whose condition inference knew: only Branch

@@ -126,93 +126,101 @@ var randomOps = map[string]bool{
 // PlanMemory computes the graph view of the activation memory of the
 // inferred model's main graph.
 func PlanMemory(inf *Inference) *MemoryPlan {
-	return planGraph(inf.Model.Graph, inf.Values, inf.Subgraphs, 0)
+	return planGraph(inf, inf.Model.Graph, inf.Values, 0)
 }
 
 // tensorRec is what planGraph learns of one tensor while walking the nodes.
 type tensorRec struct {
-	name        string
+	id          int32
 	first, last int
 	producer    int // node index, -1 for a graph input
 }
 
-func planGraph(g *model.Graph, vals map[string]*Value, subs map[*model.Graph]map[string]*Value, depth int) *MemoryPlan {
+func planGraph(inf *Inference, g *model.Graph, vals map[string]*Value, depth int) *MemoryPlan {
 	plan := &MemoryPlan{}
 	steps := max(1, len(g.Nodes))
 	lastStep := steps - 1
 
-	static, isStatic := staticValues(g, vals)
+	x := inf.index(g, vals)
+	static := newStaticSet(g, x)
 
-	recs := make(map[string]*tensorRec, len(g.Nodes)+len(g.Inputs))
-	order := make([]*tensorRec, 0, len(g.Nodes)+len(g.Inputs))
-	add := func(name string, step, producer int) {
-		r := &tensorRec{name: name, first: step, last: step, producer: producer}
-		if old := recs[name]; old != nil {
+	// recs[id] is the latest tensor named id; order keeps every one.
+	recs := make([]*tensorRec, len(x.names))
+	order := make([]tensorRec, 0, len(g.Inputs)+len(x.out))
+	add := func(id int32, step, producer int) {
+		if old := recs[id]; old != nil {
 			// A name defined twice (not valid ONNX): the later definition
 			// wins; the earlier one ends where it was redefined.
 			old.last = max(old.last, step)
 		}
-		recs[name] = r
-		order = append(order, r)
+		order = append(order, tensorRec{id: id, first: step, last: step, producer: producer})
+		recs[id] = &order[len(order)-1]
 	}
+	// order never grows past its capacity, so that recs keeps pointing
+	// into it: one tensor per graph input and node output at most.
 	for _, in := range g.Inputs {
-		if in.Name == "" || isStatic(in.Name) {
-			continue
+		if id := x.lookup(in.Name); id >= 0 && !static.has(id) {
+			add(id, 0, -1)
 		}
-		add(in.Name, 0, -1)
 	}
 
 	bodyPeak := map[int]int64{}
 	bodyArena := map[int]int64{}
 	for i, n := range g.Nodes {
-		for _, name := range n.Inputs {
-			if r := recs[name]; r != nil && name != "" {
-				r.last = i
+		ins, outs := x.ins(i), x.outs(i)
+		for _, id := range ins {
+			if id >= 0 && recs[id] != nil {
+				recs[id].last = i
 			}
 		}
-		hasBody := plan.bodies(n, i, depth, vals, subs, bodyPeak, bodyArena,
+		var cond *Value
+		if len(ins) > 0 {
+			cond = x.value(ins[0])
+		}
+		hasBody := plan.bodies(n, i, depth, cond, inf.Subgraphs, bodyPeak, bodyArena,
 			func(name string) {
-				if r := recs[name]; r != nil {
-					r.last = i
+				if id := x.lookup(name); id >= 0 && recs[id] != nil {
+					recs[id].last = i
 				}
 			},
 			func(body *model.Graph, bv map[string]*Value) *MemoryPlan {
-				return planGraph(body, bv, subs, depth+1)
+				return planGraph(inf, body, bv, depth+1)
 			})
 		fold := !hasBody && !randomOps[n.Op]
 		inputs := 0
-		for _, name := range n.Inputs {
-			if name == "" {
+		for _, id := range ins {
+			if id < 0 {
 				continue
 			}
 			inputs++
-			if !isStatic(name) {
+			if !static.has(id) {
 				fold = false
 			}
 		}
 		fold = fold && inputs > 0
-		for _, name := range n.Outputs {
-			if name == "" {
+		for _, id := range outs {
+			if id < 0 {
 				continue
 			}
-			if fold || isStatic(name) {
-				static[name] = true
+			if fold || static.has(id) {
+				static.mark(id)
 				continue
 			}
-			add(name, i, i)
+			add(id, i, i)
 		}
 	}
 	for _, o := range g.Outputs {
-		if r := recs[o.Name]; r != nil {
-			r.last = lastStep
+		if id := x.lookup(o.Name); id >= 0 && recs[id] != nil {
+			recs[id].last = lastStep
 		}
 	}
 
-	var lts []Lifetime
+	lts := make([]Lifetime, 0, len(order))
 	for _, r := range order {
-		size, reason := tensorBytes(vals[r.name])
+		name := x.names[r.id]
+		size, reason := tensorBytes(x.vals[r.id])
 		if reason != "" {
-			u := Unresolved{Node: r.name, Reason: fmt.Sprintf("memory unknown: %s (tensor %q)", reason, r.name)}
+			u := Unresolved{Node: name, Reason: fmt.Sprintf("memory unknown: %s (tensor %q)", reason, name)}
 			if r.producer >= 0 {
 				n := g.Nodes[r.producer]
 				u.Node, u.Op = nodeLabel(n, r.producer), n.Op
@@ -220,23 +228,23 @@ func planGraph(g *model.Graph, vals map[string]*Value, subs map[*model.Graph]map
 			plan.Unresolved = append(plan.Unresolved, u)
 			continue
 		}
-		lts = append(lts, Lifetime{Name: r.name, Size: size, First: r.first, Last: r.last})
+		lts = append(lts, Lifetime{Name: name, Size: size, First: r.first, Last: r.last})
 	}
 
 	plan.finish(g, steps, lts, lts, bodyPeak, bodyArena)
 	return plan
 }
 
-// bodies plans the subgraphs of node n (step i) with planBody, records the
-// largest body peak and arena at step i, and calls use with every name the
-// bodies read, so that outer tensors stay live through the node. It
-// reports whether n has a subgraph.
-func (plan *MemoryPlan) bodies(n *model.Node, i, depth int, vals map[string]*Value, subs map[*model.Graph]map[string]*Value, bodyPeak, bodyArena map[int]int64,
+// bodies plans the subgraphs of node n (step i, its first input cond) with
+// planBody, records the largest body peak and arena at step i, and calls
+// use with every name the bodies read, so that outer tensors stay live
+// through the node. It reports whether n has a subgraph.
+func (plan *MemoryPlan) bodies(n *model.Node, i, depth int, cond *Value, subs map[*model.Graph]map[string]*Value, bodyPeak, bodyArena map[int]int64,
 	use func(string), planBody func(*model.Graph, map[string]*Value) *MemoryPlan) bool {
 	hasBody := false
 	// An If whose condition is known runs one branch; the other was not
 	// inferred and takes no memory.
-	taken := takenBranch(n, vals[n.Input(0)])
+	taken := takenBranch(n, cond)
 	if n.Op == "If" && taken == "" {
 		// The condition may come from an enclosing graph: the branch
 		// inference alone inferred is the one taken.
@@ -679,30 +687,4 @@ func (t *stepTree) q(node, l, r, a, b int, mark int32, stamp []int32, out []int3
 	mid := (l + r) / 2
 	out = t.q(2*node, l, mid, a, b, mark, stamp, out)
 	return t.q(2*node+1, mid+1, r, a, b, mark, stamp, out)
-}
-
-// staticValues tells which values of g take no activation memory: the
-// initializers and sparse initializers, whatever inference knows
-// statically (Value.Const()) or found stored in the file (Value.Weight), and
-// state kept between invocations (Value.State, counted apart as
-// persistent bytes).
-// Both memory views plan only the other tensors. The map is returned so
-// that a planner can mark the outputs it folds as static too.
-func staticValues(g *model.Graph, vals map[string]*Value) (map[string]bool, func(name string) bool) {
-	static := make(map[string]bool, len(g.Initializers)+len(g.Sparse))
-	for _, t := range g.Initializers {
-		static[t.Name] = true
-	}
-	for _, sp := range g.Sparse {
-		if sp.Values != nil {
-			static[sp.Values.Name] = true
-		}
-	}
-	return static, func(name string) bool {
-		if static[name] {
-			return true
-		}
-		v := vals[name]
-		return v != nil && (v.Weight || v.State || v.Const() != nil)
-	}
 }

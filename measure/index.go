@@ -1,0 +1,138 @@
+package measure
+
+import "github.com/loadline/loadline/model"
+
+// graphIndex numbers the values one graph names, so that the passes after
+// inference (the memory planners) keep their per-value records in slices
+// indexed by number rather than in maps keyed by name: on a graph of
+// 100,000 nodes, name look-ups were most of their time. Every name the
+// graph's inputs, initializers, nodes and outputs mention gets a number,
+// names of an enclosing graph that its nodes read included (inference has
+// no value for those in this graph: vals[id] is nil, as a look-up by name
+// in the graph's own values finds nothing).
+type graphIndex struct {
+	ids   map[string]int32
+	names []string
+	// vals holds, by number, what inference found of each value.
+	vals []*Value
+	// in and out hold the numbers of every node's inputs and outputs in
+	// turn, -1 for an omitted one (""); node i's are in[inAt[i]:inAt[i+1]]
+	// and out[outAt[i]:outAt[i+1]].
+	in, out     []int32
+	inAt, outAt []int32
+}
+
+// newGraphIndex numbers the values of g, whose inferred values are vals.
+func newGraphIndex(g *model.Graph, vals map[string]*Value) *graphIndex {
+	nIn, nOut := 0, 0
+	for _, n := range g.Nodes {
+		nIn += len(n.Inputs)
+		nOut += len(n.Outputs)
+	}
+	size := len(g.Inputs) + len(g.Initializers) + nOut + len(g.Outputs)
+	x := &graphIndex{ids: make(map[string]int32, size), names: make([]string, 0, size), vals: make([]*Value, 0, size),
+		in: make([]int32, 0, nIn), out: make([]int32, 0, nOut),
+		inAt: make([]int32, 0, len(g.Nodes)+1), outAt: make([]int32, 0, len(g.Nodes)+1)}
+	number := func(name string) int32 {
+		if name == "" {
+			return -1
+		}
+		if id, ok := x.ids[name]; ok {
+			return id
+		}
+		id := int32(len(x.names))
+		x.ids[name] = id
+		x.names = append(x.names, name)
+		x.vals = append(x.vals, vals[name])
+		return id
+	}
+	for _, in := range g.Inputs {
+		number(in.Name)
+	}
+	for _, t := range g.Initializers {
+		number(t.Name)
+	}
+	for _, n := range g.Nodes {
+		x.inAt = append(x.inAt, int32(len(x.in)))
+		x.outAt = append(x.outAt, int32(len(x.out)))
+		for _, name := range n.Inputs {
+			x.in = append(x.in, number(name))
+		}
+		for _, name := range n.Outputs {
+			x.out = append(x.out, number(name))
+		}
+	}
+	x.inAt = append(x.inAt, int32(len(x.in)))
+	x.outAt = append(x.outAt, int32(len(x.out)))
+	for _, o := range g.Outputs {
+		number(o.Name)
+	}
+	return x
+}
+
+// lookup is the number of name, -1 for "" or a name the graph never
+// mentions.
+func (x *graphIndex) lookup(name string) int32 {
+	if id, ok := x.ids[name]; ok {
+		return id
+	}
+	return -1
+}
+
+// ins and outs are the numbers of node i's inputs and outputs.
+func (x *graphIndex) ins(i int) []int32  { return x.in[x.inAt[i]:x.inAt[i+1]] }
+func (x *graphIndex) outs(i int) []int32 { return x.out[x.outAt[i]:x.outAt[i+1]] }
+
+// value is the inferred value numbered id, nil for -1.
+func (x *graphIndex) value(id int32) *Value {
+	if id < 0 {
+		return nil
+	}
+	return x.vals[id]
+}
+
+// staticSet tells which values of a graph take no activation memory: the
+// initializers and sparse initializers, whatever inference knows
+// statically (Value.Const) or found stored in the file (Value.Weight), and
+// state kept between invocations (Value.State, counted apart as persistent
+// bytes). Both memory views plan only the other tensors; a planner marks
+// the outputs it folds as static too.
+type staticSet struct {
+	x      *graphIndex
+	marked []bool // initializers and what a planner folded
+}
+
+// newStaticSet is the static set of g, whose numbered values are x.
+func newStaticSet(g *model.Graph, x *graphIndex) *staticSet {
+	s := &staticSet{x: x, marked: make([]bool, len(x.names))}
+	for _, t := range g.Initializers {
+		s.marked[x.ids[t.Name]] = true
+	}
+	for _, sp := range g.Sparse {
+		if sp.Values != nil {
+			if id := x.lookup(sp.Values.Name); id >= 0 {
+				s.marked[id] = true
+			}
+		}
+	}
+	return s
+}
+
+// has reports whether value id is static; -1 (an omitted input) is not.
+func (s *staticSet) has(id int32) bool {
+	if id < 0 {
+		return false
+	}
+	if s.marked[id] {
+		return true
+	}
+	v := s.x.vals[id]
+	return v != nil && (v.Weight || v.State || v.Const() != nil)
+}
+
+// mark makes value id static.
+func (s *staticSet) mark(id int32) {
+	if id >= 0 {
+		s.marked[id] = true
+	}
+}
