@@ -64,7 +64,7 @@ func Annotations(res *budget.Result) []Annotation {
 	// The file property is the path as git names it, for GitHub to find
 	// the file; the title and message are for people and show every
 	// outside string escaped. A path that needs escaping (a control
-	// character, "##[", a leading "::") gets no file property: its
+	// character, "##[" or "##vso[", a leading "::") gets no file property: its
 	// annotation is on the run, naming the path escaped in the message.
 	shown := display.Copy(res)
 	var out []Annotation

@@ -16,21 +16,29 @@ import (
 
 // Hostile file names, committed to a real repository: each tries to write
 // a line the GitHub Actions runner takes for a workflow command (a line
-// that starts with "::", or holds "##[" anywhere), or to move the cursor.
+// that starts with "::", or holds "##[" anywhere), a line the Azure
+// Pipelines agent takes for a logging command (one that holds "##vso["
+// anywhere: the agent's Command.TryParse looks for it with IndexOf, in
+// microsoft/azure-pipelines-agent src/Agent.Worker/Command.cs), or to move
+// the cursor. The same text reports are printed under any CI, supported or
+// not.
 var hostileNames = []string{
 	"models/x\n::add-mask::hunter2\n::error title=INJECTED::pwned.onnx",
 	"::error title=ROOT::lead.onnx",
 	"models/legacy ##[error]old-form.onnx",
 	"models/esc\x1b[2K\r::warning::cr.onnx",
+	"models/az\n##vso[task.setvariable variable=LOADLINE_PWNED]yes.onnx",
+	"models/azure mid-line ##vso[task.complete result=Succeeded]done.onnx",
+	"##[add-mask]hunter2/##VSO[task.setsecret]lead.onnx",
 }
 
 // ownAnnotation is the form of loadline's own workflow commands: the level,
 // the file and title properties with ':' and ',' escaped, then the message.
 var ownAnnotation = regexp.MustCompile(`^::(error|warning) (file=[^:,]*,)?title=loadline%3A [^:]*::`)
 
-// checkCILines fails when any line of text could be read by the runner as
-// a command other than loadline's own annotations, or holds a raw control
-// character.
+// checkCILines fails when any line of text could be read by a CI runner
+// as a command other than loadline's own annotations, or holds a raw
+// control character.
 func checkCILines(t *testing.T, what, text string, annotations bool) {
 	t.Helper()
 	for i, line := range strings.Split(text, "\n") {
@@ -40,6 +48,9 @@ func checkCILines(t *testing.T, what, text string, annotations bool) {
 		}
 		if strings.Contains(line, "##[") {
 			t.Errorf("%s line %d holds the legacy command opener: %q", what, i+1, line)
+		}
+		if strings.Contains(strings.ToLower(line), "##vso[") {
+			t.Errorf("%s line %d holds Azure Pipelines' command opener: %q", what, i+1, line)
 		}
 		if strings.ContainsAny(line, "\r\x1b\x00") {
 			t.Errorf("%s line %d holds a control character: %q", what, i+1, line)

@@ -5,9 +5,13 @@
 //
 // A CI runner reads commands from a job's output: GitHub Actions runs a line
 // that starts with "::" (after leading white space) and one that holds "##["
-// anywhere (the legacy form); GitLab CI reads section markers made of
-// escape sequences and carriage returns. A file named
-// "x\n::error title=INJECTED::pwned.onnx" would otherwise write such a line.
+// anywhere (the legacy form); the Azure Pipelines agent runs a line that
+// holds "##vso[" anywhere (its Command.TryParse finds the opener with
+// IndexOf); GitLab CI reads section markers made of escape sequences and
+// carriage returns. A file named "x\n::error title=INJECTED::pwned.onnx"
+// would otherwise write such a line. The same reports are printed under
+// any CI, supported by loadline's posting or not, so every opener is
+// escaped wherever loadline runs.
 package display
 
 import (
@@ -23,9 +27,16 @@ import (
 // character, invalid UTF-8 byte and Unicode format or separator character
 // (bidirectional overrides, zero-width characters, line separators) is
 // written as a Go escape (\n, \t, \x1b, \u202e), so s stays on one line and
-// cannot move the cursor or reorder text; "##[" becomes "##\x5b"; and a
-// leading "::" (after spaces) becomes "\x3a:". Printable text, spaces and
-// backslashes are kept as they are.
+// cannot move the cursor or reorder text; the command openers "##[" and
+// "##vso[" (any case) become "##\x5b" and "##vso\x5b"; and a leading "::"
+// (after spaces) becomes "\x3a:". Printable text, spaces and backslashes
+// are kept as they are.
+//
+// What Escape returns stays safe when text is written right after it,
+// another escaped string or a literal "[": a '#' that could join with
+// what follows into an opener (a last '#', or the second '#' of a
+// trailing "##v", "##vs", "##vso") becomes "\x23", and a lone ':' after
+// spaces, which a following ':' would make a leading "::", becomes "\x3a".
 func Escape(s string) string {
 	if safe(s) {
 		return s
@@ -33,6 +44,7 @@ func Escape(s string) string {
 	var b strings.Builder
 	b.Grow(len(s) + 8)
 	lead := true // still in the leading spaces
+	hash := joinHash(s)
 	for i := 0; i < len(s); {
 		r, n := utf8.DecodeRuneInString(s[i:])
 		switch {
@@ -44,10 +56,12 @@ func Escape(s string) string {
 			b.WriteString(`\r`)
 		case r == '\t':
 			b.WriteString(`\t`)
-		case r == ':' && lead && strings.HasPrefix(s[i:], "::"):
+		case r == ':' && lead && (strings.HasPrefix(s[i:], "::") || i == len(s)-1):
 			b.WriteString(`\x3a`)
-		case r == '[' && i >= 2 && s[i-2:i] == "##":
+		case r == '[' && opener(s, i):
 			b.WriteString(`\x5b`)
+		case i == hash:
+			b.WriteString(`\x23`)
 		case r == ' ' || unicode.IsPrint(r):
 			b.WriteRune(r)
 		case r < 0x80:
@@ -70,12 +84,37 @@ func Escape(s string) string {
 func safe(s string) bool {
 	for i := 0; i < len(s); i++ {
 		c := s[i]
-		if c < 0x20 || c >= 0x7f {
+		if c < 0x20 || c >= 0x7f || c == '[' && opener(s, i) {
 			return false
 		}
 	}
 	t := strings.TrimLeft(s, " ")
-	return !strings.HasPrefix(t, "::") && !strings.Contains(s, "##[")
+	return !strings.HasPrefix(t, "::") && t != ":" && joinHash(s) < 0
+}
+
+// opener reports whether the '[' at s[i] closes a CI command opener:
+// GitHub's legacy "##[" or Azure Pipelines' "##vso[" (in any case: the
+// agent's match is case-sensitive, but nothing is lost by escaping more).
+func opener(s string, i int) bool {
+	return i >= 2 && s[i-2:i] == "##" ||
+		i >= 5 && s[i-5:i-3] == "##" && strings.EqualFold(s[i-3:i], "vso")
+}
+
+// joinHash returns the index of the '#' at the end of s that text written
+// right after s could join into an opener — s's last byte when it is '#'
+// (followed by "#[" or "#vso["), or the second '#' of a trailing "##v",
+// "##vs" or "##vso" (followed by the rest of "vso[") — or -1.
+func joinHash(s string) int {
+	n := len(s)
+	if n > 0 && s[n-1] == '#' {
+		return n - 1
+	}
+	for k := 1; k <= 3 && k+2 <= n; k++ {
+		if s[n-k-2:n-k] == "##" && strings.EqualFold(s[n-k:], "vso"[:k]) {
+			return n - k - 1
+		}
+	}
+	return -1
 }
 
 func hex(b *strings.Builder, prefix string, v uint32, digits int) {
@@ -87,11 +126,23 @@ func hex(b *strings.Builder, prefix string, v uint32, digits int) {
 }
 
 // GuardJSON makes an encoded JSON document safe on a CI log without
-// changing what it decodes to: "##[" inside a string is written
-// "##\u005b". (encoding/json already escapes control characters, and an
-// encoded line never starts with "::".)
+// changing what it decodes to: the '[' of "##[" or "##vso[" (any case)
+// inside a string is written "\u005b". (encoding/json already escapes
+// control characters, an encoded line never starts with "::", and strings
+// are never written next to each other without a quote between them.)
 func GuardJSON(doc []byte) []byte {
-	return bytes.ReplaceAll(doc, []byte("##["), []byte(`##\u005b`))
+	if !bytes.Contains(doc, []byte("##")) {
+		return doc
+	}
+	out := make([]byte, 0, len(doc)+16)
+	for i, c := range doc {
+		if c == '[' && opener(string(doc[max(0, i-5):i+1]), min(i, 5)) {
+			out = append(out, `\u005b`...)
+			continue
+		}
+		out = append(out, c)
+	}
+	return out
 }
 
 // Copy returns a deep copy of v with Escape applied to every string it

@@ -18,7 +18,24 @@ func TestEscape(t *testing.T) {
 		{"a::b", "a::b"},
 		{":a", ":a"},
 		{"x ##[error]y ##[warning]z", `x ##\x5berror]y ##\x5bwarning]z`},
-		{"#[a] ##", "#[a] ##"},
+		{"###[x", `###\x5bx`},
+		// Azure Pipelines' logging command, anywhere on the line.
+		{"models/a\n##vso[task.setvariable variable=x]1.onnx", `models/a\n##vso\x5btask.setvariable variable=x]1.onnx`},
+		{"a ##VSO[task.complete]b ##Vso[c", `a ##VSO\x5btask.complete]b ##Vso\x5bc`},
+		{"#vso[ ##vs[ ##v[ vso[", "#vso[ ##vs[ ##v[ vso["},
+		// An end that text written after it could join into an opener.
+		{"models/x##", `models/x#\x23`},
+		{"a#", `a\x23`},
+		{"a##v", `a#\x23v`},
+		{"a##VS", `a#\x23VS`},
+		{"a##vso", `a#\x23vso`},
+		{"a#vso", "a#vso"},
+		{"a##x", "a##x"},
+		{"#", `\x23`},
+		{":", `\x3a`},
+		{"  :", `  \x3a`},
+		{"a:", "a:"},
+		{"#[a] ##", `#[a] #\x23`},
 		{"tab\there\r", `tab\there\r`},
 		{"\x1b[31mred\x1b[0m", `\x1b[31mred\x1b[0m`},
 		{"\x00\x7f", `\x00\x7f`},
@@ -47,7 +64,7 @@ func FuzzEscape(f *testing.F) {
 		if strings.ContainsAny(e, "\n\r\x1b\x00") {
 			t.Fatalf("%q escapes to %q", s, e)
 		}
-		if strings.HasPrefix(strings.TrimLeft(e, " "), "::") || strings.Contains(e, "##[") {
+		if opens(e) {
 			t.Fatalf("%q escapes to a command opener %q", s, e)
 		}
 		for _, r := range e {
@@ -61,7 +78,34 @@ func FuzzEscape(f *testing.F) {
 	})
 }
 
-func isPrint(r rune) bool { return Escape(string(r)) == string(r) }
+// isPrint reports whether Escape keeps r as it is, between letters (a lone
+// ':' or a last '#' is escaped for what may follow it).
+func isPrint(r rune) bool { s := "a" + string(r) + "a"; return Escape(s) == s }
+
+// opens reports whether a line holds a command opener of a CI runner: a
+// leading "::" (GitHub Actions), "##[" (GitHub's legacy form, and Azure
+// Pipelines' formatting) or "##vso[" (Azure Pipelines) anywhere.
+func opens(line string) bool {
+	return strings.HasPrefix(strings.TrimLeft(line, " "), "::") || strings.Contains(line, "##[") ||
+		strings.Contains(strings.ToLower(line), "##vso[")
+}
+
+// FuzzEscapeJoin: two escaped strings written one after the other, or an
+// escaped string followed by a literal "[" (as in name[3]), still hold no
+// command opener: a message built by joining escaped parts is as safe as
+// its parts.
+func FuzzEscapeJoin(f *testing.F) {
+	for _, p := range [][2]string{{"a#", "#[x"}, {"x##", "vso[y"}, {"##v", "so[z"}, {":", ":error::x"}, {"  :", ":w"}, {"", "##[a"}} {
+		f.Add(p[0], p[1])
+	}
+	f.Fuzz(func(t *testing.T, a, b string) {
+		for _, joined := range []string{Escape(a) + Escape(b), Escape(a) + "[" + Escape(b), Escape(a) + Escape(b) + "["} {
+			if opens(joined) {
+				t.Fatalf("%q and %q join into a command opener: %q", a, b, joined)
+			}
+		}
+	})
+}
 
 type inner struct {
 	Name  string
@@ -113,11 +157,16 @@ func TestCopyEscapesEveryString(t *testing.T) {
 }
 
 func TestGuardJSON(t *testing.T) {
-	v := map[string]string{"path": "x ##[error]pwned \n::add-mask::y"}
+	v := map[string]string{"path": "x ##[error]pwned \n::add-mask::y", "az": "a\n##vso[task.setvariable variable=x]1 ##VSO[b ##vs[ #[", "list": "##"}
 	doc, _ := json.Marshal(v)
 	g := GuardJSON(doc)
-	if strings.Contains(string(g), "##[") {
-		t.Fatalf("%s", g)
+	for _, line := range strings.Split(string(g), "\n") {
+		if opens(line) {
+			t.Fatalf("%s", g)
+		}
+	}
+	if !strings.Contains(string(g), `##vs[ #[`) {
+		t.Fatalf("GuardJSON changed more than the openers: %s", g)
 	}
 	var back map[string]string
 	if err := json.Unmarshal(g, &back); err != nil || back["path"] != v["path"] {
