@@ -55,7 +55,9 @@ func (f *Figures) RunArena() int64 {
 //     which that runtime allocates beside the arena. Either way plus
 //     ParamBytes when the device keeps weights in RAM (weights: ram), as
 //     the runtime copies them there before it runs; when weights live in
-//     flash (weights: flash, the default) they are read in place.
+//     flash (weights: flash, the default) they are read in place, except
+//     those the file does not store (GeneratedParamBytes, computed from
+//     constants at load time), which are held in RAM either way.
 //   - flash = FileBytes + ExternalBytes, the model as stored (the model
 //     file, weights plus graph, and any external data files its weights
 //     live in), wherever weights live: with weights: flash they are read
@@ -79,6 +81,8 @@ func (d *Device) Deploy(fig *Figures) *Figures {
 		if why, ok := fig.Unknown[MetricWeights]; ok {
 			setUnknown(&out, MetricRAM, "weights: "+why)
 		}
+	} else {
+		out.RAM = addSat(out.RAM, fig.GeneratedParamBytes)
 	}
 	out.Flash = addSat(fig.FileBytes, fig.ExternalBytes)
 	if why, ok := fig.Unknown[MetricFile]; ok {

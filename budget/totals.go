@@ -160,8 +160,10 @@ func (dev *Device) Totals(models []DeviceInput) (DeviceTotals, []DeviceShare, []
 		persist = addSat(persist, sh.Persist)
 		if dev.Weights == WeightsRAM {
 			sh.Weights = in.Figures.ParamBytes
-			weights = addSat(weights, sh.Weights)
+		} else {
+			sh.Weights = in.Figures.GeneratedParamBytes // held in RAM either way (Device.Deploy)
 		}
+		weights = addSat(weights, sh.Weights)
 		for _, c := range in.Figures.Constants {
 			s := digests[c.Digest]
 			if s == nil {

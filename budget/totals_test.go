@@ -209,3 +209,27 @@ devices:
 		t.Errorf("diff:\n%s\nwant:\n%s", strings.Join(got, "\n"), strings.Join(want, "\n"))
 	}
 }
+
+// TestLoadTimeWeightsInRAM: weights computed at load time
+// (GeneratedParamBytes) are in RAM wherever the device keeps its weights,
+// in the model's ram and in the device total. Hand-worked: arena 32,768 B
+// + generated 67,108,864 B = 67,141,632 B with weights in flash; with
+// weights in RAM, param bytes 67,109,864 (1,000 stored + the generated
+// ones) + 32,768 = 67,142,632 B.
+func TestLoadTimeWeightsInRAM(t *testing.T) {
+	fig := &Figures{FileBytes: 1181, ParamBytes: 67_109_864, GeneratedParamBytes: 67_108_864,
+		Memory: MemoryFigures{Deployed: MemoryView{ArenaBytes: 32_768, PeakLiveBytes: 32_768}}}
+	for _, tc := range []struct {
+		weights string
+		want    int64
+	}{{WeightsFlash, 67_141_632}, {WeightsRAM, 67_142_632}} {
+		dev := &Device{Name: "board", Weights: tc.weights, Runs: RunsOneAtATime}
+		if got := dev.Deploy(fig).RAM; got != tc.want {
+			t.Errorf("weights: %s: ram %d, want %d", tc.weights, got, tc.want)
+		}
+		tot, shares, _ := dev.Totals([]DeviceInput{{Path: "w.onnx", Figures: fig}})
+		if tot.RAMBytes != tc.want || len(shares) != 1 || shares[0].Weights != tc.want-32_768 {
+			t.Errorf("weights: %s: total ram %d (shares %+v), want %d", tc.weights, tot.RAMBytes, shares, tc.want)
+		}
+	}
+}

@@ -17,7 +17,7 @@ const (
 	MetricMACs    = "macs"    // multiply-accumulates
 	MetricFLOPs   = "flops"   // floating-point operations
 	MetricArena   = "arena"   // deployed activation arena bytes
-	MetricRAM     = "ram"     // arena + weights when the device keeps weights in RAM; defined in Device.Deploy
+	MetricRAM     = "ram"     // arena + weights when the device keeps weights in RAM (else the generated ones); defined in Device.Deploy
 	MetricFlash   = "flash"   // the model file as stored in flash; defined in Device.Deploy
 	// The device cost model's figures, for a device that names a target
 	// (package target defines them): estimated latency in nanoseconds,
@@ -47,6 +47,11 @@ type Figures struct {
 	Memory        MemoryFigures `json:"memory"`
 	RAM           int64         `json:"ram"`
 	Flash         int64         `json:"flash"`
+	// GeneratedParamBytes is the part of ParamBytes the file does not
+	// store (weights computed from constants at load time): the device
+	// holds them in RAM wherever it keeps its weights, so ram counts them
+	// with weights: flash too (Device.Deploy).
+	GeneratedParamBytes int64 `json:"generated_param_bytes,omitempty"`
 	// Target is the estimate on the device's target, nil when the device
 	// names none.
 	Target *TargetFigures `json:"target,omitempty"`

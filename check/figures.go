@@ -19,12 +19,13 @@ func Figures(m *measure.Metrics) *budget.Figures {
 		return nil
 	}
 	f := &budget.Figures{
-		FileBytes:     m.FileBytes,
-		ExternalBytes: m.ExternalBytes,
-		Params:        m.Params,
-		ParamBytes:    m.ParamBytes,
-		MACs:          m.MACs,
-		FLOPs:         m.FLOPs,
+		FileBytes:           m.FileBytes,
+		ExternalBytes:       m.ExternalBytes,
+		Params:              m.Params,
+		ParamBytes:          m.ParamBytes,
+		GeneratedParamBytes: m.GeneratedParamBytes,
+		MACs:                m.MACs,
+		FLOPs:               m.FLOPs,
 		Memory: budget.MemoryFigures{
 			Graph:           budget.MemoryView{PeakLiveBytes: m.Memory.Graph.PeakLiveBytes, ArenaBytes: m.Memory.Graph.ArenaBytes},
 			Deployed:        budget.MemoryView{PeakLiveBytes: m.Memory.Deployed.PeakLiveBytes, ArenaBytes: m.Memory.Deployed.ArenaBytes},

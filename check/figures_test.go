@@ -44,3 +44,66 @@ func TestDetailOfViews(t *testing.T) {
 		t.Errorf("deployed view %+v", dv)
 	}
 }
+
+// TestLoadTimeWeightsJudged: a weight the file does not store, computed at
+// load time (W = ConstantOfShape([4096, 4096], 0.01) read by a MatMul),
+// cannot dodge the weights and ram budgets. Hand-worked: 4096 × 4096 × 4 B
+// = 67,108,864 B of weights (64 MiB > the 1 MiB limit); the arena is x and
+// y, 1 × 4096 × 4 B each = 32,768 B, so ram = 32,768 + 67,108,864 =
+// 67,141,632 B on a device that keeps weights in flash (the weight is in
+// no flash: it is computed into RAM), and the same with weights in RAM.
+func TestLoadTimeWeightsJudged(t *testing.T) {
+	shape := &model.Tensor{Name: "shape", DType: model.Int64, Dims: []int64{2},
+		Data: model.TensorData{Encoding: model.EncodingRaw, Segments: [][]byte{{0, 16, 0, 0, 0, 0, 0, 0, 0, 16, 0, 0, 0, 0, 0, 0}}}} // 4096, 4096
+	fill := &model.Tensor{Name: "value", DType: model.Float32, Dims: []int64{1},
+		Data: model.TensorData{Encoding: model.EncodingRaw, Segments: [][]byte{{0x0a, 0xd7, 0x23, 0x3c}}}} // 0.01
+	g := &model.Graph{
+		Inputs: []*model.ValueInfo{{Name: "x", Type: model.TensorType(model.Float32, model.KnownShape(1, 4096))}},
+		Nodes: []*model.Node{
+			{Op: "Constant", Name: "s", Outputs: []string{"shape"}, Attrs: []*model.Attr{{Name: "value", Kind: model.AttrTensor, Tensor: shape}}},
+			{Op: "ConstantOfShape", Name: "w", Inputs: []string{"shape"}, Outputs: []string{"w"}, Attrs: []*model.Attr{{Name: "value", Kind: model.AttrTensor, Tensor: fill}}},
+			{Op: "MatMul", Name: "mm", Inputs: []string{"x", "w"}, Outputs: []string{"y"}},
+		},
+		Outputs: []*model.ValueInfo{{Name: "y"}},
+	}
+	met, err := measure.Measure(&model.Model{Format: "onnx", IRVersion: 8, Opsets: map[string]int64{"": 13}, Graph: g}, 181, measure.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	f, err := budget.Parse("loadline.yaml", []byte(`version: 1
+devices:
+  board-flash: {ram: 1MiB, flash: 1MiB}
+  board-ram: {ram: 1MiB, flash: 1MiB, weights: ram}
+models:
+  - path: flash/*.onnx
+    device: board-flash
+    limits: {weights: 1MiB, ram: 100%}
+  - path: ram/*.onnx
+    device: board-ram
+    limits: {weights: 1MiB, ram: 100%}
+`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	fig := Figures(met)
+	res := f.Evaluate([]budget.Input{
+		{Path: "flash/w.onnx", Change: budget.Added, Head: fig},
+		{Path: "ram/w.onnx", Change: budget.Added, Head: fig},
+	}, budget.EvalOptions{})
+	for _, mr := range res.Models {
+		judged := 0
+		for _, c := range mr.Checks {
+			want := map[string]int64{budget.MetricWeights: 67_108_864, budget.MetricRAM: 67_141_632}[c.Metric]
+			if c.Kind != "limit" || want == 0 {
+				continue
+			}
+			judged++
+			if c.Status != budget.Fail || c.Value != want {
+				t.Errorf("%s: %s %s %d, want fail at %d (%s)", mr.Path, c.Metric, c.Status, c.Value, want, c.Reason)
+			}
+		}
+		if mr.Status != budget.Fail || judged != 2 {
+			t.Errorf("%s: %s with checks %+v, want fail on weights and ram", mr.Path, mr.Status, mr.Checks)
+		}
+	}
+}

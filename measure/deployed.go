@@ -409,6 +409,11 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, o
 		lts = append(lts, Lifetime{Name: name, Size: r.size, First: r.first, Last: r.last})
 		live = append(live, r.segs...)
 	}
+	// Tensors computed from constants at load time and held for the whole
+	// run (static.go), as in the graph view.
+	held, unres := heldConstants(g, vals, steps)
+	lts, live = append(lts, held...), append(live, held...)
+	plan.Unresolved = append(plan.Unresolved, unres...)
 	// Where each tensor's values end up: a view or in-place output in its
 	// root's buffer, a fused-away tensor in the buffer of what replaced it.
 	bufferOf := map[string]string{}

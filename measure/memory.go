@@ -18,7 +18,10 @@ import (
 //     not initializers and not tensors whose values are known statically
 //     (Value.Const() != nil or Value.Weight, and the outputs of a node whose
 //     every input is itself known statically, such as the DequantizeLinear
-//     of an int8 weight: a runtime folds it once, at load time).
+//     of an int8 weight: a runtime folds it once, at load time). Of those,
+//     the tensors computed at load time and held for the whole run that are
+//     not weights (static.go) are counted as constant memory, live at every
+//     step.
 //   - A tensor is live from its producer's step (graph inputs: step 0)
 //     through its last consumer's step (graph outputs: the last step),
 //     inclusive. A tensor nobody consumes and that is no graph output is
@@ -230,6 +233,11 @@ func planGraph(inf *Inference, g *model.Graph, vals map[string]*Value, depth int
 		}
 		lts = append(lts, Lifetime{Name: name, Size: size, First: r.first, Last: r.last})
 	}
+	// Tensors computed from constants at load time and held for the whole
+	// run (static.go).
+	held, unres := heldConstants(g, vals, steps)
+	lts = append(lts, held...)
+	plan.Unresolved = append(plan.Unresolved, unres...)
 
 	plan.finish(g, steps, lts, lts, bodyPeak, bodyArena)
 	return plan

@@ -279,6 +279,11 @@ func bruteLiveBytes(inf *Inference) []int64 {
 	}
 	// Static: a weight, or the output of a node that reads only static
 	// values (folded at load time).
+	type heldLife struct {
+		name        string
+		first, last int
+	}
+	var held []heldLife
 	static := map[string]bool{}
 	for i, n := range g.Nodes {
 		folded := true
@@ -292,8 +297,81 @@ func bruteLiveBytes(inf *Inference) []int64 {
 			}
 		}
 	}
+	// Held (static.go): a folded output with more than one element and
+	// more elements than its folded inputs' sources at data positions,
+	// read by a node that is not folded or a graph output. From stored
+	// values alone and never read at a data position: live at every step;
+	// from an inferred value: live from its producer through its last
+	// reader that is not folded.
+	elems := func(name string) int64 { n, _ := inf.Values[name].Type.Shape.Elements(); return n }
+	src := map[string]int64{}
+	stored := map[string]bool{}
+	folded := make([]bool, len(g.Nodes))
+	for i, n := range g.Nodes {
+		folded[i] = true
+		for _, in := range n.Inputs {
+			folded[i] = folded[i] && static[in]
+		}
+		if !folded[i] {
+			continue
+		}
+		var from int64
+		fromStored := true
+		for j, in := range n.Inputs {
+			e, ok := src[in]
+			if !ok {
+				e = elems(in)
+				fromStored = fromStored && inf.Values[in].Weight
+			} else {
+				fromStored = fromStored && stored[in]
+			}
+			if !isShapeOperand(n, j) {
+				from += e
+			}
+		}
+		for _, o := range n.Outputs {
+			src[o], stored[o] = from, fromStored
+		}
+	}
+	for i, n := range g.Nodes {
+		if !folded[i] {
+			continue
+		}
+		for _, o := range n.Outputs {
+			if elems(o) <= 1 || elems(o) <= src[o] {
+				continue
+			}
+			first, last, data := -1, -1, false
+			for c, m := range g.Nodes {
+				for j, in := range m.Inputs {
+					if in == o && !folded[c] {
+						first, last = i, c
+						data = data || !isShapeOperand(m, j)
+					}
+				}
+			}
+			for _, out := range g.Outputs {
+				if out.Name == o {
+					first, last = i, steps-1
+				}
+			}
+			switch {
+			case first < 0 || stored[o] && data:
+				continue // not held, or a parameter
+			case stored[o]:
+				first, last = 0, steps-1
+			}
+			held = append(held, heldLife{o, first, last})
+		}
+	}
+
 	out := make([]int64, steps)
 	for s := range steps {
+		for _, h := range held {
+			if h.first <= s && s <= h.last {
+				out[s] += elems(h.name)
+			}
+		}
 		for _, t := range ts {
 			if t.prod > s {
 				continue

@@ -37,6 +37,10 @@ type Metrics struct {
 
 	// ParamsByDType breaks param_bytes down by dtype.
 	ParamsByDType []DTypeBytes `json:"params_by_dtype"`
+	// GeneratedParamBytes is the part of param_bytes the file does not
+	// store: weights computed from constants at load time (static.go),
+	// which a device holds in RAM wherever it keeps its weights.
+	GeneratedParamBytes int64 `json:"generated_param_bytes"`
 	// Opsets are the operator set versions the model imports.
 	Opsets map[string]int64 `json:"opsets,omitempty"`
 	// Nodes is the number of nodes of the main graph.
@@ -111,6 +115,9 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	for _, w := range ws {
 		out.Params += w.Elements
 		out.ParamBytes += w.Bytes
+		if w.Generated {
+			out.GeneratedParamBytes += w.Bytes
+		}
 	}
 	out.ParamsByDType = ParamsByDType(ws)
 	out.Sparsity = sparsity(ws)

@@ -21,7 +21,10 @@ import (
 // parameters. Nor are BatchNormalization's running mean and variance
 // (statistics, not learned weights; torchvision's published counts leave
 // them out too) or quantization scales and zero points (the metadata of a
-// quantized weight, not its elements).
+// quantized weight, not its elements). A weight the file does not store but
+// that is computed from constants at load time (a ConstantOfShape, Expand,
+// Tile, … read as a weight) is a parameter too, at its own elements and
+// dtype: static.go defines which.
 
 // shapeOperands lists, per operator, the input positions that carry shapes,
 // indices, axes or counts rather than data, or statistics and quantization
@@ -73,6 +76,9 @@ type ParamTensor struct {
 	// Zeros is the count of elements exactly zero, -1 when not scanned
 	// (the tensor is declared without values, or its bytes cannot be read).
 	Zeros int64 `json:"-"`
+	// Generated marks a weight the file does not store: computed from
+	// constants at load time (static.go).
+	Generated bool `json:"-"`
 }
 
 // Sparsity. Definition (README "Conventions"): the share of parameter
@@ -273,6 +279,8 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 			out = append(out, ParamTensor{Name: name, DType: t.DType, Elements: t.Elements(), Bytes: t.StorageBytes(), Zeros: zeros})
 		}
 	}
+	// Weights computed from constants at load time count too (static.go).
+	out = append(out, generatedWeights(inf)...)
 	return out, readErr
 }
 

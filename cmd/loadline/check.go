@@ -32,7 +32,8 @@ sign-off states a model's headroom as the smallest share of an allowance
 left: (limit − figure) ÷ limit, or ÷ (limit − base) for growth. ram =
 deployed activation arena, or for a TFLite model the runtime arena plus
 the persistent bytes of its variable tensors (+ weight bytes when the
-device keeps weights in RAM); flash = the model file's bytes plus its
+device keeps weights in RAM, else + the weight bytes computed at load
+time, generated_param_bytes, which are in RAM either way); flash = the model file's bytes plus its
 external data.
 Device totals, for a device that lists the models it runs: flash = the sum
 of their flash (identical constants of 256 B or more counted once with
@@ -40,7 +41,7 @@ shared_weights: true, else reported as a possible saving; flash_shared =
 each such constant's bytes × (copies − 1)); ram = the largest arena
 (one-at-a-time) or the sum of the arenas (concurrent), plus every model's
 persistent bytes and weights kept in RAM (shared ones once with
-shared_weights: true); load = Σ latency ÷ period, the share of the core's
+shared_weights: true) or computed at load time; load = Σ latency ÷ period, the share of the core's
 time (needs a target). Each total is judged against the device's limits
 (default: its capacities), and each model's latency against its period.
 Exit codes: 0 within budget (warnings allowed), 1 a budget is broken or a

@@ -45,9 +45,23 @@ const conventions = `Figures (static estimates from the model file; measure on t
                used as a weight; constants read only as shapes, indices or axes,
                constants consumed only by shape arithmetic, scalars,
                BatchNormalization running statistics and quantization scales
-               and zero points are not parameters.
+               and zero points are not parameters. Weights computed at load time
+               count too (load time, below).
   param bytes  storage of those parameters at their own dtype (int4 packs two
                to a byte).
+  load time    a node with an input, all inputs fixed (initializers, Constant
+               outputs, inferred values, such nodes' outputs), no subgraph, not
+               random, runs once at load time. Its output is generated when it
+               holds more than one element and more than its fixed data inputs
+               were computed from (ConstantOfShape, Range, Expand, Tile, a
+               broadcast; not a Transpose, Cast, Concat or Dequantize of
+               constants, which count as those constants). Generated and read by
+               a run-time node: from stored constants alone and read at a data
+               position, a parameter (params, param bytes and
+               generated_param_bytes, which ram counts wherever weights live);
+               read only as indices or shapes, constant memory live at every
+               step of both activation views; from an inferred value (the Shape
+               of a run-time tensor), an activation like any node output.
   MACs         multiply-accumulates of Conv (output elements × C_in/group × kernel
                area), ConvTranspose (input elements × C_out/group × kernel area),
                Gemm and MatMul (output elements × K), Einsum (product of the
@@ -65,7 +79,8 @@ const conventions = `Figures (static estimates from the model file; measure on t
   sparsity     share of weight elements exactly zero, read from the weight bytes
                (-1 when no weight has stored values).
   activations  graph view: in the file's node order, each run-time tensor is live
-               from its producer's step through its last consumer's; peak live =
+               from its producer's step through its last consumer's (load-time
+               constants that are not parameters: every step); peak live =
                the largest sum at one step (a lower bound for any allocator); arena =
                an offset plan, greedy by size (Pisarchyk & Lee 2020), ≥ peak.
                Deployed view: the same after BatchNormalization folding, activation

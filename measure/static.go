@@ -1,0 +1,282 @@
+package measure
+
+import (
+	"fmt"
+	"math"
+
+	"github.com/loadline/loadline/model"
+)
+
+// Load-time tensors. Definition (README "Conventions", `loadline measure
+// --help`):
+//
+//   - A tensor is fixed when its values are known before the model runs: an
+//     initializer, a Constant's output (both stored in the file), a value
+//     inference knows (staticValues: the Shape of a tensor of static shape,
+//     a --value binding), and the output of a node a runtime can compute
+//     once, at load time (foldsAtLoad: at least one input, every input
+//     fixed, no subgraph, not random). State kept between invocations
+//     (TFLite variable tensors) is not fixed.
+//   - Such a node's output is generated when it holds more than one element
+//     and more elements than the values it is computed from: the elements of
+//     the fixed inputs at its data positions (not the shape, index,
+//     statistics or quantization-metadata positions of shapeOperands),
+//     summed back through the load-time nodes that computed them down to
+//     stored constants and inferred values. ConstantOfShape, Range, EyeLike,
+//     Expand, Tile and a broadcasting Add or Where of constants generate; a
+//     Transpose, Cast, Reshape, DequantizeLinear, Gather or Concat of
+//     constants does not: its values are those of the constants it re-views,
+//     which count once, as themselves (params.go).
+//   - A generated tensor read by a node computed at run time (a subgraph's
+//     nodes are), or that is a graph output, is held: the file does not
+//     store it, so the device computes it into RAM. A generated tensor read
+//     only by other load-time nodes is scratch of loading and counts
+//     nowhere; what it becomes does.
+//   - A held tensor computed from stored constants alone is held for the
+//     whole run. Read at a data position of a run-time node (where a stored
+//     constant is a parameter), it is a parameter: it counts in params (its
+//     elements), param_bytes (elements × dtype size) and
+//     generated_param_bytes, which ram counts wherever the device keeps its
+//     weights. Read only at shape or index positions, or only a graph
+//     output, it is constant memory of the activation views: live at every
+//     step of the graph and deployed views.
+//   - A held tensor computed from an inferred value (the shape of a run-time
+//     tensor, a bound input: ConstantOfShape(Shape(x)), Expand(mask,
+//     Shape(scores))) is an activation like any node output: live from its
+//     producer's step through its last run-time reader's (a graph output:
+//     the last step), in both views.
+//
+// Inference holds the values of tensors up to maxFoldElements only; the
+// rule above does not depend on them, so a 4096×4096 ConstantOfShape counts
+// as a 64×64 one does.
+
+// heldTensor is a generated tensor the device holds (static.go's rule).
+type heldTensor struct {
+	name     string
+	producer int  // index of the node computing it
+	last     int  // step of its last run-time reader; the last step for a graph output
+	stored   bool // computed from stored constants alone
+	weight   bool // read at a data position of a run-time node
+}
+
+// foldsAtLoad reports whether node n of a graph can be computed once, at
+// load time: it has at least one input, every input is fixed, and it runs
+// no subgraph and draws no random numbers.
+func foldsAtLoad(n *model.Node, fixed func(string) bool) bool {
+	if randomOps[n.Op] {
+		return false
+	}
+	for _, a := range n.Attrs {
+		if a.Graph != nil || len(a.Graphs) > 0 {
+			return false
+		}
+	}
+	inputs := 0
+	for _, name := range n.Inputs {
+		if name == "" {
+			continue
+		}
+		if !fixed(name) {
+			return false
+		}
+		inputs++
+	}
+	return inputs > 0
+}
+
+// heldTensors lists the generated tensors of graph g (its own nodes, not
+// those of its subgraphs) that the device holds, in the order their
+// producers appear.
+func heldTensors(g *model.Graph, vals map[string]*Value) []heldTensor {
+	_, isStatic := staticValues(g, vals)
+	loaded := map[string]bool{} // outputs of load-time nodes
+	src := map[string]int64{}   // elements each is computed from
+	stored := map[string]bool{} // computed from stored constants alone
+	fixed := func(name string) bool {
+		if loaded[name] {
+			return true
+		}
+		v := vals[name]
+		return isStatic(name) && (v == nil || !v.State)
+	}
+	elements := func(name string) (int64, bool) {
+		v := vals[name]
+		if v == nil || v.Type.Kind != model.KindTensor || !v.Type.RankKnown {
+			return 0, false
+		}
+		return v.Type.Shape.Elements()
+	}
+	var generated map[string]int // name → producer
+	var order []string
+	runTime := make([]bool, len(g.Nodes))
+	for i, n := range g.Nodes {
+		if !foldsAtLoad(n, fixed) {
+			runTime[i] = true
+			continue
+		}
+		var from int64
+		fromStored := true
+		for j, name := range n.Inputs {
+			if name == "" {
+				continue
+			}
+			if loaded[name] {
+				fromStored = fromStored && stored[name]
+			} else if v := vals[name]; v == nil || !v.Weight {
+				fromStored = false // inferred, not stored
+			}
+			if isShapeOperand(n, j) || from == math.MaxInt64 {
+				continue
+			}
+			e, ok := src[name]
+			if !loaded[name] {
+				e, ok = elements(name)
+			}
+			if !ok || e < 0 || from > math.MaxInt64-e {
+				from = math.MaxInt64 // not known: never taken for generated
+				continue
+			}
+			from += e
+		}
+		for _, o := range n.Outputs {
+			if o == "" {
+				continue
+			}
+			loaded[o], src[o], stored[o] = true, from, fromStored
+			// Scalars are not counted, as stored ones are not (params.go).
+			e, ok := elements(o)
+			if (ok && e > from && e > 1) || (!ok && from == 0) {
+				if generated == nil {
+					generated = map[string]int{}
+				}
+				generated[o] = i
+				order = append(order, o)
+			}
+		}
+	}
+	if len(generated) == 0 {
+		return nil
+	}
+
+	// Who reads each generated tensor: a run-time node at a data position
+	// makes it a weight; any run-time read, or a graph output, makes it held.
+	last := map[string]int{}
+	weight := map[string]bool{}
+	read := func(name string, step int, data bool) {
+		if _, ok := generated[name]; ok {
+			last[name] = max(last[name], step)
+			weight[name] = weight[name] || data
+		}
+	}
+	var readIn func(sg *model.Graph, step, depth int)
+	readIn = func(sg *model.Graph, step, depth int) {
+		if sg == nil || depth > maxGraphDepth {
+			return
+		}
+		for _, n := range sg.Nodes {
+			for j, name := range n.Inputs {
+				read(name, step, !isShapeOperand(n, j))
+			}
+			for _, a := range n.Attrs {
+				readIn(a.Graph, step, depth+1)
+				for _, b := range a.Graphs {
+					readIn(b, step, depth+1)
+				}
+			}
+		}
+		for _, o := range sg.Outputs {
+			read(o.Name, step, false)
+		}
+	}
+	for i, n := range g.Nodes {
+		if !runTime[i] {
+			continue
+		}
+		for j, name := range n.Inputs {
+			read(name, i, !isShapeOperand(n, j))
+		}
+		// A subgraph body runs at run time: its reads of the enclosing
+		// graph's tensors are run-time reads, at the body node's position,
+		// at its control-flow node's step.
+		for _, a := range n.Attrs {
+			readIn(a.Graph, i, 1)
+			for _, b := range a.Graphs {
+				readIn(b, i, 1)
+			}
+		}
+	}
+	for _, o := range g.Outputs {
+		read(o.Name, max(1, len(g.Nodes))-1, false)
+	}
+	var out []heldTensor
+	for _, name := range order {
+		if l, ok := last[name]; ok {
+			out = append(out, heldTensor{name: name, producer: generated[name], last: l, stored: stored[name], weight: weight[name]})
+		}
+	}
+	return out
+}
+
+// heldConstants are the held tensors of g that are not weights, as
+// lifetimes for the activation views over g's steps steps: those computed
+// from stored constants alone over every step, the others from their
+// producer's step through their last reader's. A held tensor whose size is
+// not static, weight or not, is listed as unresolved instead: the memory
+// figures (and ram, which counts the generated weights) are then lower
+// bounds.
+func heldConstants(g *model.Graph, vals map[string]*Value, steps int) ([]Lifetime, []Unresolved) {
+	var lts []Lifetime
+	var unres []Unresolved
+	for _, h := range heldTensors(g, vals) {
+		size, reason := tensorBytes(vals[h.name])
+		if reason != "" {
+			n := g.Nodes[h.producer]
+			unres = append(unres, Unresolved{Node: nodeLabel(n, h.producer), Op: n.Op,
+				Reason: fmt.Sprintf("memory unknown: %s (tensor %q, computed at load time)", reason, h.name)})
+			continue
+		}
+		switch {
+		case !h.stored:
+			lts = append(lts, Lifetime{Name: h.name, Size: size, First: h.producer, Last: max(h.producer, h.last)})
+		case !h.weight:
+			lts = append(lts, Lifetime{Name: h.name, Size: size, First: 0, Last: steps - 1})
+		}
+	}
+	return lts, unres
+}
+
+// generatedWeights are the held tensors read as weights in the main graph
+// of inf and in every subgraph inference reached, as parameters without
+// stored values.
+func generatedWeights(inf *Inference) []ParamTensor {
+	var out []ParamTensor
+	var walk func(g *model.Graph, vals map[string]*Value, depth int)
+	walk = func(g *model.Graph, vals map[string]*Value, depth int) {
+		if g == nil || vals == nil || depth > maxGraphDepth {
+			return
+		}
+		for _, h := range heldTensors(g, vals) {
+			v := vals[h.name]
+			if !h.stored || !h.weight || v == nil {
+				continue
+			}
+			e, ok := v.Type.Shape.Elements()
+			b := v.Type.DType.StorageBytes(e)
+			if !ok || e > maxTensorBytes || b < 0 || b > maxTensorBytes {
+				continue // listed as unresolved by heldConstants
+			}
+			out = append(out, ParamTensor{Name: h.name, DType: v.Type.DType, Elements: e, Bytes: b, Zeros: -1, Generated: true})
+		}
+		for _, n := range g.Nodes {
+			for _, a := range n.Attrs {
+				for _, sg := range append([]*model.Graph{a.Graph}, a.Graphs...) {
+					if sg != nil {
+						walk(sg, inf.Subgraphs[sg], depth+1)
+					}
+				}
+			}
+		}
+	}
+	walk(inf.Model.Graph, inf.Values, 0)
+	return out
+}
