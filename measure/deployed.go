@@ -411,7 +411,7 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, o
 	}
 	// Tensors computed from constants at load time and held for the whole
 	// run (static.go), as in the graph view.
-	held, unres := heldConstants(g, vals, steps)
+	held, unres := heldConstants(inf, g, vals, steps)
 	lts, live = append(lts, held...), append(live, held...)
 	plan.Unresolved = append(plan.Unresolved, unres...)
 	// Where each tensor's values end up: a view or in-place output in its

@@ -235,7 +235,7 @@ func planGraph(inf *Inference, g *model.Graph, vals map[string]*Value, depth int
 	}
 	// Tensors computed from constants at load time and held for the whole
 	// run (static.go).
-	held, unres := heldConstants(g, vals, steps)
+	held, unres := heldConstants(inf, g, vals, steps)
 	lts = append(lts, held...)
 	plan.Unresolved = append(plan.Unresolved, unres...)
 

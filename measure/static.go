@@ -12,7 +12,7 @@ import (
 //
 //   - A tensor is fixed when its values are known before the model runs: an
 //     initializer, a Constant's output (both stored in the file), a value
-//     inference knows (staticValues: the Shape of a tensor of static shape,
+//     inference knows (staticSet: the Shape of a tensor of static shape,
 //     a --value binding), and the output of a node a runtime can compute
 //     once, at load time (foldsAtLoad: at least one input, every input
 //     fixed, no subgraph, not random). State kept between invocations
@@ -59,10 +59,11 @@ type heldTensor struct {
 	weight   bool // read at a data position of a run-time node
 }
 
-// foldsAtLoad reports whether node n of a graph can be computed once, at
-// load time: it has at least one input, every input is fixed, and it runs
-// no subgraph and draws no random numbers.
-func foldsAtLoad(n *model.Node, fixed func(string) bool) bool {
+// foldsAtLoad reports whether node n of a graph, whose inputs are numbered
+// ins, can be computed once, at load time: it has at least one input,
+// every input is fixed, and it runs no subgraph and draws no random
+// numbers.
+func foldsAtLoad(n *model.Node, ins []int32, fixed func(int32) bool) bool {
 	if randomOps[n.Op] {
 		return false
 	}
@@ -72,11 +73,11 @@ func foldsAtLoad(n *model.Node, fixed func(string) bool) bool {
 		}
 	}
 	inputs := 0
-	for _, name := range n.Inputs {
-		if name == "" {
+	for _, id := range ins {
+		if id < 0 {
 			continue
 		}
-		if !fixed(name) {
+		if !fixed(id) {
 			return false
 		}
 		inputs++
@@ -85,52 +86,57 @@ func foldsAtLoad(n *model.Node, fixed func(string) bool) bool {
 }
 
 // heldTensors lists the generated tensors of graph g (its own nodes, not
-// those of its subgraphs) that the device holds, in the order their
-// producers appear.
-func heldTensors(g *model.Graph, vals map[string]*Value) []heldTensor {
-	_, isStatic := staticValues(g, vals)
-	loaded := map[string]bool{} // outputs of load-time nodes
-	src := map[string]int64{}   // elements each is computed from
-	stored := map[string]bool{} // computed from stored constants alone
-	fixed := func(name string) bool {
-		if loaded[name] {
+// those of its subgraphs; vals are its inferred values) that the device
+// holds, in the order their producers appear.
+func heldTensors(inf *Inference, g *model.Graph, vals map[string]*Value) []heldTensor {
+	x := inf.index(g, vals)
+	static := newStaticSet(g, x)
+	loaded := make([]bool, len(x.names)) // outputs of load-time nodes
+	src := make([]int64, len(x.names))   // elements each is computed from
+	stored := make([]bool, len(x.names)) // computed from stored constants alone
+	fixed := func(id int32) bool {
+		if id < 0 {
+			return false
+		}
+		if loaded[id] {
 			return true
 		}
-		v := vals[name]
-		return isStatic(name) && (v == nil || !v.State)
+		v := x.vals[id]
+		return static.has(id) && (v == nil || !v.State)
 	}
-	elements := func(name string) (int64, bool) {
-		v := vals[name]
+	elements := func(id int32) (int64, bool) {
+		v := x.vals[id]
 		if v == nil || v.Type.Kind != model.KindTensor || !v.Type.RankKnown {
 			return 0, false
 		}
 		return v.Type.Shape.Elements()
 	}
-	var generated map[string]int // name → producer
-	var order []string
+	var generated map[int32]int // id → producer
+	var order []int32
 	runTime := make([]bool, len(g.Nodes))
 	for i, n := range g.Nodes {
-		if !foldsAtLoad(n, fixed) {
+		ins := x.ins(i)
+		if !foldsAtLoad(n, ins, fixed) {
 			runTime[i] = true
 			continue
 		}
 		var from int64
 		fromStored := true
-		for j, name := range n.Inputs {
-			if name == "" {
+		for j, id := range ins {
+			if id < 0 {
 				continue
 			}
-			if loaded[name] {
-				fromStored = fromStored && stored[name]
-			} else if v := vals[name]; v == nil || !v.Weight {
+			if loaded[id] {
+				fromStored = fromStored && stored[id]
+			} else if v := x.vals[id]; v == nil || !v.Weight {
 				fromStored = false // inferred, not stored
 			}
 			if isShapeOperand(n, j) || from == math.MaxInt64 {
 				continue
 			}
-			e, ok := src[name]
-			if !loaded[name] {
-				e, ok = elements(name)
+			e, ok := src[id], true
+			if !loaded[id] {
+				e, ok = elements(id)
 			}
 			if !ok || e < 0 || from > math.MaxInt64-e {
 				from = math.MaxInt64 // not known: never taken for generated
@@ -138,19 +144,19 @@ func heldTensors(g *model.Graph, vals map[string]*Value) []heldTensor {
 			}
 			from += e
 		}
-		for _, o := range n.Outputs {
-			if o == "" {
+		for _, id := range x.outs(i) {
+			if id < 0 {
 				continue
 			}
-			loaded[o], src[o], stored[o] = true, from, fromStored
+			loaded[id], src[id], stored[id] = true, from, fromStored
 			// Scalars are not counted, as stored ones are not (params.go).
-			e, ok := elements(o)
+			e, ok := elements(id)
 			if (ok && e > from && e > 1) || (!ok && from == 0) {
 				if generated == nil {
-					generated = map[string]int{}
+					generated = map[int32]int{}
 				}
-				generated[o] = i
-				order = append(order, o)
+				generated[id] = i
+				order = append(order, id)
 			}
 		}
 	}
@@ -160,12 +166,12 @@ func heldTensors(g *model.Graph, vals map[string]*Value) []heldTensor {
 
 	// Who reads each generated tensor: a run-time node at a data position
 	// makes it a weight; any run-time read, or a graph output, makes it held.
-	last := map[string]int{}
-	weight := map[string]bool{}
-	read := func(name string, step int, data bool) {
-		if _, ok := generated[name]; ok {
-			last[name] = max(last[name], step)
-			weight[name] = weight[name] || data
+	last := map[int32]int{}
+	weight := map[int32]bool{}
+	read := func(id int32, step int, data bool) {
+		if _, ok := generated[id]; ok {
+			last[id] = max(last[id], step)
+			weight[id] = weight[id] || data
 		}
 	}
 	var readIn func(sg *model.Graph, step, depth int)
@@ -175,7 +181,7 @@ func heldTensors(g *model.Graph, vals map[string]*Value) []heldTensor {
 		}
 		for _, n := range sg.Nodes {
 			for j, name := range n.Inputs {
-				read(name, step, !isShapeOperand(n, j))
+				read(x.lookup(name), step, !isShapeOperand(n, j))
 			}
 			for _, a := range n.Attrs {
 				readIn(a.Graph, step, depth+1)
@@ -185,15 +191,15 @@ func heldTensors(g *model.Graph, vals map[string]*Value) []heldTensor {
 			}
 		}
 		for _, o := range sg.Outputs {
-			read(o.Name, step, false)
+			read(x.lookup(o.Name), step, false)
 		}
 	}
 	for i, n := range g.Nodes {
 		if !runTime[i] {
 			continue
 		}
-		for j, name := range n.Inputs {
-			read(name, i, !isShapeOperand(n, j))
+		for j, id := range x.ins(i) {
+			read(id, i, !isShapeOperand(n, j))
 		}
 		// A subgraph body runs at run time: its reads of the enclosing
 		// graph's tensors are run-time reads, at the body node's position,
@@ -206,12 +212,12 @@ func heldTensors(g *model.Graph, vals map[string]*Value) []heldTensor {
 		}
 	}
 	for _, o := range g.Outputs {
-		read(o.Name, max(1, len(g.Nodes))-1, false)
+		read(x.lookup(o.Name), max(1, len(g.Nodes))-1, false)
 	}
 	var out []heldTensor
-	for _, name := range order {
-		if l, ok := last[name]; ok {
-			out = append(out, heldTensor{name: name, producer: generated[name], last: l, stored: stored[name], weight: weight[name]})
+	for _, id := range order {
+		if l, ok := last[id]; ok {
+			out = append(out, heldTensor{name: x.names[id], producer: generated[id], last: l, stored: stored[id], weight: weight[id]})
 		}
 	}
 	return out
@@ -224,10 +230,10 @@ func heldTensors(g *model.Graph, vals map[string]*Value) []heldTensor {
 // not static, weight or not, is listed as unresolved instead: the memory
 // figures (and ram, which counts the generated weights) are then lower
 // bounds.
-func heldConstants(g *model.Graph, vals map[string]*Value, steps int) ([]Lifetime, []Unresolved) {
+func heldConstants(inf *Inference, g *model.Graph, vals map[string]*Value, steps int) ([]Lifetime, []Unresolved) {
 	var lts []Lifetime
 	var unres []Unresolved
-	for _, h := range heldTensors(g, vals) {
+	for _, h := range heldTensors(inf, g, vals) {
 		size, reason := tensorBytes(vals[h.name])
 		if reason != "" {
 			n := g.Nodes[h.producer]
@@ -255,7 +261,7 @@ func generatedWeights(inf *Inference) []ParamTensor {
 		if g == nil || vals == nil || depth > maxGraphDepth {
 			return
 		}
-		for _, h := range heldTensors(g, vals) {
+		for _, h := range heldTensors(inf, g, vals) {
 			v := vals[h.name]
 			if !h.stored || !h.weight || v == nil {
 				continue
