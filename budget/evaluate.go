@@ -2,6 +2,8 @@ package budget
 
 import (
 	"fmt"
+	"maps"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -274,7 +276,7 @@ func (f *File) merge(rules []*Rule) *budgetFor {
 			b.conflicts = append(b.conflicts, fmt.Sprintf("rules disagree on the device: %s says %q, %s says %q",
 				f.ruleAt(devRule), devRule.Device, f.ruleAt(r), r.Device))
 		}
-		for _, name := range sortedKeys(r.Dims) {
+		for _, name := range slices.Sorted(maps.Keys(r.Dims)) {
 			if first, ok := dims[name]; ok && first.Dims[name] != r.Dims[name] {
 				b.conflicts = append(b.conflicts, fmt.Sprintf("rules disagree on dim %s: %s says %d, %s says %d",
 					name, f.ruleAt(first), first.Dims[name], f.ruleAt(r), r.Dims[name]))

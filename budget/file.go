@@ -5,8 +5,10 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"maps"
 	"math"
 	"regexp"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -1186,15 +1188,6 @@ func (f *File) Match(p string) []*Rule {
 	return out
 }
 
-func sortedKeys[V any](m map[string]V) []string {
-	keys := make([]string, 0, len(m))
-	for k := range m {
-		keys = append(keys, k)
-	}
-	sort.Strings(keys)
-	return keys
-}
-
 // Dims returns the values of symbolic dims for a model path, from every
 // rule that matches it; an error when two rules give one dim different
 // values.
@@ -1202,7 +1195,7 @@ func (f *File) Dims(p string) (map[string]int64, error) {
 	out := map[string]int64{}
 	from := map[string]*Rule{}
 	for _, r := range f.Match(p) {
-		for _, name := range sortedKeys(r.Dims) {
+		for _, name := range slices.Sorted(maps.Keys(r.Dims)) {
 			v := r.Dims[name]
 			if first, ok := from[name]; ok && out[name] != v {
 				return nil, fmt.Errorf("%s: rules disagree on dim %s: %s says %d, %s says %d",

@@ -4,7 +4,9 @@ import (
 	"crypto/sha256"
 	"encoding/json"
 	"fmt"
+	"maps"
 	"path/filepath"
+	"slices"
 	"sort"
 	"strings"
 	"sync"
@@ -100,10 +102,10 @@ func keyOf(blob string, opts measure.Options) cacheKey {
 	}
 	// Shapes and values, when given, and lenient binding (what check
 	// uses) change the figures or their binding issues.
-	for _, k := range sortedKeys(opts.Shapes) {
+	for _, k := range slices.Sorted(maps.Keys(opts.Shapes)) {
 		fmt.Fprintf(&o, "shape %s=%v\x00", k, opts.Shapes[k])
 	}
-	for _, k := range sortedKeys(opts.Values) {
+	for _, k := range slices.Sorted(maps.Keys(opts.Values)) {
 		fmt.Fprintf(&o, "value %s=%v\x00", k, opts.Values[k])
 	}
 	if opts.Lenient {
@@ -194,13 +196,4 @@ func (c *Cache) keep(pk packKey, e cacheEntry, limit int) {
 		c.pending = map[packKey][]byte{}
 	}
 	c.pending[pk] = b
-}
-
-func sortedKeys[V any](m map[string]V) []string {
-	out := make([]string, 0, len(m))
-	for k := range m {
-		out = append(out, k)
-	}
-	sort.Strings(out)
-	return out
 }

@@ -2,9 +2,10 @@ package measure
 
 import (
 	"fmt"
+	"maps"
 	"math"
 	"regexp"
-	"sort"
+	"slices"
 	"strings"
 
 	"github.com/loadline/loadline/model"
@@ -132,7 +133,7 @@ func boundInputs(g *model.Graph, ins []*model.ValueInfo, opts InferOptions, stri
 		issues = append(issues, BindingIssue{Kind: kind, Name: name, Problem: fmt.Sprintf(format, args...), NamesNothing: nothing})
 	}
 	dims := map[string]int64{}
-	for _, name := range sortedNames(opts.Dims) {
+	for _, name := range slices.Sorted(maps.Keys(opts.Dims)) {
 		v := opts.Dims[name]
 		switch {
 		case v < 1 || v > maxBoundSize:
@@ -155,7 +156,7 @@ func boundInputs(g *model.Graph, ins []*model.ValueInfo, opts InferOptions, stri
 			}
 		}
 	}
-	for _, name := range sortedNames(shapes) {
+	for _, name := range slices.Sorted(maps.Keys(shapes)) {
 		s := shapes[name]
 		i, ok := byName[name]
 		if !ok {
@@ -209,7 +210,7 @@ func boundInputs(g *model.Graph, ins []*model.ValueInfo, opts InferOptions, stri
 	for i := range ins {
 		vals[i] = &Value{Type: bindDims(types[i], dims)}
 	}
-	for _, name := range sortedNames(opts.Values) {
+	for _, name := range slices.Sorted(maps.Keys(opts.Values)) {
 		x := opts.Values[name]
 		i, ok := byName[name]
 		if !ok {
@@ -294,24 +295,13 @@ func InputsText(ios []IOInfo) string {
 		if small && !strings.HasPrefix(io.DType, "sequence") {
 			how = append(how, "a value")
 		}
-		s := io.Name + " " + io.DType + shapeString(io.Shape)
+		s := io.Name + " " + io.DType + io.ShapeText()
 		if len(how) > 0 {
 			s += " (" + strings.Join(how, ", ") + ")"
 		}
 		parts[i] = s
 	}
 	return "the model's inputs: " + strings.Join(parts, "; ")
-}
-
-func shapeString(s []any) string {
-	if s == nil {
-		return "[?]"
-	}
-	parts := make([]string, len(s))
-	for i, d := range s {
-		parts[i] = fmt.Sprint(d)
-	}
-	return "[" + strings.Join(parts, ",") + "]"
 }
 
 // inputsText is InputsText of runtime inputs and their values.
@@ -321,15 +311,6 @@ func inputsText(ins []*model.ValueInfo, vals []*Value) string {
 		ios[i] = ioInfo(NamedValue{in.Name, vals[i]})
 	}
 	return InputsText(ios)
-}
-
-func sortedNames[V any](m map[string]V) []string {
-	out := make([]string, 0, len(m))
-	for k := range m {
-		out = append(out, k)
-	}
-	sort.Strings(out)
-	return out
 }
 
 // MissingBinding is one binding that unresolved figures wait for: an

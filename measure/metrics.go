@@ -1,6 +1,9 @@
 package measure
 
 import (
+	"fmt"
+	"strings"
+
 	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/target"
 )
@@ -67,6 +70,20 @@ type IOInfo struct {
 	Name  string `json:"name"`
 	DType string `json:"dtype"`
 	Shape []any  `json:"shape"`
+}
+
+// ShapeText writes the shape as people read it in messages and reports:
+// "[1,3,224,224]", a symbolic dim by its name ("[batch,80]"), "[?]" when
+// the shape is unknown.
+func (io IOInfo) ShapeText() string {
+	if io.Shape == nil {
+		return "[?]"
+	}
+	parts := make([]string, len(io.Shape))
+	for i, d := range io.Shape {
+		parts[i] = fmt.Sprint(d)
+	}
+	return "[" + strings.Join(parts, ",") + "]"
 }
 
 // Options steers measuring.

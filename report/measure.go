@@ -79,10 +79,10 @@ func MeasureText(w io.Writer, entries []*measure.Metrics) error {
 		}
 		tw.Flush()
 		for _, io := range m.Inputs {
-			fmt.Fprintf(w, "  input   %s %s%s\n", io.Name, io.DType, shapeText(io.Shape))
+			fmt.Fprintf(w, "  input   %s %s%s\n", io.Name, io.DType, io.ShapeText())
 		}
 		for _, io := range m.Outputs {
-			fmt.Fprintf(w, "  output  %s %s%s\n", io.Name, io.DType, shapeText(io.Shape))
+			fmt.Fprintf(w, "  output  %s %s%s\n", io.Name, io.DType, io.ShapeText())
 		}
 		if len(m.Unresolved) > 0 || len(m.MissingBindings) > 0 {
 			unresolvedText(w, m)
@@ -284,15 +284,4 @@ func dtypeText(m *measure.Metrics) string {
 		parts[i] = fmt.Sprintf("%s %s", d.DType, Bytes(d.Bytes))
 	}
 	return strings.Join(parts, ", ")
-}
-
-func shapeText(s []any) string {
-	if s == nil {
-		return "[?]"
-	}
-	parts := make([]string, len(s))
-	for i, d := range s {
-		parts[i] = fmt.Sprint(d)
-	}
-	return "[" + strings.Join(parts, ",") + "]"
 }

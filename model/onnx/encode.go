@@ -3,8 +3,9 @@ package onnx
 import (
 	"errors"
 	"fmt"
+	"maps"
 	"math"
-	"sort"
+	"slices"
 	"strconv"
 
 	"github.com/loadline/loadline/model"
@@ -130,17 +131,8 @@ func appendPackedInts(b []byte, num protowire.Number, vs []int64) []byte {
 	return b
 }
 
-func sortedKeys[V any](m map[string]V) []string {
-	keys := make([]string, 0, len(m))
-	for k := range m {
-		keys = append(keys, k)
-	}
-	sort.Strings(keys)
-	return keys
-}
-
 func appendOpsets(b []byte, num protowire.Number, opsets map[string]int64) []byte {
-	for _, k := range sortedKeys(opsets) {
+	for _, k := range slices.Sorted(maps.Keys(opsets)) {
 		var s int
 		b, s = begin(b, num)
 		b = appendOptString(b, 1, k)
@@ -170,7 +162,7 @@ func (e *encoder) model(m *model.Model) ([]byte, error) {
 	}
 	b = end(b, s)
 	b = appendOpsets(b, 8, m.Opsets)
-	for _, k := range sortedKeys(m.Metadata) {
+	for _, k := range slices.Sorted(maps.Keys(m.Metadata)) {
 		b, s = begin(b, 14)
 		b = appendString(b, 1, k)
 		b = appendString(b, 2, m.Metadata[k])
