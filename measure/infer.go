@@ -191,7 +191,12 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 	}
 	e := newEngine(m, opts)
 	g := m.Graph
-	sc := &scope{vals: map[string]*Value{}}
+	outputs := 0
+	for _, n := range g.Nodes {
+		outputs += len(n.Outputs)
+	}
+	sc := &scope{vals: make(map[string]*Value, len(g.Initializers)+len(g.Inputs)+outputs)}
+	e.producers = make(map[string]*model.Node, outputs)
 	res := &Inference{Model: m, Subgraphs: e.subgraphs, Calls: e.calls}
 
 	for _, t := range g.Initializers {

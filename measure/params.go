@@ -184,7 +184,7 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 	g := inf.Model.Graph
 	// The constants: initializers and Constant outputs of the main graph
 	// and of every subgraph (a branch or loop body may hold its own).
-	consts := map[string]*model.Tensor{}
+	consts := make(map[string]*model.Tensor, len(g.Initializers))
 	addConsts := func(g *model.Graph) {
 		for _, t := range g.Initializers {
 			consts[t.Name] = t
@@ -206,7 +206,7 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 		n      *model.Node
 		folded bool // inference knows every output's values
 	}
-	var steps []step
+	steps := make([]step, 0, len(g.Nodes))
 	// A subgraph sees its own values, then its enclosing graphs' (a chain
 	// of scopes, not a copy per subgraph, which would cost the outer
 	// graph's size once per subgraph).
@@ -242,7 +242,7 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 	// come after producers, so one backward pass settles it. Constants
 	// that only feed shape arithmetic stay out.
 	feeds := make([]bool, len(steps))
-	used := map[string]bool{}
+	used := make(map[string]bool, len(consts))
 	for k := len(steps) - 1; k >= 0; k-- {
 		st := steps[k]
 		feeds[k] = !st.folded
@@ -259,8 +259,8 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 		}
 	}
 
-	seen := map[string]bool{}
-	var out []ParamTensor
+	seen := make(map[string]bool, len(consts))
+	out := make([]ParamTensor, 0, len(consts))
 	var readErr error
 	for k, st := range steps {
 		if !feeds[k] {

@@ -80,6 +80,59 @@ type decoder struct {
 
 	fresh  []*model.Dim    // dims with neither dim_value nor dim_param, in file order
 	params map[string]bool // every dim_param the file uses
+
+	// Nodes, their input and output name lists, tensors and their
+	// segment lists are carved from chunks: a graph of 100,000 nodes
+	// would otherwise cost three or four small allocations a node.
+	nodeChunk   []model.Node
+	nameChunk   []string
+	tensorChunk []model.Tensor
+	segChunk    [][]byte
+}
+
+// newTensor is a zeroed tensor from the current chunk.
+func (d *decoder) newTensor() *model.Tensor {
+	if len(d.tensorChunk) == cap(d.tensorChunk) {
+		d.tensorChunk = make([]model.Tensor, 0, chunkLen)
+	}
+	d.tensorChunk = d.tensorChunk[:len(d.tensorChunk)+1]
+	return &d.tensorChunk[len(d.tensorChunk)-1]
+}
+
+// oneSegment is the segment list [b], carved from the current chunk.
+func (d *decoder) oneSegment(b []byte) [][]byte {
+	if len(d.segChunk) == cap(d.segChunk) {
+		d.segChunk = make([][]byte, 0, chunkLen)
+	}
+	d.segChunk = append(d.segChunk, b)
+	k := len(d.segChunk)
+	return d.segChunk[k-1 : k : k]
+}
+
+// chunkLen is how many nodes or names one chunk holds.
+const chunkLen = 1024
+
+// newNode is a zeroed node from the current chunk.
+func (d *decoder) newNode() *model.Node {
+	if len(d.nodeChunk) == cap(d.nodeChunk) {
+		d.nodeChunk = make([]model.Node, 0, chunkLen)
+	}
+	d.nodeChunk = d.nodeChunk[:len(d.nodeChunk)+1]
+	return &d.nodeChunk[len(d.nodeChunk)-1]
+}
+
+// keepNames copies names into the current chunk; the copy's capacity ends
+// at its length, so that appending to it cannot reach a neighbour's names.
+func (d *decoder) keepNames(names []string) []string {
+	if len(names) == 0 {
+		return nil
+	}
+	if cap(d.nameChunk)-len(d.nameChunk) < len(names) {
+		d.nameChunk = make([]string, 0, max(chunkLen, len(names)))
+	}
+	k := len(d.nameChunk)
+	d.nameChunk = append(d.nameChunk, names...)
+	return d.nameChunk[k : k+len(names) : k+len(names)]
 }
 
 func newDecoder(data []byte, opts Options) *decoder {
@@ -353,7 +406,11 @@ func (d *decoder) valueInfo(lo, hi int) (*model.ValueInfo, error) {
 
 // NodeProto in a graph at the given depth.
 func (d *decoder) node(lo, hi, depth int) (*model.Node, error) {
-	n := &model.Node{}
+	n := d.newNode()
+	// The names gather here (on the stack for a usual node) and are
+	// kept once the node is read.
+	var inBuf, outBuf [8]string
+	ins, outs := inBuf[:0], outBuf[:0]
 	nAttr := 0
 	r := d.reader(lo, hi)
 	r.names = nodeFields
@@ -364,18 +421,19 @@ func (d *decoder) node(lo, hi, depth int) (*model.Node, error) {
 			return nil, err
 		}
 		if !ok {
+			n.Inputs, n.Outputs = d.keepNames(ins), d.keepNames(outs)
 			return n, nil
 		}
 		var s string
 		switch f.num {
 		case 1:
 			s, err = d.str(&f, "")
-			err = withinAt(err, "input", len(n.Inputs))
-			n.Inputs = append(n.Inputs, s)
+			err = withinAt(err, "input", len(ins))
+			ins = append(ins, s)
 		case 2:
 			s, err = d.str(&f, "")
-			err = withinAt(err, "output", len(n.Outputs))
-			n.Outputs = append(n.Outputs, s)
+			err = withinAt(err, "output", len(outs))
+			outs = append(outs, s)
 		case 3:
 			n.Name, err = d.str(&f, "name")
 		case 4:
