@@ -638,18 +638,28 @@ type coster struct {
 
 // CountCosts counts the MACs and FLOPs of every node of an inferred model
 // (see the definitions at the top of this file).
-func CountCosts(inf *Inference) *Costs {
+func CountCosts(inf *Inference) *Costs { return countCosts(inf, true) }
+
+// countCosts is CountCosts, listing each node's figures in Costs.Nodes
+// only when perNode is set (the per-layer view reads them; on a large
+// graph the list is megabytes the totals do not need).
+func countCosts(inf *Inference, perNode bool) *Costs {
 	k := &coster{inf: inf, opset: inf.Model.Opset(""), bodies: map[*CallBody]*tally{}}
 	if k.opset == 0 {
 		k.opset = 21
 	}
-	out := &Costs{ByOp: map[string]OpCost{}, Nodes: make([]NodeCost, 0, len(inf.Model.Graph.Nodes))}
+	out := &Costs{ByOp: map[string]OpCost{}, Nodes: []NodeCost{}}
+	if perNode {
+		out.Nodes = make([]NodeCost, 0, len(inf.Model.Graph.Nodes))
+	}
 	total := newTally()
 	sc := scopes{inf.Values}
 	for i, n := range inf.Model.Graph.Nodes {
 		t := k.node(n, i, sc)
 		total.add(t)
-		out.Nodes = append(out.Nodes, NodeCost{Node: nodeName(n, i), Op: n.Op, MACs: t.macs, FLOPs: t.flops, Known: t.known})
+		if perNode {
+			out.Nodes = append(out.Nodes, NodeCost{Node: nodeName(n, i), Op: n.Op, MACs: t.macs, FLOPs: t.flops, Known: t.known})
+		}
 	}
 	if total.overflow {
 		k.unresolved = append(k.unresolved, Unresolved{Node: inf.Model.Graph.Name, Op: "", Reason: "the model's MACs or FLOPs overflow int64; totals are not meaningful"})

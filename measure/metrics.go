@@ -138,36 +138,41 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	}
 	out.ParamsByDType = ParamsByDType(ws)
 	out.Sparsity = sparsity(ws)
-	costs := CountCosts(inf)
+	// Each pass's result is let go once its figures are taken: on a large
+	// graph the plans are megabytes, and memory not held is time saved.
+	costs := countCosts(inf, opts.Layers)
 	out.MACs, out.FLOPs = costs.MACs, costs.FLOPs
 	out.Unresolved = appendUnresolved(out.Unresolved, costs.Unresolved)
 	plan := PlanMemory(inf)
 	out.Memory.Graph = MemoryView{PeakLiveBytes: plan.PeakLiveBytes, ArenaBytes: plan.ArenaBytes}
+	out.MemoryDetail = MemoryDetail{PeakStep: plan.PeakStep, LiveAtPeak: plan.LiveAtPeak, ArenaRatio: plan.Ratio()}
+	graphDetail := viewDetail(plan, opts.Layers)
+	planUnresolved := plan.Unresolved
+	if opts.Layers {
+		out.Layers = layersOf(inf, costs, plan)
+		out.MemoryDetail.LiveBytesByStep = plan.LiveBytesByStep
+		addLayerView(out.Layers, m.Graph, ViewGraph, plan)
+	}
 	deploy := DefaultDeployOptions()
 	if opts.Deploy != nil {
 		deploy = *opts.Deploy
 	}
 	dep := PlanDeployed(inf, deploy)
 	out.Memory.Deployed = MemoryView{PeakLiveBytes: dep.PeakLiveBytes, ArenaBytes: dep.ArenaBytes}
-	out.Unresolved = appendUnresolved(out.Unresolved, plan.Unresolved)
+	out.Unresolved = appendUnresolved(out.Unresolved, planUnresolved)
 	out.Unresolved = appendUnresolved(out.Unresolved, dep.Unresolved)
 	if rt, persistent, unres, ok := planRuntime(inf); ok {
 		out.Memory.Runtime = &rt
 		out.Memory.PersistentBytes = persistent
 		out.Unresolved = appendUnresolved(out.Unresolved, unres)
 	}
-	out.MemoryDetail = MemoryDetail{
-		PeakStep:      plan.PeakStep,
-		LiveAtPeak:    plan.LiveAtPeak,
-		ArenaRatio:    plan.Ratio(),
-		DeployedRatio: dep.Ratio(),
-	}
+	out.MemoryDetail.DeployedRatio = dep.Ratio()
 	if out.MemoryDetail.LiveAtPeak == nil {
 		out.MemoryDetail.LiveAtPeak = []string{}
 	}
 	out.MemoryDetail.Judged = ViewDeployed
 	out.MemoryDetail.Views = map[string]ViewDetail{
-		ViewGraph:    viewDetail(plan, opts.Layers),
+		ViewGraph:    graphDetail,
 		ViewDeployed: viewDetail(dep, opts.Layers),
 	}
 	if opts.Digests {
@@ -176,9 +181,6 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 		}
 	}
 	if opts.Layers {
-		out.Layers = layersOf(inf, costs, plan)
-		out.MemoryDetail.LiveBytesByStep = plan.LiveBytesByStep
-		addLayerView(out.Layers, m.Graph, ViewGraph, plan)
 		addLayerView(out.Layers, m.Graph, ViewDeployed, dep)
 	}
 	for _, in := range inf.Inputs {
