@@ -20,6 +20,9 @@ type graphIndex struct {
 	// and out[outAt[i]:outAt[i+1]].
 	in, out     []int32
 	inAt, outAt []int32
+	// held caches heldTensors (static.go), which three passes read.
+	held     []heldTensor
+	heldDone bool
 }
 
 // newGraphIndex numbers the values of g, whose inferred values are vals.

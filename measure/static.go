@@ -90,6 +90,14 @@ func foldsAtLoad(n *model.Node, ins []int32, fixed func(int32) bool) bool {
 // holds, in the order their producers appear.
 func heldTensors(inf *Inference, g *model.Graph, vals map[string]*Value) []heldTensor {
 	x := inf.index(g, vals)
+	if !x.heldDone {
+		x.held, x.heldDone = findHeld(x, g), true
+	}
+	return x.held
+}
+
+// findHeld is heldTensors for the numbered values x of g.
+func findHeld(x *graphIndex, g *model.Graph) []heldTensor {
 	static := newStaticSet(g, x)
 	loaded := make([]bool, len(x.names)) // outputs of load-time nodes
 	src := make([]int64, len(x.names))   // elements each is computed from

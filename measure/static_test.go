@@ -195,3 +195,71 @@ func TestReViewsCountOnce(t *testing.T) {
 		t.Errorf("params %d, param_bytes %d, generated_param_bytes %d; want 4,096, 16,384 and 0", m.Params, m.ParamBytes, m.GeneratedParamBytes)
 	}
 }
+
+// TestTiledWeightCountsBoth: a stored weight tiled at load time counts as
+// itself (it is in the file) and the tiled tensor counts as a generated
+// weight (the device holds it). Hand-worked: w [1, 4096] float32 tiled
+// [4096, 1] times: 4,096 stored + 16,777,216 generated = 16,781,312
+// params; 16,384 + 67,108,864 = 67,125,248 B, of which 67,108,864
+// generated.
+func TestTiledWeightCountsBoth(t *testing.T) {
+	g := &model.Graph{
+		Inputs:       []*model.ValueInfo{input("x", model.Float32, model.Known(1), model.Known(4096))},
+		Initializers: []*model.Tensor{nnF32("w", make([]float64, 4096), 1, 4096).tensor(), nnI64("reps", []int64{4096, 1}).tensor()},
+		Nodes: []*model.Node{
+			node("Tile", []string{"w", "reps"}, []string{"wt"}),
+			node("MatMul", []string{"x", "wt"}, []string{"y"}),
+		},
+		Outputs: []*model.ValueInfo{{Name: "y"}},
+	}
+	m := measureGraph(t, g)
+	if m.Params != 16_781_312 || m.ParamBytes != 67_125_248 || m.GeneratedParamBytes != 67_108_864 {
+		t.Errorf("params %d, param_bytes %d, generated_param_bytes %d; want 16,781,312, 67,125,248 and 67,108,864",
+			m.Params, m.ParamBytes, m.GeneratedParamBytes)
+	}
+}
+
+// TestHeldRangeInPeak: Range(0, 100000, 1) as Gather's indices is constant
+// memory too. Hand-worked: x [100000, 8] and y [100000, 8] float32,
+// 3,200,000 B each, the indices 100,000 × 8 B = 800,000 B: 7,200,000 B at
+// the Gather.
+func TestHeldRangeInPeak(t *testing.T) {
+	g := &model.Graph{
+		Inputs: []*model.ValueInfo{input("x", model.Float32, model.Known(100_000), model.Known(8))},
+		Nodes: []*model.Node{
+			constNode(nnI64("start", []int64{0}, []int64{}...).tensor()),
+			constNode(nnI64("limit", []int64{100_000}, []int64{}...).tensor()),
+			constNode(nnI64("delta", []int64{1}, []int64{}...).tensor()),
+			node("Range", []string{"start", "limit", "delta"}, []string{"idx"}),
+			node("Gather", []string{"x", "idx"}, []string{"y"}),
+		},
+		Outputs: []*model.ValueInfo{{Name: "y"}},
+	}
+	m := measureGraph(t, g)
+	if m.Params != 0 || m.Memory.Graph.PeakLiveBytes != 7_200_000 || m.Memory.Deployed.PeakLiveBytes != 7_200_000 {
+		t.Errorf("params %d, peaks %d (graph), %d (deployed); want 0 and 7,200,000", m.Params, m.Memory.Graph.PeakLiveBytes, m.Memory.Deployed.PeakLiveBytes)
+	}
+}
+
+// TestGeneratedWeightReadInBranch: a weight computed at load time in the
+// main graph and read by a node of an If branch (which runs at run time)
+// is a parameter. Hand-worked: 64 × 64 = 4,096 elements × 4 B = 16,384 B.
+func TestGeneratedWeightReadInBranch(t *testing.T) {
+	then := &model.Graph{Name: "then", Nodes: []*model.Node{node("MatMul", []string{"x", "w"}, []string{"a"})},
+		Outputs: []*model.ValueInfo{{Name: "a"}}}
+	els := &model.Graph{Name: "else", Nodes: []*model.Node{node("Identity", []string{"x"}, []string{"b"})},
+		Outputs: []*model.ValueInfo{{Name: "b"}}}
+	g := &model.Graph{
+		Inputs: []*model.ValueInfo{input("x", model.Float32, model.Known(1), model.Known(64)), input("c", model.Bool)},
+		Nodes: []*model.Node{
+			constNode(nnI64("shape", []int64{64, 64}).tensor()),
+			node("ConstantOfShape", []string{"shape"}, []string{"w"}, fillAttr(0.5)),
+			node("If", []string{"c"}, []string{"y"}, atG("then_branch", then), atG("else_branch", els)),
+		},
+		Outputs: []*model.ValueInfo{{Name: "y"}},
+	}
+	m := measureGraph(t, g)
+	if m.Params != 4096 || m.GeneratedParamBytes != 16_384 {
+		t.Errorf("params %d, generated_param_bytes %d; want 4,096 and 16,384", m.Params, m.GeneratedParamBytes)
+	}
+}

@@ -60,7 +60,11 @@ func MeasureText(w io.Writer, entries []*measure.Metrics) error {
 		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
 		fmt.Fprintf(tw, "  file\t%s\n", Bytes(m.FileBytes))
 		fmt.Fprintf(tw, "  params\t%s\t(%s)\n", Count(m.Params), dtypeText(m))
-		fmt.Fprintf(tw, "  param bytes\t%s\n", Bytes(m.ParamBytes))
+		if m.GeneratedParamBytes > 0 {
+			fmt.Fprintf(tw, "  param bytes\t%s\t(%s of them computed at load time, not stored in the file: in RAM wherever weights live)\n", Bytes(m.ParamBytes), Bytes(m.GeneratedParamBytes))
+		} else {
+			fmt.Fprintf(tw, "  param bytes\t%s\n", Bytes(m.ParamBytes))
+		}
 		// With nodes unresolved the counts leave those nodes out: lower bounds.
 		atLeast := ""
 		if len(m.Unresolved) > 0 {
