@@ -241,19 +241,30 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 	// constant) and one of its outputs feeds a weight in turn; consumers
 	// come after producers, so one backward pass settles it. Constants
 	// that only feed shape arithmetic stay out.
+	// used is asked only of folded nodes' outputs, so only those are
+	// recorded: a large graph has few, and a map of every name read
+	// would cost more than the rest of this pass.
+	folded := map[string]bool{}
+	for _, st := range steps {
+		if st.folded {
+			for _, o := range st.n.Outputs {
+				folded[o] = true
+			}
+		}
+	}
 	feeds := make([]bool, len(steps))
-	used := make(map[string]bool, len(consts))
+	used := map[string]bool{}
 	for k := len(steps) - 1; k >= 0; k-- {
 		st := steps[k]
 		feeds[k] = !st.folded
 		for _, o := range st.n.Outputs {
 			feeds[k] = feeds[k] || (o != "" && used[o])
 		}
-		if !feeds[k] {
+		if !feeds[k] || len(folded) == 0 {
 			continue
 		}
 		for i, name := range st.n.Inputs {
-			if name != "" && !isShapeOperand(st.n, i) {
+			if name != "" && !isShapeOperand(st.n, i) && folded[name] {
 				used[name] = true
 			}
 		}
