@@ -73,9 +73,6 @@ type Inference struct {
 	// indexes holds each graph's numbered values (index.go), made when a
 	// pass first asks and shared by the passes after it.
 	indexes map[*model.Graph]*graphIndex
-	// held holds each graph's tensors computed at load time that the
-	// device holds (static.go), made when a pass first asks.
-	held map[*model.Graph][]heldTensor
 }
 
 // index is the numbered values of g, a graph of the model whose inferred

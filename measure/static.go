@@ -88,21 +88,8 @@ func foldsAtLoad(n *model.Node, ins []int32, fixed func(int32) bool) bool {
 // heldTensors lists the generated tensors of graph g (its own nodes, not
 // those of its subgraphs; vals are its inferred values) that the device
 // holds, in the order their producers appear. The list is made once per
-// graph: the weights and the graph view both read it.
+// graph, kept with its index: the weights and the graph view both read it.
 func heldTensors(inf *Inference, g *model.Graph, vals map[string]*Value) []heldTensor {
-	if h, ok := inf.held[g]; ok {
-		return h
-	}
-	if inf.held == nil {
-		inf.held = map[*model.Graph][]heldTensor{}
-	}
-	h := findHeldTensors(inf, g, vals)
-	inf.held[g] = h
-	return h
-}
-
-// findHeldTensors is heldTensors, made anew.
-func findHeldTensors(inf *Inference, g *model.Graph, vals map[string]*Value) []heldTensor {
 	x := inf.index(g, vals)
 	if !x.heldDone {
 		x.held, x.heldDone = findHeld(x, g), true
