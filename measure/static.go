@@ -3,6 +3,7 @@ package measure
 import (
 	"fmt"
 	"math"
+	"strings"
 
 	"github.com/loadline/loadline/model"
 )
@@ -44,7 +45,9 @@ import (
 //     tensor, a bound input: ConstantOfShape(Shape(x)), Expand(mask,
 //     Shape(scores))) is an activation like any node output: live from its
 //     producer's step through its last run-time reader's (a graph output:
-//     the last step), in both views.
+//     the last step), in both views. So is a generated tensor of a TFLite
+//     model: the microcontroller runtime computes every operator at run
+//     time, and its runtime view plans the tensor in the arena.
 //
 // Inference holds the values of tensors up to maxFoldElements only; the
 // rule above does not depend on them, so a 4096×4096 ConstantOfShape counts
@@ -130,7 +133,10 @@ func findHeld(x *graphIndex, g *model.Graph) []heldTensor {
 			continue
 		}
 		var from int64
-		fromStored := true
+		// The microcontroller runtime computes every TFLite operator at
+		// run time, in its arena (runtime.go): no TFLite output is held
+		// from load time.
+		fromStored := !strings.HasPrefix(n.Domain, "tflite")
 		for j, id := range ins {
 			if id < 0 {
 				continue

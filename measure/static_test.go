@@ -263,3 +263,34 @@ func TestGeneratedWeightReadInBranch(t *testing.T) {
 		t.Errorf("params %d, generated_param_bytes %d; want 4,096 and 16,384", m.Params, m.GeneratedParamBytes)
 	}
 }
+
+// TestTFLiteGeneratedIsActivation: the microcontroller runtime computes
+// every TFLite operator at run time, so a TILE of a stored weight is an
+// activation in every view, as in the runtime view's arena, and no
+// parameter: params are the stored w alone. Hand-worked: w [1, 64] float32
+// tiled to wt [64, 64], 16,384 B; x and y [1, 64], 256 B each; at the
+// FULLY_CONNECTED all three are live: 16,896 B (every size a multiple of
+// 16, the runtime's rounding changes nothing).
+func TestTFLiteGeneratedIsActivation(t *testing.T) {
+	g := &model.Graph{
+		TensorOrder:  []string{"x", "w", "reps", "wt", "y"},
+		Inputs:       []*model.ValueInfo{input("x", model.Float32, model.Known(1), model.Known(64))},
+		Initializers: []*model.Tensor{nnF32("w", make([]float64, 64), 1, 64).tensor(), nnInts("reps", model.Int32, []int64{64, 1}).tensor()},
+		Nodes: []*model.Node{
+			{Op: "TILE", Domain: "tflite", Name: "tile", Inputs: []string{"w", "reps"}, Outputs: []string{"wt"}},
+			{Op: "FULLY_CONNECTED", Domain: "tflite", Name: "fc", Inputs: []string{"x", "wt"}, Outputs: []string{"y"}},
+		},
+		ValueInfo: []*model.ValueInfo{input("wt", model.Float32, model.Known(64), model.Known(64)), input("y", model.Float32, model.Known(1), model.Known(64))},
+		Outputs:   []*model.ValueInfo{input("y", model.Float32, model.Known(1), model.Known(64))},
+	}
+	m, err := Measure(&model.Model{Format: "tflite", Graph: g}, 0, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if m.Params != 64 || m.GeneratedParamBytes != 0 {
+		t.Errorf("params %d, generated_param_bytes %d; want 64 and 0", m.Params, m.GeneratedParamBytes)
+	}
+	if m.Memory.Runtime == nil || m.Memory.Runtime.PeakLiveBytes != 16_896 || m.Memory.Graph.PeakLiveBytes != 16_896 || m.Memory.Deployed.PeakLiveBytes != 16_896 {
+		t.Errorf("peaks %+v, runtime %+v; want 16,896 in every view", m.Memory, m.Memory.Runtime)
+	}
+}

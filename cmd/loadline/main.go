@@ -61,7 +61,8 @@ const conventions = `Figures (static estimates from the model file; measure on t
                generated_param_bytes, which ram counts wherever weights live);
                read only as indices or shapes, constant memory live at every
                step of both activation views; from an inferred value (the Shape
-               of a run-time tensor), an activation like any node output.
+               of a run-time tensor), or in a TFLite model (its runtime computes
+               every operator at run time), an activation like any node output.
   MACs         multiply-accumulates of Conv (output elements × C_in/group × kernel
                area), ConvTranspose (input elements × C_out/group × kernel area),
                Gemm and MatMul (output elements × K), Einsum (product of the
