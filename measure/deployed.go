@@ -195,10 +195,17 @@ func (r *readerLists) reads(id int32, i int) bool {
 // PlanDeployed computes the deployed view of the activation memory of the
 // inferred model's main graph.
 func PlanDeployed(inf *Inference, opts DeployOptions) *MemoryPlan {
-	return planDeployedGraph(inf, inf.Model.Graph, inf.Values, opts, 0)
+	return planDeployed(inf, opts, true)
 }
 
-func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, opts DeployOptions, depth int) *MemoryPlan {
+// planDeployed is PlanDeployed, filling MemoryPlan.BufferOf only when
+// buffers is set (the per-layer view reads it; on a large graph it is a
+// map of every fused or aliased tensor, which the figures do not need).
+func planDeployed(inf *Inference, opts DeployOptions, buffers bool) *MemoryPlan {
+	return planDeployedGraph(inf, inf.Model.Graph, inf.Values, opts, buffers, 0)
+}
+
+func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, opts DeployOptions, buffers bool, depth int) *MemoryPlan {
 	plan := &MemoryPlan{}
 	steps := max(1, len(g.Nodes))
 	lastStep := steps - 1
@@ -286,7 +293,7 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, o
 				}
 			},
 			func(body *model.Graph, bv map[string]*Value) *MemoryPlan {
-				return planDeployedGraph(inf, body, bv, opts, depth+1)
+				return planDeployedGraph(inf, body, bv, opts, buffers, depth+1)
 			})
 		fold := !hasBody[i] && !randomOps[n.Op]
 		inputs := 0
@@ -416,6 +423,17 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, o
 	plan.Unresolved = append(plan.Unresolved, unres...)
 	// Where each tensor's values end up: a view or in-place output in its
 	// root's buffer, a fused-away tensor in the buffer of what replaced it.
+	if buffers {
+		plan.BufferOf = bufferOf(x, order, fused, recs)
+	}
+	plan.finish(g, steps, live, lts, bodyPeak, bodyArena)
+	return plan
+}
+
+// bufferOf maps each tensor of the graph numbered x that shares another's
+// buffer to the name of that buffer's placement (MemoryPlan.BufferOf), nil
+// when none does.
+func bufferOf(x *graphIndex, order []*dtensor, fused []fusion, recs []*dtensor) map[string]string {
 	bufferOf := map[string]string{}
 	for _, t := range order {
 		if r := t.root(); r != t && !t.dropped {
@@ -441,11 +459,10 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, o
 			}
 		}
 	}
-	if len(bufferOf) > 0 {
-		plan.BufferOf = bufferOf
+	if len(bufferOf) == 0 {
+		return nil
 	}
-	plan.finish(g, steps, live, lts, bodyPeak, bodyArena)
-	return plan
+	return bufferOf
 }
 
 // fusion is a tensor the deployed view dropped (from) and the tensor

@@ -157,7 +157,7 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	if opts.Deploy != nil {
 		deploy = *opts.Deploy
 	}
-	dep := PlanDeployed(inf, deploy)
+	dep := planDeployed(inf, deploy, opts.Layers)
 	out.Memory.Deployed = MemoryView{PeakLiveBytes: dep.PeakLiveBytes, ArenaBytes: dep.ArenaBytes}
 	out.Unresolved = appendUnresolved(out.Unresolved, planUnresolved)
 	out.Unresolved = appendUnresolved(out.Unresolved, dep.Unresolved)

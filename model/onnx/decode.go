@@ -88,6 +88,33 @@ type decoder struct {
 	nameChunk   []string
 	tensorChunk []model.Tensor
 	segChunk    [][]byte
+	// words holds one copy of each operator and domain name: a graph
+	// names a few dozen of them thousands of times.
+	words map[string]string
+}
+
+// maxWords bounds how many distinct words are kept; past it (a hostile
+// file naming a fresh operator in every node) each is copied on its own.
+const maxWords = 4096
+
+// word is str for a field whose few distinct values recur: the
+// operator and domain names of nodes.
+func (d *decoder) word(f *field, name string) (string, error) {
+	if f.typ != protowire.BytesType {
+		return "", d.wrongType(f, name, protowire.BytesType)
+	}
+	b := d.data[f.lo:f.hi]
+	if w, ok := d.words[string(b)]; ok {
+		return w, nil
+	}
+	w := string(b)
+	if len(d.words) < maxWords {
+		if d.words == nil {
+			d.words = map[string]string{}
+		}
+		d.words[w] = w
+	}
+	return w, nil
 }
 
 // newTensor is a zeroed tensor from the current chunk.
@@ -437,9 +464,9 @@ func (d *decoder) node(lo, hi, depth int) (*model.Node, error) {
 		case 3:
 			n.Name, err = d.str(&f, "name")
 		case 4:
-			n.Op, err = d.str(&f, "op_type")
+			n.Op, err = d.word(&f, "op_type")
 		case 7:
-			n.Domain, err = d.str(&f, "domain")
+			n.Domain, err = d.word(&f, "domain")
 		case 5:
 			i := nAttr
 			nAttr++
