@@ -171,6 +171,13 @@ func FuzzInfer(f *testing.F) {
 		}
 	}
 	f.Add([]byte{})
+	// Tensors computed at load time (static.go): a ConstantOfShape weight,
+	// an expanded mask, ConstantOfShape indices.
+	for _, g := range loadTimeSeeds() {
+		if b, err := onnx.Encode(graphModel(g)); err == nil {
+			f.Add(b)
+		}
+	}
 	f.Fuzz(func(t *testing.T, data []byte) {
 		m, err := onnx.Decode(data, onnx.Options{Path: "fuzz.onnx", ReadFile: func(string) ([]byte, error) { return nil, os.ErrNotExist }})
 		if err != nil {
@@ -202,7 +209,30 @@ func FuzzInfer(f *testing.F) {
 		if got.Sparsity != -1 && (got.Sparsity < 0 || got.Sparsity > 1) {
 			t.Errorf("sparsity is %g", got.Sparsity)
 		}
+		if got.GeneratedParamBytes < 0 || got.GeneratedParamBytes > got.ParamBytes {
+			t.Errorf("generated_param_bytes %d outside 0..param_bytes %d", got.GeneratedParamBytes, got.ParamBytes)
+		}
 	})
+}
+
+// loadTimeSeeds are small graphs whose tensors are computed at load time.
+func loadTimeSeeds() []*model.Graph {
+	zero := &model.Attr{Name: "value", Kind: model.AttrTensor, Tensor: nnI64("value", []int64{0}).tensor()}
+	return []*model.Graph{
+		{Inputs: []*model.ValueInfo{input("x", model.Float32, model.Known(1), model.Known(64))},
+			Nodes: []*model.Node{constNode(nnI64("shape", []int64{64, 64}).tensor()),
+				node("ConstantOfShape", []string{"shape"}, []string{"w"}, fillAttr(0.01)),
+				node("MatMul", []string{"x", "w"}, []string{"y"})},
+			Outputs: []*model.ValueInfo{{Name: "y"}}},
+		{Inputs: []*model.ValueInfo{input("s", model.Float32, model.Known(1), model.Known(1), model.Known(16), model.Known(16))},
+			Nodes: []*model.Node{constNode(nnF32("z", []float64{0}, []int64{}...).tensor()), constNode(nnI64("shape", []int64{1, 1, 16, 16}).tensor()),
+				node("Expand", []string{"z", "shape"}, []string{"mask"}), node("Add", []string{"s", "mask"}, []string{"y"})},
+			Outputs: []*model.ValueInfo{{Name: "y"}}},
+		{Inputs: []*model.ValueInfo{input("x", model.Float32, model.Known(10), model.Known(8))},
+			Nodes: []*model.Node{constNode(nnI64("shape", []int64{100}).tensor()),
+				node("ConstantOfShape", []string{"shape"}, []string{"idx"}, zero), node("Gather", []string{"x", "idx"}, []string{"y"})},
+			Outputs: []*model.ValueInfo{{Name: "y"}}},
+	}
 }
 
 func TestHostileSplitToSequenceHugeAxis(t *testing.T) {
