@@ -21,9 +21,18 @@ type TextOptions struct {
 // ColorFor reports whether text written to w may carry colour: never when
 // the NO_COLOR environment variable is set to anything but the empty string
 // (no-color.org), otherwise only when w is a terminal (a character device).
+// A writer with an Unwrap method (a buffered stream) is judged by the
+// writer it wraps.
 func ColorFor(w io.Writer) bool {
 	if os.Getenv("NO_COLOR") != "" {
 		return false
+	}
+	for range 8 { // a chain of wrappers, bounded
+		u, ok := w.(interface{ Unwrap() io.Writer })
+		if !ok {
+			break
+		}
+		w = u.Unwrap()
 	}
 	f, ok := w.(*os.File)
 	if !ok {

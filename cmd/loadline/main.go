@@ -4,6 +4,7 @@
 package main
 
 import (
+	"bufio"
 	"bytes"
 	"errors"
 	"fmt"
@@ -13,6 +14,7 @@ import (
 	"runtime/pprof"
 	"strconv"
 	"strings"
+	"sync"
 
 	"github.com/spf13/cobra"
 
@@ -181,9 +183,13 @@ func run(args []string, stdout, stderr io.Writer) int {
 
 // runWith executes the command line and returns the exit code.
 func runWith(args []string, stdin io.Reader, stdout, stderr io.Writer) int {
+	out := newOrderedOutput(stdout, stderr)
+	defer out.flush()
+	stdout, stderr = out.stdout(), out.stderr()
 	root := newRoot(stdin, stdout, stderr)
 	root.SetArgs(args)
 	err := root.Execute()
+	out.flush()
 	if err == nil {
 		return exitOK
 	}
@@ -197,6 +203,56 @@ func runWith(args []string, stdin io.Reader, stdout, stderr io.Writer) int {
 	sayError(stderr, "loadline: ", err)
 	return exitUsage
 }
+
+// orderedOutput buffers standard output (a per-layer table of a large
+// model is millions of small writes) and writes what it holds before
+// anything goes to standard error, so that the two streams interleave as
+// they would unbuffered when a CI log joins them. Writers on other
+// goroutines (progress) are serialised by its lock.
+type orderedOutput struct {
+	mu       sync.Mutex
+	buf      *bufio.Writer
+	out, err io.Writer
+}
+
+func newOrderedOutput(stdout, stderr io.Writer) *orderedOutput {
+	return &orderedOutput{buf: bufio.NewWriterSize(stdout, 64<<10), out: stdout, err: stderr}
+}
+
+// stdout and stderr are the two streams through o.
+func (o *orderedOutput) stdout() io.Writer { return stream{o.writeOut, o.out} }
+func (o *orderedOutput) stderr() io.Writer { return stream{o.writeErr, o.err} }
+
+func (o *orderedOutput) writeOut(p []byte) (int, error) {
+	o.mu.Lock()
+	defer o.mu.Unlock()
+	return o.buf.Write(p)
+}
+
+func (o *orderedOutput) writeErr(p []byte) (int, error) {
+	o.mu.Lock()
+	defer o.mu.Unlock()
+	o.buf.Flush() // an error writing stdout shows on the next stdout write
+	return o.err.Write(p)
+}
+
+// flush writes what standard output holds.
+func (o *orderedOutput) flush() {
+	o.mu.Lock()
+	defer o.mu.Unlock()
+	o.buf.Flush()
+}
+
+// stream is one of orderedOutput's streams: its writes go through write,
+// and Unwrap gives the stream beneath (whether it is a terminal decides
+// colour, report.ColorFor).
+type stream struct {
+	write func([]byte) (int, error)
+	under io.Writer
+}
+
+func (s stream) Write(p []byte) (int, error) { return s.write(p) }
+func (s stream) Unwrap() io.Writer           { return s.under }
 
 // sayError writes err to w, one line per part, each after prefix; every
 // part shows outside strings (paths, names, revisions) escaped, so that no

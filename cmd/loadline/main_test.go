@@ -3,6 +3,8 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"fmt"
+	"io"
 	"os"
 	"path/filepath"
 	"strings"
@@ -159,5 +161,28 @@ func TestDemo(t *testing.T) {
 	}
 	if !chime {
 		t.Errorf("demo output lacks the chime detector's ram of 4.41 KiB:\n%s", o)
+	}
+}
+
+// TestOrderedOutputKeepsInterleaving: standard output is buffered, yet a
+// log that joins both streams reads them in the order they were written,
+// and nothing is lost at the end.
+func TestOrderedOutputKeepsInterleaving(t *testing.T) {
+	var joined bytes.Buffer
+	o := newOrderedOutput(&joined, &joined)
+	out, errw := o.stdout(), o.stderr()
+	fmt.Fprint(out, "report line 1\n")
+	fmt.Fprint(out, "report line 2\n")
+	if joined.Len() != 0 {
+		t.Fatalf("standard output was not buffered: %q", joined.String())
+	}
+	fmt.Fprint(errw, "warning\n")
+	fmt.Fprint(out, "report line 3\n")
+	o.flush()
+	if want := "report line 1\nreport line 2\nwarning\nreport line 3\n"; joined.String() != want {
+		t.Errorf("joined log %q, want %q", joined.String(), want)
+	}
+	if u, ok := out.(interface{ Unwrap() io.Writer }); !ok || u.Unwrap() != io.Writer(&joined) {
+		t.Errorf("the buffered stream does not unwrap to the stream beneath, so colour could not be decided on it")
 	}
 }
