@@ -207,6 +207,21 @@ type costCtx struct {
 	node *model.Node
 	ins  []*Value
 	outs []*Value
+	// room holds ins and outs for a node of a few of them, so that the
+	// context is one allocation.
+	room [6]*Value
+}
+
+// newCostCtx is the context of node n, its values not yet looked up.
+func newCostCtx(n *model.Node) *costCtx {
+	c := &costCtx{node: n}
+	vs := c.room[:0]
+	if k := len(n.Inputs) + len(n.Outputs); k > len(c.room) {
+		vs = make([]*Value, 0, k)
+	}
+	vs = vs[:len(n.Inputs)+len(n.Outputs)]
+	c.ins, c.outs = vs[:len(n.Inputs):len(n.Inputs)], vs[len(n.Inputs):]
+	return c
 }
 
 func (c *costCtx) attrInt(name string, def int64) int64 {
@@ -708,8 +723,7 @@ func (k *coster) node(n *model.Node, i int, sc scopes) *tally {
 	if !ok {
 		return k.fail(n, i, "MACs unknown: no cost rule for operator %s", key)
 	}
-	vs := make([]*Value, len(n.Inputs)+len(n.Outputs))
-	c := &costCtx{node: n, ins: vs[:len(n.Inputs):len(n.Inputs)], outs: vs[len(n.Inputs):]}
+	c := newCostCtx(n)
 	for j, name := range n.Inputs {
 		if name != "" {
 			c.ins[j] = sc.lookup(name)

@@ -557,6 +557,7 @@ type byteRun struct{ lo, hi int64 }
 type runTree struct {
 	size        int
 	cover, part [][]byteRun
+	slab        []byteRun // where nodes' first runs are carved from
 }
 
 func newRunTree(size int) *runTree {
@@ -580,10 +581,10 @@ func (t *runTree) ins(node, l, h, a, b int, r byteRun) {
 		return
 	}
 	if a <= l && h <= b {
-		t.cover[node] = addRun(t.cover[node], r)
+		t.cover[node] = t.add(t.cover[node], r)
 		return
 	}
-	t.part[node] = addRun(t.part[node], r)
+	t.part[node] = t.add(t.part[node], r)
 	mid := (l + h) / 2
 	t.ins(2*node, l, mid, a, b, r)
 	t.ins(2*node+1, mid+1, h, a, b, r)
@@ -605,6 +606,21 @@ func (t *runTree) q(node, l, h, a, b int, out []byteRun) []byteRun {
 	mid := (l + h) / 2
 	out = t.q(2*node, l, mid, a, b, out)
 	return t.q(2*node+1, mid+1, h, a, b, out)
+}
+
+// add is addRun, a node's first run taken from a slab with room for a
+// second: most nodes hold one or two runs, and a slice each would be most
+// of the planner's allocations.
+func (t *runTree) add(rs []byteRun, r byteRun) []byteRun {
+	if cap(rs) > 0 {
+		return addRun(rs, r)
+	}
+	if cap(t.slab)-len(t.slab) < 2 {
+		t.slab = make([]byteRun, 0, 4096)
+	}
+	k := len(t.slab)
+	t.slab = append(t.slab, r, byteRun{}) // the second slot is the room
+	return t.slab[k : k+1 : k+2]
 }
 
 // addRun adds r to the sorted disjoint runs rs, joining the runs it

@@ -191,7 +191,7 @@ func planRuntime(inf *Inference) (view RuntimeView, persistent int64, unresolved
 		if !ok {
 			continue
 		}
-		c := &costCtx{node: n, ins: make([]*Value, len(n.Inputs)), outs: make([]*Value, len(n.Outputs))}
+		c := newCostCtx(n)
 		for j, name := range n.Inputs {
 			if name != "" {
 				c.ins[j] = sc.lookup(name)

@@ -108,7 +108,7 @@ func (s *storedInference) check(n *model.Node, i int, vals map[string]*Value, pa
 	if !ok || n.Domain != "tflite" || op.check == nil {
 		return
 	}
-	c := &costCtx{node: n, ins: make([]*Value, len(n.Inputs)), outs: make([]*Value, len(n.Outputs))}
+	c := newCostCtx(n)
 	for j, name := range n.Inputs {
 		if name != "" {
 			c.ins[j] = vals[name]

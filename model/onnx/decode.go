@@ -91,6 +91,8 @@ type decoder struct {
 	// words holds one copy of each operator and domain name: a graph
 	// names a few dozen of them thousands of times.
 	words map[string]string
+	// slab holds the bytes of short strings (keepString).
+	slab strings.Builder
 }
 
 // maxWords bounds how many distinct words are kept; past it (a hostile
