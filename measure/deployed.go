@@ -276,48 +276,15 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, o
 		hasBody: hasBody, views: views, groupOut: groupOut, add: add, fused: &fused}
 	var outs []int32
 	for i, n := range g.Nodes {
-		ins := x.ins(i)
-		for _, id := range ins {
-			if id >= 0 && recs[id] != nil {
-				recs[id].last = i
-			}
-		}
-		var cond *Value
-		if len(ins) > 0 {
-			cond = x.value(ins[0])
-		}
-		hasBody[i] = plan.bodies(n, i, depth, cond, inf.Subgraphs, bodyPeak, bodyArena,
-			func(name string) {
-				if id := x.lookup(name); id >= 0 && recs[id] != nil {
+		outs, hasBody[i] = planStep(plan, inf, x, static, n, i, depth, bodyPeak, bodyArena,
+			func(id int32) {
+				if recs[id] != nil {
 					recs[id].last = i
 				}
 			},
 			func(body *model.Graph, bv map[string]*Value) *MemoryPlan {
 				return planDeployedGraph(inf, body, bv, opts, buffers, depth+1)
-			})
-		fold := !hasBody[i] && !randomOps[n.Op]
-		inputs := 0
-		for _, id := range ins {
-			if id < 0 {
-				continue
-			}
-			inputs++
-			if !static.has(id) {
-				fold = false
-			}
-		}
-		fold = fold && inputs > 0
-		outs = outs[:0]
-		for _, id := range x.outs(i) {
-			if id < 0 {
-				continue
-			}
-			if fold || static.has(id) {
-				static.mark(id)
-				continue
-			}
-			outs = append(outs, id)
-		}
+			}, outs[:0])
 		first := x.outs(i)
 		sole := len(outs) == 1 && len(first) > 0 && outs[0] == first[0]
 		if regions != nil {

@@ -139,3 +139,55 @@ func (s *staticSet) mark(id int32) {
 		s.marked[id] = true
 	}
 }
+
+// planStep is what both memory views do first at node i of the graph
+// numbered x: every tensor the node reads, itself or through its
+// subgraphs (planned with planBody into plan's bodyPeak and bodyArena),
+// stays live through step i (touch); then the outputs that take no
+// activation memory are marked static — all of them when the node folds
+// (no subgraph, not random, at least one input, every input static), as a
+// runtime computes it once at load time — and the others are appended to
+// outs, which is returned, with whether the node holds a subgraph.
+func planStep(plan *MemoryPlan, inf *Inference, x *graphIndex, static *staticSet, n *model.Node, i, depth int,
+	bodyPeak, bodyArena map[int]int64, touch func(id int32), planBody func(*model.Graph, map[string]*Value) *MemoryPlan,
+	outs []int32) ([]int32, bool) {
+	ins := x.ins(i)
+	for _, id := range ins {
+		if id >= 0 {
+			touch(id)
+		}
+	}
+	var cond *Value
+	if len(ins) > 0 {
+		cond = x.value(ins[0])
+	}
+	hasBody := plan.bodies(n, i, depth, cond, inf.Subgraphs, bodyPeak, bodyArena,
+		func(name string) {
+			if id := x.lookup(name); id >= 0 {
+				touch(id)
+			}
+		}, planBody)
+	fold := !hasBody && !randomOps[n.Op]
+	inputs := 0
+	for _, id := range ins {
+		if id < 0 {
+			continue
+		}
+		inputs++
+		if !static.has(id) {
+			fold = false
+		}
+	}
+	fold = fold && inputs > 0
+	for _, id := range x.outs(i) {
+		if id < 0 {
+			continue
+		}
+		if fold || static.has(id) {
+			static.mark(id)
+			continue
+		}
+		outs = append(outs, id)
+	}
+	return outs, hasBody
+}

@@ -169,46 +169,20 @@ func planGraph(inf *Inference, g *model.Graph, vals map[string]*Value, depth int
 
 	bodyPeak := map[int]int64{}
 	bodyArena := map[int]int64{}
-	for i, n := range g.Nodes {
-		ins, outs := x.ins(i), x.outs(i)
-		for _, id := range ins {
-			if id >= 0 && recs[id] != nil {
+	touch := func(i int) func(int32) {
+		return func(id int32) {
+			if recs[id] != nil {
 				recs[id].last = i
 			}
 		}
-		var cond *Value
-		if len(ins) > 0 {
-			cond = x.value(ins[0])
-		}
-		hasBody := plan.bodies(n, i, depth, cond, inf.Subgraphs, bodyPeak, bodyArena,
-			func(name string) {
-				if id := x.lookup(name); id >= 0 && recs[id] != nil {
-					recs[id].last = i
-				}
-			},
+	}
+	var outs []int32
+	for i, n := range g.Nodes {
+		outs, _ = planStep(plan, inf, x, static, n, i, depth, bodyPeak, bodyArena, touch(i),
 			func(body *model.Graph, bv map[string]*Value) *MemoryPlan {
 				return planGraph(inf, body, bv, depth+1)
-			})
-		fold := !hasBody && !randomOps[n.Op]
-		inputs := 0
-		for _, id := range ins {
-			if id < 0 {
-				continue
-			}
-			inputs++
-			if !static.has(id) {
-				fold = false
-			}
-		}
-		fold = fold && inputs > 0
+			}, outs[:0])
 		for _, id := range outs {
-			if id < 0 {
-				continue
-			}
-			if fold || static.has(id) {
-				static.mark(id)
-				continue
-			}
 			add(id, i, i)
 		}
 	}
