@@ -214,14 +214,20 @@ type costCtx struct {
 
 // newCostCtx is the context of node n, its values not yet looked up.
 func newCostCtx(n *model.Node) *costCtx {
-	c := &costCtx{node: n}
+	c := &costCtx{}
+	c.reset(n)
+	return c
+}
+
+// reset makes c the context of node n, its values not yet looked up.
+func (c *costCtx) reset(n *model.Node) {
+	*c = costCtx{node: n}
 	vs := c.room[:0]
 	if k := len(n.Inputs) + len(n.Outputs); k > len(c.room) {
 		vs = make([]*Value, 0, k)
 	}
 	vs = vs[:len(n.Inputs)+len(n.Outputs)]
 	c.ins, c.outs = vs[:len(n.Inputs):len(n.Inputs)], vs[len(n.Inputs):]
-	return c
 }
 
 func (c *costCtx) attrInt(name string, def int64) int64 {
@@ -649,6 +655,20 @@ type coster struct {
 	// with one signature share one body (Inference.Calls), and counting it
 	// once per call would multiply the work as nested calls do.
 	bodies map[*CallBody]*tally
+	// ctxs holds a node context per nesting depth, reused from node to
+	// node: a node's context is done with before the next node at its
+	// depth, and the nodes of its bodies are one depth deeper.
+	ctxs []*costCtx
+}
+
+// ctx is the context of node n at the coster's depth.
+func (k *coster) ctx(n *model.Node) *costCtx {
+	for len(k.ctxs) <= k.depth {
+		k.ctxs = append(k.ctxs, &costCtx{})
+	}
+	c := k.ctxs[k.depth]
+	c.reset(n)
+	return c
 }
 
 // CountCosts counts the MACs and FLOPs of every node of an inferred model
@@ -669,8 +689,9 @@ func countCosts(inf *Inference, perNode bool) *Costs {
 	}
 	total := newTally()
 	sc := scopes{inf.Values}
+	x := inf.index(inf.Model.Graph, inf.Values)
 	for i, n := range inf.Model.Graph.Nodes {
-		t := k.node(n, i, sc)
+		t := k.node(n, i, sc, x)
 		total.add(t)
 		if perNode {
 			out.Nodes = append(out.Nodes, NodeCost{Node: nodeName(n, i), Op: n.Op, MACs: t.macs, FLOPs: t.flops, Known: t.known})
@@ -704,7 +725,7 @@ func (k *coster) fail(n *model.Node, i int, format string, args ...any) *tally {
 }
 
 // node costs one node whose values are found in sc.
-func (k *coster) node(n *model.Node, i int, sc scopes) *tally {
+func (k *coster) node(n *model.Node, i int, sc scopes, x *graphIndex) *tally {
 	domain := n.Domain
 	if domain == "ai.onnx" {
 		domain = ""
@@ -723,15 +744,25 @@ func (k *coster) node(n *model.Node, i int, sc scopes) *tally {
 	if !ok {
 		return k.fail(n, i, "MACs unknown: no cost rule for operator %s", key)
 	}
-	c := newCostCtx(n)
-	for j, name := range n.Inputs {
-		if name != "" {
-			c.ins[j] = sc.lookup(name)
+	c := k.ctx(n)
+	if x != nil {
+		// The main graph's values by number: no look-up by name.
+		for j, id := range x.ins(i) {
+			c.ins[j] = x.value(id)
 		}
-	}
-	for j, name := range n.Outputs {
-		if name != "" {
-			c.outs[j] = sc.lookup(name)
+		for j, id := range x.outs(i) {
+			c.outs[j] = x.value(id)
+		}
+	} else {
+		for j, name := range n.Inputs {
+			if name != "" {
+				c.ins[j] = sc.lookup(name)
+			}
+		}
+		for j, name := range n.Outputs {
+			if name != "" {
+				c.outs[j] = sc.lookup(name)
+			}
 		}
 	}
 	t := newTally()
@@ -797,7 +828,7 @@ func (k *coster) graph(g *model.Graph, outer scopes) (*tally, bool) {
 	sc := append(outer[:len(outer):len(outer)], vals)
 	t := newTally()
 	for i, n := range g.Nodes {
-		t.add(k.node(n, i, sc))
+		t.add(k.node(n, i, sc, nil))
 	}
 	return t, true
 }
@@ -817,7 +848,7 @@ func (k *coster) call(n *model.Node, i int) *tally {
 	t := newTally()
 	sc := scopes{body.Values}
 	for j, bn := range body.Graph.Nodes {
-		t.add(k.node(bn, j, sc))
+		t.add(k.node(bn, j, sc, nil))
 	}
 	k.bodies[body] = t.clone()
 	return t

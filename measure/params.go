@@ -210,15 +210,23 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 	// A subgraph sees its own values, then its enclosing graphs' (a chain
 	// of scopes, not a copy per subgraph, which would cost the outer
 	// graph's size once per subgraph).
-	var walk func(nodes []*model.Node, sc scopes)
-	walk = func(nodes []*model.Node, sc scopes) {
+	// x numbers the main graph's values (nil in a subgraph), which are
+	// then read by number rather than looked up by name.
+	var walk func(nodes []*model.Node, sc scopes, x *graphIndex)
+	walk = func(nodes []*model.Node, sc scopes, x *graphIndex) {
 		if len(sc) > maxGraphDepth+1 {
 			return
 		}
-		for _, n := range nodes {
+		for i, n := range nodes {
 			folded := len(n.Outputs) > 0
-			for _, o := range n.Outputs {
-				if v := sc.lookup(o); o != "" && (v == nil || v.Const() == nil) {
+			for j, o := range n.Outputs {
+				var v *Value
+				if x != nil {
+					v = x.value(x.outs(i)[j])
+				} else {
+					v = sc.lookup(o)
+				}
+				if o != "" && (v == nil || v.Const() == nil) {
 					folded = false
 				}
 			}
@@ -228,13 +236,13 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 				for _, sg := range append([]*model.Graph{a.Graph}, a.Graphs...) {
 					if sg != nil {
 						addConsts(sg)
-						walk(sg.Nodes, append(sc[:len(sc):len(sc)], inf.Subgraphs[sg]))
+						walk(sg.Nodes, append(sc[:len(sc):len(sc)], inf.Subgraphs[sg]), nil)
 					}
 				}
 			}
 		}
 	}
-	walk(g.Nodes, scopes{inf.Values})
+	walk(g.Nodes, scopes{inf.Values}, inf.index(g, inf.Values))
 
 	// A node's data inputs feed a weight when the node is computed at run
 	// time, or when it is folded (a Transpose, Cast or Identity of a
