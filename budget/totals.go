@@ -23,7 +23,16 @@ import (
 //	       persistent bytes (state kept between invocations) plus the
 //	       weights of every model when the device keeps weights in RAM;
 //	       concurrent: the sum of the arenas plus the same. Shared weights
-//	       in RAM are counted once when shared_weights is true.
+//	       in RAM are counted once when shared_weights is true: of the
+//	       shared constants only those that are parameters (counted in
+//	       param_bytes, so in each model's weights in RAM) are, each
+//	       size × (models holding it as a parameter − 1) less. A shared
+//	       shape tensor or BatchNormalization statistic is in flash but
+//	       was never in the RAM sum, so nothing of it is taken off.
+//
+// A constant is shared when more than one of the models stores it; a
+// model that stores it twice is one copy in this count (both are in its
+// file, and the file is what it stores in flash).
 //	load   the share of the core's time the set needs: Σ latency ÷ period
 //	       over the models with a period (needs the device's target for
 //	       latency). Each model's latency is also judged against its own
@@ -42,6 +51,9 @@ type ConstantDigest struct {
 	Name   string `json:"name"`
 	Bytes  int64  `json:"bytes"`
 	Digest string `json:"digest"`
+	// Weight is true when the constant is a parameter of the model
+	// (counted in param_bytes, so in ram with weights: ram).
+	Weight bool `json:"weight,omitempty"`
 }
 
 // DeviceInput is one model a device runs, with its figures (as measured,
@@ -126,12 +138,18 @@ func (dev *Device) Totals(models []DeviceInput) (DeviceTotals, []DeviceShare, []
 		bytes  int64
 		models []string
 		names  []string
+		// weightIn counts the models that hold the constant as a
+		// parameter, so in their weights in RAM; last is the index of the
+		// last model that stored it, for counting each model once.
+		weightIn int64
+		last     int
+		lastPaid bool
 	}
 	digests := map[string]*seen{}
 	var maxArena, sumArena, persist, weights int64
 	var load float64
 	loadKnown := false
-	for _, in := range models {
+	for k, in := range models {
 		sh := DeviceShare{Path: in.Path, Error: in.Error}
 		if in.Every > 0 {
 			sh.EveryMS = float64(in.Every) / float64(time.Millisecond)
@@ -167,11 +185,18 @@ func (dev *Device) Totals(models []DeviceInput) (DeviceTotals, []DeviceShare, []
 		for _, c := range in.Figures.Constants {
 			s := digests[c.Digest]
 			if s == nil {
-				s = &seen{bytes: c.Bytes}
+				s = &seen{bytes: c.Bytes, last: -1}
 				digests[c.Digest] = s
 			}
-			s.models = append(s.models, in.Path)
-			s.names = append(s.names, c.Name)
+			if s.last != k {
+				s.last, s.lastPaid = k, false
+				s.models = append(s.models, in.Path)
+				s.names = append(s.names, c.Name)
+			}
+			if c.Weight && !s.lastPaid {
+				s.lastPaid = true
+				s.weightIn++
+			}
 		}
 		if in.Every > 0 {
 			if ns, ok := fig.Value(MetricLatency); ok {
@@ -190,13 +215,16 @@ func (dev *Device) Totals(models []DeviceInput) (DeviceTotals, []DeviceShare, []
 		shares = append(shares, sh)
 	}
 	var shared []SharedConstant
-	var sharedBytes, sharedInRAM int64
+	var sharedBytes, sharedWeights, sharedInRAM int64
 	for d, s := range digests {
 		if len(s.models) < 2 {
 			continue
 		}
 		copies := int64(len(s.models))
 		sharedBytes = addSat(sharedBytes, s.bytes*(copies-1))
+		if s.weightIn > 1 {
+			sharedWeights = addSat(sharedWeights, s.bytes*(s.weightIn-1))
+		}
 		shared = append(shared, SharedConstant{Digest: d, Bytes: s.bytes, Models: s.models, Names: s.names})
 	}
 	sort.Slice(shared, func(i, j int) bool {
@@ -209,7 +237,7 @@ func (dev *Device) Totals(models []DeviceInput) (DeviceTotals, []DeviceShare, []
 	if dev.SharedWeights {
 		t.FlashBytes -= sharedBytes
 		if dev.Weights == WeightsRAM {
-			sharedInRAM = sharedBytes
+			sharedInRAM = sharedWeights
 		}
 	}
 	arenas := maxArena
@@ -316,9 +344,9 @@ func (dev *Device) JudgeDevice(base, head []DeviceInput) DeviceResult {
 	}
 	if ht.FlashSharedBytes > 0 {
 		if dev.SharedWeights {
-			res.Notes = append(res.Notes, fmt.Sprintf("%s of identical weights stored in several models is counted once (shared_weights: true)", FormatBytes(ht.FlashSharedBytes)))
+			res.Notes = append(res.Notes, fmt.Sprintf("%s of identical constants stored in several models is counted once (shared_weights: true)", FormatBytes(ht.FlashSharedBytes)))
 		} else {
-			res.Notes = append(res.Notes, fmt.Sprintf("%s of identical weights is stored more than once; linking each once (shared_weights: true) would save it", FormatBytes(ht.FlashSharedBytes)))
+			res.Notes = append(res.Notes, fmt.Sprintf("%s of identical constants is stored more than once; linking each once (shared_weights: true) would save it", FormatBytes(ht.FlashSharedBytes)))
 		}
 	}
 	return res

@@ -14,7 +14,8 @@ import (
 //	b: flash  60,000 B, arena 30,000 B, persistent 2,048 B, latency 10 ms, every 50 ms
 //	c: flash  20,000 B, arena 50,000 B, persistent 0, latency 100 ms, every 500 ms
 //
-// a and b store one identical 16,384-byte constant (a shared first block).
+// a and b store one identical 16,384-byte constant (a shared first block),
+// a parameter of both.
 func totalsInputs() []DeviceInput {
 	fig := func(file, arena, persist int64, latencyMS float64, digests ...ConstantDigest) *Figures {
 		return &Figures{FileBytes: file, ParamBytes: file / 2,
@@ -22,10 +23,10 @@ func totalsInputs() []DeviceInput {
 			Target:    &TargetFigures{Name: "test", LatencyMS: latencyMS},
 			Constants: digests}
 	}
-	block := ConstantDigest{Name: "stem.weight", Bytes: 16384, Digest: "d1"}
+	block := ConstantDigest{Name: "stem.weight", Bytes: 16384, Digest: "d1", Weight: true}
 	return []DeviceInput{
 		{Path: "models/a.onnx", Every: 20 * time.Millisecond, Figures: fig(100_000, 40_000, 0, 4, block, ConstantDigest{Name: "head", Bytes: 4000, Digest: "d2"})},
-		{Path: "models/b.onnx", Every: 50 * time.Millisecond, Figures: fig(60_000, 30_000, 2048, 10, ConstantDigest{Name: "backbone.0", Bytes: 16384, Digest: "d1"})},
+		{Path: "models/b.onnx", Every: 50 * time.Millisecond, Figures: fig(60_000, 30_000, 2048, 10, ConstantDigest{Name: "backbone.0", Bytes: 16384, Digest: "d1", Weight: true})},
 		{Path: "models/c.onnx", Every: 500 * time.Millisecond, Figures: fig(20_000, 50_000, 0, 100)},
 	}
 }
@@ -231,5 +232,56 @@ func TestLoadTimeWeightsInRAM(t *testing.T) {
 		if tot.RAMBytes != tc.want || len(shares) != 1 || shares[0].Weights != tc.want-32_768 {
 			t.Errorf("weights: %s: total ram %d (shares %+v), want %d", tc.weights, tot.RAMBytes, shares, tc.want)
 		}
+	}
+}
+
+// TestDeviceSharedCountsModelsNotCopies: a constant is shared across the
+// models of a device, each model one copy however often its own file holds
+// it, and the RAM total with weights: ram takes off only the copies that
+// were in the weights sum (hand-worked):
+//
+//	a: file 10,000 B, params 6,000 B; stores "g" (1,024 B, a parameter)
+//	   twice (two layers' identical gains) and "s" (512 B, not a parameter)
+//	b: file 8,000 B, params 3,000 B; stores "g" once as a parameter and "s"
+//	   once, as a parameter this time (read as a weight)
+//	c: file 4,000 B, params 2,000 B; stores "s" once, not a parameter
+//
+// flash_shared = g 1,024 × (2 models − 1) + s 512 × (3 − 1) = 2,048 B (a's
+// second g is in a's own file, as a's flash counts it). Linked once: flash
+// 22,000 − 2,048 = 19,952. ram one at a time, arenas 1,000 / 2,000 /
+// 3,000, weights in RAM: 3,000 + 11,000 − g 1,024 × (2 − 1) − s 512 ×
+// (1 − 1) = 12,976 (s is a parameter of b alone: one copy in RAM).
+func TestDeviceSharedCountsModelsNotCopies(t *testing.T) {
+	fig := func(file, params, arena int64, ds ...ConstantDigest) *Figures {
+		return &Figures{FileBytes: file, ParamBytes: params,
+			Memory: MemoryFigures{Deployed: MemoryView{ArenaBytes: arena, PeakLiveBytes: arena}}, Constants: ds}
+	}
+	g := func(name string) ConstantDigest {
+		return ConstantDigest{Name: name, Bytes: 1024, Digest: "g", Weight: true}
+	}
+	s := func(name string, weight bool) ConstantDigest {
+		return ConstantDigest{Name: name, Bytes: 512, Digest: "s", Weight: weight}
+	}
+	in := []DeviceInput{
+		{Path: "a.onnx", Figures: fig(10_000, 6_000, 1_000, g("l1.gain"), s("shape", false), g("l2.gain"))},
+		{Path: "b.onnx", Figures: fig(8_000, 3_000, 2_000, g("gain"), s("table", true))},
+		{Path: "c.onnx", Figures: fig(4_000, 2_000, 3_000, s("shape", false))},
+	}
+	dev := &Device{Name: "board", Weights: WeightsRAM, Runs: RunsOneAtATime, SharedWeights: true}
+	tot, _, shared := dev.Totals(in)
+	if tot.FlashSharedBytes != 2_048 || tot.FlashBytes != 19_952 {
+		t.Errorf("flash %d, shared %d; want 19952, 2048", tot.FlashBytes, tot.FlashSharedBytes)
+	}
+	if tot.RAMBytes != 12_976 {
+		t.Errorf("ram %d, want 12976", tot.RAMBytes)
+	}
+	if len(shared) != 2 || strings.Join(shared[0].Models, ",") != "a.onnx,b.onnx" || strings.Join(shared[0].Names, ",") != "l1.gain,gain" ||
+		strings.Join(shared[1].Models, ",") != "a.onnx,b.onnx,c.onnx" {
+		t.Errorf("shared %+v", shared)
+	}
+	// One model alone shares nothing with itself.
+	tot, _, shared = dev.Totals(in[:1])
+	if tot.FlashSharedBytes != 0 || len(shared) != 0 || tot.FlashBytes != 10_000 || tot.RAMBytes != 7_000 {
+		t.Errorf("one model: flash %d, shared %d %+v, ram %d; want 10000, 0, none, 7000", tot.FlashBytes, tot.FlashSharedBytes, shared, tot.RAMBytes)
 	}
 }

@@ -8,6 +8,7 @@ import (
 
 	"github.com/loadline/loadline/budget"
 	"github.com/loadline/loadline/internal/corpus"
+	"github.com/loadline/loadline/measure"
 	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/model/build"
 	"github.com/loadline/loadline/model/onnx"
@@ -231,5 +232,93 @@ models:
 	}
 	if !found {
 		t.Errorf("no failing period check for the spotter: %+v", res.Devices[0].Checks)
+	}
+}
+
+// sharedStemModel builds the model of TestDeviceRAMSharedWeightsOnlyParams:
+// x [1,64,4,4] float32 → Conv "stem" 64→64 1×1 (no bias) →
+// BatchNormalization "bn" → Relu → Conv head 64→out 1×1 → Gather on axis 1
+// by a stored [64] int64 index vector "idx" (0…7 eight times). Weights are
+// drawn from the seed and their names, so two models built here share
+// stem.weight, bn.* and idx byte for byte and differ in their heads.
+func sharedStemModel(t *testing.T, head string, out int64) *measure.Metrics {
+	t.Helper()
+	b := build.New("stem", 13, build.Seed(7))
+	x := b.Input("x", model.Float32, 1, 64, 4, 4)
+	x = b.Conv("stem", x, build.Conv2D(64, 1, 1, 0))
+	x = b.BatchNormalization("bn", x, 0)
+	x = b.Relu("relu", x)
+	x = b.Conv(head, x, build.Conv2D(out, 1, 1, 0))
+	idx := make([]int64, 64)
+	for i := range idx {
+		idx[i] = int64(i % 8)
+	}
+	iv := b.Int64s("idx", idx...)
+	b.Output(x)
+	m, err := b.Model()
+	if err != nil {
+		t.Fatal(err)
+	}
+	g := m.Graph
+	g.Nodes = append(g.Nodes, &model.Node{Op: "Gather", Name: "pick", Inputs: []string{x.Name, iv.Name}, Outputs: []string{"picked"},
+		Attrs: []*model.Attr{{Name: "axis", Kind: model.AttrInt, Int: 1}}})
+	g.Outputs = []*model.ValueInfo{{Name: "picked"}}
+	data, err := onnx.Encode(m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	met, err := measure.Measure(m, int64(len(data)), measure.Options{Digests: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return met
+}
+
+// TestDeviceRAMSharedWeightsOnlyParams: with weights: ram and
+// shared_weights: true, the RAM total takes off only the shared constants
+// that are parameters, the ones each model's weights in RAM counted; flash
+// takes off every shared constant, since flash counts the whole file.
+// Hand-worked for two models built by sharedStemModel, heads a (64→8) and
+// b (64→16), every tensor float32 but idx:
+//
+//	shared, parameters: stem.weight 64·64·4 = 16,384 B, bn.weight and
+//	  bn.bias 64·4 = 256 B each: 16,896 B
+//	shared, not parameters: bn.running_mean and bn.running_var 256 B each
+//	  (statistics), idx 64·8 = 512 B (Gather's indices): 1,024 B
+//	param_bytes a = 16,384 + 512 + 8·64·4 (2,048) = 18,944 B;
+//	            b = 16,384 + 512 + 16·64·4 (4,096) = 20,992 B
+//	deployed arena, each: x 64·4·4·4 = 4,096 B and the stem's output
+//	  (BatchNormalization folded, Relu fused) 4,096 B live together:
+//	  8,192 B; later steps hold less (4,096 + 512 or 1,024, then + 4,096
+//	  for the Gather after the stem's output is freed, in its place)
+//
+// ram one at a time = 8,192 + 18,944 + 20,992 − 16,896 = 31,232 B (taking
+// off all 17,920 shared bytes gave 30,208 B, 1,024 B short: bytes that were
+// never in the weights sum). flash = file a + file b − 17,920 B.
+func TestDeviceRAMSharedWeightsOnlyParams(t *testing.T) {
+	a, b := sharedStemModel(t, "head_a", 8), sharedStemModel(t, "head_b", 16)
+	if a.ParamBytes != 18_944 || b.ParamBytes != 20_992 {
+		t.Fatalf("param_bytes %d and %d, want 18944 and 20992", a.ParamBytes, b.ParamBytes)
+	}
+	if a.Memory.Deployed.ArenaBytes != 8192 || b.Memory.Deployed.ArenaBytes != 8192 {
+		t.Fatalf("deployed arenas %d and %d, want 8192", a.Memory.Deployed.ArenaBytes, b.Memory.Deployed.ArenaBytes)
+	}
+	in := []budget.DeviceInput{{Path: "a.onnx", Figures: Figures(a)}, {Path: "b.onnx", Figures: Figures(b)}}
+	dev := &budget.Device{Name: "board", Weights: budget.WeightsRAM, Runs: budget.RunsOneAtATime, SharedWeights: true}
+	tot, _, shared := dev.Totals(in)
+	if tot.RAMBytes != 31_232 {
+		t.Errorf("ram %d, want 31232 (8192 + 18944 + 20992 − 16896)", tot.RAMBytes)
+	}
+	if tot.FlashSharedBytes != 17_920 || len(shared) != 6 {
+		t.Errorf("flash shared %d in %d constants, want 17920 in 6: %+v", tot.FlashSharedBytes, len(shared), shared)
+	}
+	if want := a.FileBytes + b.FileBytes - 17_920; tot.FlashBytes != want {
+		t.Errorf("flash %d, want %d (files %d + %d − 17920)", tot.FlashBytes, want, a.FileBytes, b.FileBytes)
+	}
+	// Weights in flash: RAM holds the arena only (no weight is computed at
+	// load time), whatever is shared.
+	dev.Weights = budget.WeightsFlash
+	if tot, _, _ = dev.Totals(in); tot.RAMBytes != 8192 {
+		t.Errorf("ram with weights in flash %d, want 8192", tot.RAMBytes)
 	}
 }

@@ -36,7 +36,7 @@ func Figures(m *measure.Metrics) *budget.Figures {
 		f.Memory.Runtime = &budget.RuntimeView{PeakLiveBytes: rt.PeakLiveBytes, ArenaBytes: rt.ArenaBytes, ScratchBytes: rt.ScratchBytes}
 	}
 	for _, c := range m.Constants {
-		f.Constants = append(f.Constants, budget.ConstantDigest{Name: c.Name, Bytes: c.Bytes, Digest: c.Digest})
+		f.Constants = append(f.Constants, budget.ConstantDigest{Name: c.Name, Bytes: c.Bytes, Digest: c.Digest, Weight: c.Weight})
 	}
 	if m.Error != "" {
 		f.Unknown = map[string]string{}

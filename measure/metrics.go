@@ -176,7 +176,7 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 		ViewDeployed: viewDetail(dep, opts.Layers),
 	}
 	if opts.Digests {
-		if out.Constants, err = ConstantDigests(m); err != nil {
+		if out.Constants, err = ConstantDigests(m, ws); err != nil {
 			return nil, err
 		}
 	}

@@ -36,12 +36,13 @@ device keeps weights in RAM, else + the weight bytes computed at load
 time, generated_param_bytes, which are in RAM either way); flash = the model file's bytes plus its
 external data.
 Device totals, for a device that lists the models it runs: flash = the sum
-of their flash (identical constants of 256 B or more counted once with
-shared_weights: true, else reported as a possible saving; flash_shared =
-each such constant's bytes × (copies − 1)); ram = the largest arena
-(one-at-a-time) or the sum of the arenas (concurrent), plus every model's
-persistent bytes and weights kept in RAM (shared ones once with
-shared_weights: true) or computed at load time; load = Σ latency ÷ period, the share of the core's
+of their flash (identical constants of 256 B or more, parameters or not,
+counted once with shared_weights: true, else reported as a possible saving;
+flash_shared = each such constant's bytes × (models storing it − 1)); ram =
+the largest arena (one-at-a-time) or the sum of the arenas (concurrent),
+plus every model's persistent bytes and weights kept in RAM (a shared
+constant that is a parameter once with shared_weights: true; one that is
+not was never in RAM) or computed at load time; load = Σ latency ÷ period, the share of the core's
 time (needs a target). Each total is judged against the device's limits
 (default: its capacities), and each model's latency against its period.
 Exit codes: 0 within budget (warnings allowed), 1 a budget is broken or a
