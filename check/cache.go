@@ -17,7 +17,7 @@ import (
 // AnalyzerVersion names the rules that produce the figures. It is part of
 // every cache key: bump it whenever a change to a decoder or measure can
 // change a figure, so that no stale figure survives an upgrade.
-const AnalyzerVersion = "loadline-figures-12"
+const AnalyzerVersion = "loadline-figures-13"
 
 // Cache keeps measured figures keyed by blob id, analyzer version and the
 // measuring options, in pack files under the repository's git directory

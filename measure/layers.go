@@ -41,9 +41,14 @@ type Layer struct {
 	// every output together.
 	InElements  int64 `json:"in_elements"`
 	OutElements int64 `json:"out_elements"`
-	// WeightBytes is the stored size of the node's weight inputs (values
-	// straight from initializers or Constant nodes), each counted once per
-	// node; ActivationBytes the size of its run-time inputs and outputs.
+	// WeightBytes is the size of the node's constant inputs, at any
+	// position: stored (initializers, Constant nodes) or known before the
+	// run (computed from constants: a folded Shape, a Transpose of a
+	// weight). ActivationBytes is the size of its outputs and of its
+	// run-time inputs at data positions; a run-time value read as a shape,
+	// index, axis or count, or as statistics or quantization metadata
+	// (shapeOperands, params.go), is not data and counts in neither. Each
+	// input counts once per node. Defined in traffic.
 	WeightBytes     int64 `json:"weight_bytes"`
 	ActivationBytes int64 `json:"activation_bytes"`
 
@@ -220,7 +225,9 @@ func layersOf(inf *Inference, costs *Costs, plan *MemoryPlan) []Layer {
 var depthwiseOps = map[string]bool{"Conv": true, "ConvInteger": true, "QLinearConv": true}
 
 // traffic fills the layer's dtype, element counts and bytes moved from what
-// inference knows of the node's inputs and outputs.
+// inference knows of the node's inputs and outputs: the one definition of
+// a layer's weight bytes and activation bytes (README "Conventions",
+// `loadline --help`), which the device cost model's memory term reads.
 func traffic(l *Layer, n *model.Node, vals map[string]*Value) {
 	seen := map[string]bool{}
 	for i, name := range n.Inputs {
@@ -240,9 +247,19 @@ func traffic(l *Layer, n *model.Node, vals map[string]*Value) {
 			l.WeightBytes += b
 			continue
 		}
-		l.ActivationBytes += b
 		if l.DType == "" && v.Type.Kind == model.KindTensor {
 			l.DType = v.Type.DType.String()
+		}
+		switch {
+		case v.Const() != nil:
+			// Known before the run (computed from constants, or bound):
+			// a constant, read as the stored ones are.
+			l.WeightBytes += b
+		case isShapeOperand(n, i):
+			// A run-time shape, index, axis or count, statistics or
+			// quantization metadata (params.go's shapeOperands): not data.
+		default:
+			l.ActivationBytes += b
 		}
 	}
 	for _, name := range n.Outputs {

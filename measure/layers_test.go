@@ -57,3 +57,57 @@ func TestLayersTraffic(t *testing.T) {
 		t.Errorf("Relu layer %+v", relu)
 	}
 }
+
+// TestLayerTrafficConstantsAndShapeOperands: a layer's activation bytes are
+// its run-time data inputs and its outputs; a constant it reads, stored or
+// known before the run (a folded Shape, a folded Transpose of a weight), is
+// weight bytes, and a run-time value it reads at a shape position (Shape's
+// input, read only for its shape) is neither. Hand-worked, float32 but the
+// int64 shapes, x [2,3,4] (96 B):
+//
+//	flat = Reshape(x, shape {6,4} stored, 16 B): weight 16, act x 96 +
+//	       out 96 = 192
+//	shp  = Shape(x) → [3] int64, 24 B, known before the run: x is read for
+//	       its shape only, so act = out 24 (was 96 + 24 = 120)
+//	back = Reshape(flat, shp): the folded shape is weight 24; act 96 + 96
+//	       = 192 (was 96 + 24 + 96 = 216, weight 0)
+//	wt   = Transpose(W [5,4] stored, 80 B): weight 80, act out 80
+//	mm   = MatMul(back, wt) → [2,3,5], 120 B: wt is W transposed at load
+//	       time, weight 80; act 96 + 120 = 216 (was 96 + 80 + 120 = 296,
+//	       weight 0)
+func TestLayerTrafficConstantsAndShapeOperands(t *testing.T) {
+	w := nnF32("W", make([]float64, 20), 5, 4).tensor()
+	shape := nnI64("shape", []int64{6, 4}, 2).tensor()
+	g := &model.Graph{
+		Inputs:       []*model.ValueInfo{input("x", model.Float32, model.Known(2), model.Known(3), model.Known(4))},
+		Initializers: []*model.Tensor{w, shape},
+		Nodes: []*model.Node{
+			node("Reshape", []string{"x", "shape"}, []string{"flat"}),
+			node("Shape", []string{"x"}, []string{"shp"}),
+			node("Reshape", []string{"flat", "shp"}, []string{"back"}),
+			node("Transpose", []string{"W"}, []string{"wt"}),
+			node("MatMul", []string{"back", "wt"}, []string{"y"}),
+		},
+		Outputs: []*model.ValueInfo{{Name: "y"}},
+	}
+	m, err := Measure(graphModel(g), 0, Options{Layers: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []struct {
+		op            string
+		weight, activ int64
+	}{{"Reshape", 16, 192}, {"Shape", 0, 24}, {"Reshape", 24, 192}, {"Transpose", 80, 80}, {"MatMul", 80, 216}}
+	if len(m.Layers) != len(want) {
+		t.Fatalf("%d layers, want %d", len(m.Layers), len(want))
+	}
+	for i, wl := range want {
+		l := m.Layers[i]
+		if l.Op != wl.op || l.WeightBytes != wl.weight || l.ActivationBytes != wl.activ {
+			t.Errorf("layer %d %s: weight %d, activation %d; want %s %d, %d", i, l.Op, l.WeightBytes, l.ActivationBytes, wl.op, wl.weight, wl.activ)
+		}
+	}
+	if m.Layers[4].DType != "float32" {
+		t.Errorf("MatMul dtype %q, want float32", m.Layers[4].DType)
+	}
+}

@@ -108,7 +108,8 @@ type Node struct {
 	// outputs together.
 	InElements, OutElements int64
 	// WeightBytes are read from where the device keeps weights,
-	// ActivationBytes (run-time inputs and outputs) from RAM.
+	// ActivationBytes (outputs and run-time data inputs) from RAM; measure
+	// defines both (traffic in measure/layers.go).
 	WeightBytes, ActivationBytes int64
 }
 

@@ -127,9 +127,12 @@ const conventions = `Figures (static estimates from the model file; measure on t
                max(fixed + per_unit × work, memory cycles) cycles, work = MACs
                for the first four classes and the larger of input 0's and the
                outputs' elements for the others, memory cycles = weight bytes /
-               flash (or RAM) bytes per cycle + run-time input and output bytes /
-               RAM bytes per cycle
-               (a roofline); latency = cycles / clock, energy = power × latency.
+               flash (or RAM) bytes per cycle + activation bytes / RAM bytes per
+               cycle (a roofline); weight bytes = the layer's constant inputs,
+               stored or known before the run; activation bytes = its outputs
+               plus its run-time inputs at data positions (a run-time shape,
+               index, axis or count, statistics or quantization metadata is not
+               data and counts in neither); latency = cycles / clock, energy = power × latency.
                Built-in targets are fitted to published MLPerf Tiny measurements;
                these are estimates: measure on the device before release.
   unsupported  operators the target's runtime has no kernel for (at their dtype),
