@@ -18,6 +18,11 @@ import (
 // read or measured has Error set and the others are still measured.
 func MeasureFiles(paths []string, opts measure.Options) []*measure.Metrics {
 	out := make([]*measure.Metrics, len(paths))
+	if len(paths) < runtime.NumCPU() {
+		// A core to spare for each file: each model's passes run side
+		// by side (the figures are the same).
+		opts.Parallel = true
+	}
 	sem := make(chan struct{}, max(1, runtime.NumCPU()))
 	var wg sync.WaitGroup
 	for i, p := range paths {

@@ -6,6 +6,7 @@ import (
 	"slices"
 	"sort"
 	"strings"
+	"sync"
 
 	"github.com/loadline/loadline/model"
 )
@@ -71,14 +72,17 @@ type Inference struct {
 	// the graph inputs it depends on, in the order met.
 	Undecided []UndecidedIf
 	// indexes holds each graph's numbered values (index.go), made when a
-	// pass first asks and shared by the passes after it.
+	// pass first asks and shared by the passes after it; mu guards it and
+	// what an index caches, as Measure may run passes side by side.
+	mu      sync.Mutex
 	indexes map[*model.Graph]*graphIndex
 }
 
 // index is the numbered values of g, a graph of the model whose inferred
-// values are vals, made on the first call. An Inference is read by one
-// pass at a time.
+// values are vals, made on the first call.
 func (inf *Inference) index(g *model.Graph, vals map[string]*Value) *graphIndex {
+	inf.mu.Lock()
+	defer inf.mu.Unlock()
 	if x := inf.indexes[g]; x != nil {
 		return x
 	}

@@ -2,7 +2,9 @@ package measure
 
 import (
 	"fmt"
+	"runtime/debug"
 	"strings"
+	"sync"
 
 	"github.com/loadline/loadline/model"
 	"github.com/loadline/loadline/target"
@@ -103,6 +105,37 @@ type Options struct {
 	Layers bool
 	// Digests fills Metrics.Constants (digests.go), for device totals.
 	Digests bool
+	// Parallel runs the passes after inference in two goroutines, for a
+	// caller with a core to spare (one model measured alone); the
+	// figures are the same either way.
+	Parallel bool
+}
+
+// sideBySide runs a and b, at once when parallel is set, and returns when
+// both are done.
+func sideBySide(parallel bool, a, b func()) {
+	if !parallel {
+		a()
+		b()
+		return
+	}
+	// b's goroutine turns a fault on a memory-mapped model file into a
+	// panic, as its caller's does (check.MeasureFile), and hands any
+	// panic to the caller's goroutine once both are done.
+	var wg sync.WaitGroup
+	var caught any
+	wg.Go(func() {
+		debug.SetPanicOnFault(true)
+		defer func() { caught = recover() }()
+		b()
+	})
+	func() {
+		defer wg.Wait()
+		a()
+	}()
+	if caught != nil {
+		panic(caught)
+	}
 }
 
 // Measure infers shapes and computes the figures of a decoded model.
@@ -124,9 +157,43 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	if out.Unresolved == nil {
 		out.Unresolved = []Unresolved{}
 	}
-	ws, err := weights(inf)
-	if err != nil {
-		return nil, err
+	// Two halves of independent passes, side by side when opts.Parallel
+	// asks: the weights and the graph view; the costs and the deployed
+	// view. Each pass's result is let go once its figures are taken: on a
+	// large graph the plans are megabytes, and memory not held is time
+	// saved. The main graph's index comes first, as both halves read it.
+	inf.index(m.Graph, inf.Values)
+	deploy := DefaultDeployOptions()
+	if opts.Deploy != nil {
+		deploy = *opts.Deploy
+	}
+	var (
+		ws          []ParamTensor
+		wsErr       error
+		graph       *MemoryPlan // kept only for the per-layer view
+		graphDetail ViewDetail
+		costs       *Costs
+		dep         *MemoryPlan
+	)
+	weightsAndGraph := func() {
+		ws, wsErr = weights(inf)
+		plan := PlanMemory(inf)
+		out.Memory.Graph = MemoryView{PeakLiveBytes: plan.PeakLiveBytes, ArenaBytes: plan.ArenaBytes}
+		out.MemoryDetail = MemoryDetail{PeakStep: plan.PeakStep, LiveAtPeak: plan.LiveAtPeak, ArenaRatio: plan.Ratio()}
+		graphDetail = viewDetail(plan, opts.Layers)
+		if opts.Layers {
+			graph = plan
+		} else {
+			graph = &MemoryPlan{Unresolved: plan.Unresolved}
+		}
+	}
+	costsAndDeployed := func() {
+		costs = countCosts(inf, opts.Layers)
+		dep = planDeployed(inf, deploy, opts.Layers)
+	}
+	sideBySide(opts.Parallel, weightsAndGraph, costsAndDeployed)
+	if wsErr != nil {
+		return nil, wsErr
 	}
 	out.ExternalBytes = externalBytes(m.Graph, 0)
 	for _, w := range ws {
@@ -138,28 +205,15 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	}
 	out.ParamsByDType = ParamsByDType(ws)
 	out.Sparsity = sparsity(ws)
-	// Each pass's result is let go once its figures are taken: on a large
-	// graph the plans are megabytes, and memory not held is time saved.
-	costs := countCosts(inf, opts.Layers)
 	out.MACs, out.FLOPs = costs.MACs, costs.FLOPs
 	out.Unresolved = appendUnresolved(out.Unresolved, costs.Unresolved)
-	plan := PlanMemory(inf)
-	out.Memory.Graph = MemoryView{PeakLiveBytes: plan.PeakLiveBytes, ArenaBytes: plan.ArenaBytes}
-	out.MemoryDetail = MemoryDetail{PeakStep: plan.PeakStep, LiveAtPeak: plan.LiveAtPeak, ArenaRatio: plan.Ratio()}
-	graphDetail := viewDetail(plan, opts.Layers)
-	planUnresolved := plan.Unresolved
 	if opts.Layers {
-		out.Layers = layersOf(inf, costs, plan)
-		out.MemoryDetail.LiveBytesByStep = plan.LiveBytesByStep
-		addLayerView(out.Layers, m.Graph, ViewGraph, plan)
+		out.Layers = layersOf(inf, costs, graph)
+		out.MemoryDetail.LiveBytesByStep = graph.LiveBytesByStep
+		addLayerView(out.Layers, m.Graph, ViewGraph, graph)
 	}
-	deploy := DefaultDeployOptions()
-	if opts.Deploy != nil {
-		deploy = *opts.Deploy
-	}
-	dep := planDeployed(inf, deploy, opts.Layers)
 	out.Memory.Deployed = MemoryView{PeakLiveBytes: dep.PeakLiveBytes, ArenaBytes: dep.ArenaBytes}
-	out.Unresolved = appendUnresolved(out.Unresolved, planUnresolved)
+	out.Unresolved = appendUnresolved(out.Unresolved, graph.Unresolved)
 	out.Unresolved = appendUnresolved(out.Unresolved, dep.Unresolved)
 	if rt, persistent, unres, ok := planRuntime(inf); ok {
 		out.Memory.Runtime = &rt

@@ -2,6 +2,7 @@ package measure
 
 import (
 	"fmt"
+	"sync"
 
 	"github.com/loadline/loadline/model"
 )
@@ -224,12 +225,19 @@ func tensorValue(t *model.Tensor) *Value {
 // (more than maxFoldElements). A stored tensor's contents are read on the
 // first call.
 func (v *Value) Const() *Data {
+	contentsMu.Lock()
+	defer contentsMu.Unlock()
 	if v.held == nil && v.lazy != nil {
 		v.held = dataFromTensor(v.lazy)
 		v.lazy = nil
 	}
 	return v.held
 }
+
+// contentsMu guards the reading of stored contents by Const: the passes
+// after inference may run side by side (Measure) and read one value.
+// Rules write held only while inference runs, which is one goroutine.
+var contentsMu sync.Mutex
 
 // shareContents makes v's contents those of src, in the same element order,
 // without reading them.
