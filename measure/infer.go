@@ -146,6 +146,9 @@ type engine struct {
 	// can be traced to the inputs that decide it.
 	producers map[string]*model.Node
 	inputs    map[string]bool
+	// traceIfs is set when the model holds an If node anywhere: only
+	// its rule asks producers, which otherwise need not be recorded.
+	traceIfs bool
 	decided   []DecidedIf
 	undecided []UndecidedIf
 	cur       int // index of the node being inferred in its graph
@@ -200,11 +203,26 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 		outputs += len(n.Outputs)
 	}
 	sc := &scope{vals: make(map[string]*Value, len(g.Initializers)+len(g.Inputs)+outputs)}
-	e.producers = make(map[string]*model.Node, outputs)
+	if e.traceIfs = holdsIf(m); e.traceIfs {
+		e.producers = make(map[string]*model.Node, outputs)
+	}
 	res := &Inference{Model: m, Subgraphs: e.subgraphs, Calls: e.calls}
 
+	// The initializers' values in one block: a large model has tens of
+	// thousands, and an allocation each would cost more than their use.
+	inits := make([]Value, len(g.Initializers))
+	nDims := 0
 	for _, t := range g.Initializers {
-		sc.vals[t.Name] = tensorValue(t)
+		nDims += len(t.Dims)
+	}
+	shapes := make(model.Shape, 0, nDims)
+	for i, t := range g.Initializers {
+		k := len(shapes)
+		for _, d := range t.Dims {
+			shapes = append(shapes, model.Known(d))
+		}
+		inits[i] = Value{Type: model.TensorType(t.DType, shapes[k:len(shapes):len(shapes)]), lazy: t, Weight: true}
+		sc.vals[t.Name] = &inits[i]
 	}
 	for _, sp := range g.Sparse {
 		if sp.Values != nil {
@@ -245,6 +263,38 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 	}
 	res.Unresolved = e.unresolved
 	return res, nil
+}
+
+// holdsIf reports whether a node of m's graphs or functions is an If.
+func holdsIf(m *model.Model) bool {
+	var in func(g *model.Graph, depth int) bool
+	nodes := func(ns []*model.Node, depth int) bool {
+		for _, n := range ns {
+			if n.Op == "If" {
+				return true
+			}
+			for _, a := range n.Attrs {
+				if in(a.Graph, depth+1) {
+					return true
+				}
+				for _, sg := range a.Graphs {
+					if in(sg, depth+1) {
+						return true
+					}
+				}
+			}
+		}
+		return false
+	}
+	in = func(g *model.Graph, depth int) bool {
+		return g != nil && depth <= maxGraphDepth && nodes(g.Nodes, depth)
+	}
+	for _, f := range m.Functions {
+		if nodes(f.Nodes, 0) {
+			return true
+		}
+	}
+	return in(m.Graph, 0)
 }
 
 // bindDims replaces the symbols named in dims by their values.
@@ -337,9 +387,11 @@ func (e *engine) inferNodes(g *model.Graph, sc *scope, path *trail) error {
 			}
 			ins[j] = v
 		}
-		for _, o := range n.Outputs {
-			if o != "" {
-				e.producers[o] = n
+		if e.traceIfs {
+			for _, o := range n.Outputs {
+				if o != "" {
+					e.producers[o] = n
+				}
 			}
 		}
 		e.cur = i
