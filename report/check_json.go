@@ -34,11 +34,18 @@ func CheckJSON(w io.Writer, r *budget.Result) error {
 		Schema string `json:"schema"`
 		*budget.Result
 	}{CheckSchema, &out}
-	var buf bytes.Buffer
-	enc := json.NewEncoder(&buf)
-	enc.SetIndent("", "  ")
+	// Encoded flat, then indented into a buffer sized once: the indenting
+	// encoder grows its buffers step by step, which on a report of
+	// thousands of models was most of the time it took.
+	var flat bytes.Buffer
+	enc := json.NewEncoder(&flat)
 	enc.SetEscapeHTML(false) // reasons read "ram 498 KiB > limit …", not "\u003e"
 	if err := enc.Encode(doc); err != nil {
+		return err
+	}
+	var buf bytes.Buffer
+	buf.Grow(2*flat.Len() + 64)
+	if err := json.Indent(&buf, flat.Bytes(), "", "  "); err != nil {
 		return err
 	}
 	// Paths stay exactly as git names them; only the CI command opener
