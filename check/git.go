@@ -620,7 +620,9 @@ type lfsPointer struct {
 }
 
 // parseLFSPointer recognises the pointer format of the Git LFS
-// specification: a version line, an "oid sha256:" line and a size line.
+// specification (https://github.com/git-lfs/git-lfs/blob/main/docs/spec.md):
+// a version line, an "oid sha256:" line and a size line, whose size "is in
+// bytes", so never negative.
 func parseLFSPointer(b []byte) (lfsPointer, bool) {
 	if len(b) > maxLFSPointer || !bytes.HasPrefix(b, []byte(lfsVersionPrefix)) {
 		return lfsPointer{}, false
@@ -633,7 +635,7 @@ func parseLFSPointer(b []byte) (lfsPointer, bool) {
 			p.OID = strings.TrimPrefix(v, "sha256:")
 		case "size":
 			n, err := strconv.ParseInt(v, 10, 64)
-			if err != nil {
+			if err != nil || n < 0 {
 				return lfsPointer{}, false
 			}
 			p.Size = n

@@ -431,6 +431,28 @@ func TestLFSPointerThatDoesNotParse(t *testing.T) {
 	}
 }
 
+// TestLFSPointerNegativeSizeDoesNotParse: a pointer whose size is
+// negative (found by FuzzParseLFSPointer) is a broken pointer, reported
+// with what to do, not an object to fetch from the LFS store.
+func TestLFSPointerNegativeSizeDoesNotParse(t *testing.T) {
+	oid := "4d7a214614ab2935c943f9e0ff69d22eadbb8f32b1258daaa5e2ca24d17e2393" // the specification's example
+	if _, ok := parseLFSPointer([]byte("version https://git-lfs.github.com/spec/v1\noid sha256:" + oid + "\nsize -1\n")); ok {
+		t.Error("a pointer of size -1 parsed")
+	}
+	if p, ok := parseLFSPointer([]byte("version https://git-lfs.github.com/spec/v1\noid sha256:" + oid + "\nsize 0\n")); !ok || p.Size != 0 {
+		t.Errorf("a pointer of size 0: %+v, %v", p, ok)
+	}
+	g := newGitRepo(t)
+	g.write("m.onnx", []byte("version https://git-lfs.github.com/spec/v1\noid sha256:"+oid+"\nsize -1\n"))
+	g.commit("a pointer of negative size")
+	_, s := snapshotAt(t, g.dir, "HEAD")
+	_, err := s.Read("m.onnx")
+	var env *EnvError
+	if err == nil || errors.As(err, &env) || !strings.Contains(err.Error(), "LFS pointer that does not parse") {
+		t.Fatalf("want a broken-pointer error (not an environment error), got %v", err)
+	}
+}
+
 // TestBareRepositorySaysWhatToDo: a bare repository is an environment
 // error with a hint.
 func TestBareRepositorySaysWhatToDo(t *testing.T) {
