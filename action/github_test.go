@@ -564,6 +564,45 @@ func TestGitHubRateLimitBounded(t *testing.T) {
 	}
 }
 
+// TestRateLimitBeyondDurationIsNotRetriedAtOnce: a Retry-After or a
+// rate-limit reset too far off for a time.Duration (found by
+// FuzzRetryWait) is longer than any wait, so the call fails at once with
+// the host's answer; it once wrapped around to a wait of 0 and spent every
+// attempt at once.
+func TestRateLimitBeyondDurationIsNotRetriedAtOnce(t *testing.T) {
+	for _, tc := range []struct {
+		name    string
+		code    int
+		headers map[string]string
+	}{
+		{"Retry-After of 2^63 ns and more", http.StatusTooManyRequests, map[string]string{"Retry-After": "9223372037"}},
+		{"reset at the end of int64", http.StatusForbidden, map[string]string{"X-RateLimit-Remaining": "0", "X-RateLimit-Reset": "9223372036854775807"}},
+		{"GitLab's reset at the end of int64", http.StatusTooManyRequests, map[string]string{"RateLimit-Remaining": "0", "RateLimit-Reset": "9223372036854775807"}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			f := newFakeGitHub(t)
+			f.before = func(w http.ResponseWriter, r *http.Request, n int) bool {
+				for k, v := range tc.headers {
+					w.Header().Set(k, v)
+				}
+				w.WriteHeader(tc.code)
+				fmt.Fprint(w, `{"message":"API rate limit exceeded"}`)
+				return true
+			}
+			s := newGHSetup(t, f, false)
+			if _, err := s.post(t, "report", failingResult()); err == nil {
+				t.Fatal("no error")
+			}
+			if got := s.clock.Sleeps(); len(got) != 0 {
+				t.Fatalf("waited %v", got)
+			}
+			if n := len(f.rec.take()); n != 1 {
+				t.Fatalf("%d requests, want 1", n)
+			}
+		})
+	}
+}
+
 func TestGitHubForkCannotComment(t *testing.T) {
 	f := newFakeGitHub(t)
 	f.before = func(w http.ResponseWriter, r *http.Request, n int) bool {

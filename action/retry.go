@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"net/http"
 	"strconv"
 	"strings"
@@ -290,6 +291,15 @@ func resetIn(h http.Header, now time.Time) (time.Duration, bool) {
 	if err != nil {
 		return 0, false
 	}
+	// A reset beyond what a Duration holds is longer than any wait; one
+	// as far in the past is passed. Between, time.Unix and the sum below
+	// cannot wrap around.
+	switch far := int64(math.MaxInt64/time.Second) - 1; {
+	case sec > now.Unix()+far:
+		return math.MaxInt64, true
+	case sec < now.Unix()-far:
+		return 0, true
+	}
 	// One second more: the reset is given in whole seconds, rounded down.
 	return max(time.Unix(sec, 0).Sub(now)+time.Second, 0), true
 }
@@ -301,6 +311,9 @@ func retryAfter(h http.Header, now time.Time) (time.Duration, bool) {
 		return 0, false
 	}
 	if sec, err := strconv.ParseInt(v, 10, 64); err == nil {
+		if sec > int64(math.MaxInt64/time.Second) {
+			return math.MaxInt64, true // longer than any wait, not wrapped around to a short one
+		}
 		return max(time.Duration(sec)*time.Second, 0), true
 	}
 	if t, err := http.ParseTime(v); err == nil {
