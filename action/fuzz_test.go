@@ -7,6 +7,7 @@ import (
 	"strings"
 	"testing"
 	"time"
+	"unicode/utf8"
 )
 
 // askedWait is the wait a Retry-After value asks for, worked out apart
@@ -85,6 +86,58 @@ func FuzzRetryWait(f *testing.F) {
 			}
 			if ok && asked > p.MaxWait && d <= p.MaxWait {
 				t.Fatalf("HTTP %d %v asks for %v; waitFor gives %v, within MaxWait %v", code, h, asked, d, p.MaxWait)
+			}
+		}
+	})
+}
+
+// FuzzFitBody: whatever the report holds (model, node and tensor names
+// come from the files measured), the body FitBody cuts is never over its
+// limit, is the body itself when that fits, keeps whole lines of the body
+// when it keeps any, and stays valid UTF-8. Seeds: the pieces of
+// TestFitBodyNeverOverLimitRandom.
+func FuzzFitBody(f *testing.F) {
+	f.Add("| a | b |\n|---|---|\n| 1 | 2 |\n", 12)
+	f.Add("<details>\n<summary>s</summary>\n\n```\ncode\n```\n</details>\n", 30)
+	f.Add("<b\nclass=x>\ntext é ü\n<!--\n-->\n`<details>`\n", 20)
+	f.Add("~~~~\n```\n~~~~\n<details><details>\n", 0)
+	f.Fuzz(func(t *testing.T, body string, limit int) {
+		if limit < 0 || limit > 1<<20 || len(body) > 1<<16 {
+			return
+		}
+		got := FitBody(body, limit)
+		n := utf8.RuneCountInString(got)
+		switch {
+		case utf8.RuneCountInString(body) <= limit && got != body:
+			t.Fatalf("a body of %d characters changed under a limit of %d", utf8.RuneCountInString(body), limit)
+		case n > limit:
+			t.Fatalf("%d characters over the limit %d", n, limit)
+		case utf8.ValidString(body) && !utf8.ValidString(got):
+			t.Fatalf("invalid UTF-8 from a valid body: %q", got)
+		}
+		if got == body {
+			return
+		}
+		// A cut keeps a head of whole lines of the body, then only what
+		// closes them (a fence, </details>, blank lines) and the note; a
+		// limit too small for the note gets the note's head.
+		lines := strings.SplitAfter(body, "\n")
+		if lines[len(lines)-1] == "" {
+			lines = lines[:len(lines)-1]
+		}
+		if strings.HasPrefix(strings.TrimPrefix(omitted(len(lines), "see the job summary"), "\n"), got) {
+			return
+		}
+		k := 0
+		for _, l := range lines {
+			if !strings.HasPrefix(got[k:], l) {
+				break
+			}
+			k += len(l)
+		}
+		for _, l := range strings.Split(strings.TrimSuffix(got[k:], "\n"), "\n") {
+			if l != "" && l != "</details>" && strings.Trim(l, "`~") != "" && !(strings.HasPrefix(l, "… ") && strings.HasSuffix(l, " not shown: see the job summary")) {
+				t.Fatalf("line %q after the kept head of %d bytes is not the body's:\n%s", l, k, got)
 			}
 		}
 	})
