@@ -2,6 +2,7 @@ package check
 
 import (
 	"bytes"
+	"encoding/binary"
 	"errors"
 	"math/rand"
 	"os"
@@ -169,6 +170,50 @@ func TestCachePackRefused(t *testing.T) {
 	os.WriteFile(claim, append([]byte(packMagic), 0xe8, 0x03, 0, 0), 0o644)
 	if _, err := openPack(claim); err == nil {
 		t.Error("an index larger than its file was accepted")
+	}
+}
+
+// TestCachePackRecordsSharingBytesRefused: a pack whose records point at
+// the same bytes (or outside its entries) is refused when opened: a merge
+// reads every entry, and 1,000 records over one entry of 1 MiB would have
+// allocated 1,000 MiB from a file of 1 MiB.
+func TestCachePackRecordsSharingBytesRefused(t *testing.T) {
+	dir := t.TempDir()
+	const n, size = 1000, 1 << 20
+	var b bytes.Buffer
+	b.WriteString(packMagic)
+	binary.Write(&b, binary.LittleEndian, uint32(n))
+	data := int64(len(packMagic)) + 4 + n*packRecordLen
+	for i := range n {
+		var k packKey
+		binary.BigEndian.PutUint32(k[:], uint32(i)) // sorted
+		b.Write(k[:])
+		binary.Write(&b, binary.LittleEndian, uint64(data))
+		binary.Write(&b, binary.LittleEndian, uint32(size))
+	}
+	b.Write(make([]byte, size))
+	p := filepath.Join(dir, "shared"+packSuffix)
+	if err := os.WriteFile(p, b.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := openPack(p); err == nil || !strings.Contains(err.Error(), "claim more than") {
+		t.Errorf("records sharing their bytes: %v; want the pack refused", err)
+	}
+	// A record that starts inside the index, and one past the end.
+	for _, off := range []uint64{uint64(len(packMagic)), uint64(data) + size + 1, 1 << 63} {
+		var b bytes.Buffer
+		b.WriteString(packMagic)
+		binary.Write(&b, binary.LittleEndian, uint32(1))
+		b.Write(make([]byte, packKeyLen))
+		binary.Write(&b, binary.LittleEndian, off)
+		binary.Write(&b, binary.LittleEndian, uint32(1))
+		b.WriteString("x")
+		if err := os.WriteFile(p, b.Bytes(), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		if _, err := openPack(p); err == nil || !strings.Contains(err.Error(), "outside the file") {
+			t.Errorf("a record at offset %d: %v; want the pack refused", off, err)
+		}
 	}
 }
 

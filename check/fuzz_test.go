@@ -100,6 +100,17 @@ func FuzzCachePack(f *testing.F) {
 		if n := int64(len(pk.keys)); n > maxPackEntries || int64(len(packMagic))+4+n*packRecordLen > int64(len(data)) {
 			t.Fatalf("an index of %d records accepted from a file of %d bytes", n, len(data))
 		}
+		// Every entry read in full (as a merge does) is no more than the
+		// file.
+		var total int64
+		for _, key := range pk.keys {
+			if b, ok := pk.get(key, maxDetailEntry); ok {
+				total += int64(len(b))
+			}
+		}
+		if total > int64(len(data)) {
+			t.Fatalf("a file of %d bytes gave %d bytes of entries", len(data), total)
+		}
 		const limit = 1 << 10
 		for i, key := range pk.keys[:min(len(pk.keys), 64)] {
 			b, ok := pk.get(key, limit)

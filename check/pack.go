@@ -91,10 +91,23 @@ func openPack(p string) (*pack, error) {
 		return fail("its index cannot be read")
 	}
 	pk := &pack{path: p, f: f, size: size, keys: make([]packKey, n), at: make([]packSpan, n)}
+	// The entries lie after the index and within the file, and together
+	// are no larger than the file's data: records that share their bytes
+	// would make a merge, which reads every entry, allocate many times the
+	// file.
+	data, total := start+n*packRecordLen, int64(0)
 	for i := range pk.keys {
 		r := index[int64(i)*packRecordLen:]
 		copy(pk.keys[i][:], r[:packKeyLen])
-		pk.at[i] = packSpan{int64(binary.LittleEndian.Uint64(r[packKeyLen:])), int64(binary.LittleEndian.Uint32(r[packKeyLen+8:]))}
+		off := binary.LittleEndian.Uint64(r[packKeyLen:])
+		s := packSpan{int64(off), int64(binary.LittleEndian.Uint32(r[packKeyLen+8:]))}
+		if off > uint64(size) || s.off < data || s.n > size-s.off {
+			return fail(fmt.Sprintf("its record %d (offset %d, %d bytes) is outside the file's %d bytes of entries", i, off, s.n, size-data))
+		}
+		if total += s.n; total > size-data {
+			return fail(fmt.Sprintf("its records claim more than the file's %d bytes of entries", size-data))
+		}
+		pk.at[i] = s
 		if i > 0 && bytes.Compare(pk.keys[i-1][:], pk.keys[i][:]) >= 0 {
 			return fail("its index is not sorted")
 		}
