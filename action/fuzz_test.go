@@ -71,7 +71,9 @@ func FuzzRetryWait(f *testing.F) {
 				continue
 			}
 			asked, ok := askedWait(after, now)
-			if !ok && remaining(h) == "0" {
+			// A spent quota's reset is read on a 403 or 429; a 5xx is
+			// retried on its Retry-After or with backoff.
+			if !ok && remaining(h) == "0" && (code == http.StatusForbidden || code == http.StatusTooManyRequests) {
 				if sec, err := strconv.ParseInt(strings.TrimSpace(h.Get(prefix+"RateLimit-Reset")), 10, 64); err == nil {
 					ok = true
 					switch {
