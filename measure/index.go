@@ -27,13 +27,22 @@ type graphIndex struct {
 
 // newGraphIndex numbers the values of g, whose inferred values are vals.
 func newGraphIndex(g *model.Graph, vals map[string]*Value) *graphIndex {
+	x := numberGraph(g)
+	x.fill(vals)
+	return x
+}
+
+// numberGraph numbers the values of g, their values not yet filled in. It
+// reads the graph alone, so that it can run while inference does
+// (Measure).
+func numberGraph(g *model.Graph) *graphIndex {
 	nIn, nOut := 0, 0
 	for _, n := range g.Nodes {
 		nIn += len(n.Inputs)
 		nOut += len(n.Outputs)
 	}
 	size := len(g.Inputs) + len(g.Initializers) + nOut + len(g.Outputs)
-	x := &graphIndex{ids: make(map[string]int32, size), names: make([]string, 0, size), vals: make([]*Value, 0, size),
+	x := &graphIndex{ids: make(map[string]int32, size), names: make([]string, 0, size),
 		in: make([]int32, 0, nIn), out: make([]int32, 0, nOut),
 		inAt: make([]int32, 0, len(g.Nodes)+1), outAt: make([]int32, 0, len(g.Nodes)+1)}
 	number := func(name string) int32 {
@@ -46,7 +55,6 @@ func newGraphIndex(g *model.Graph, vals map[string]*Value) *graphIndex {
 		id := int32(len(x.names))
 		x.ids[name] = id
 		x.names = append(x.names, name)
-		x.vals = append(x.vals, vals[name])
 		return id
 	}
 	for _, in := range g.Inputs {
@@ -71,6 +79,14 @@ func newGraphIndex(g *model.Graph, vals map[string]*Value) *graphIndex {
 		number(o.Name)
 	}
 	return x
+}
+
+// fill sets each numbered value to what inference found, vals[name].
+func (x *graphIndex) fill(vals map[string]*Value) {
+	x.vals = make([]*Value, len(x.names))
+	for id, name := range x.names {
+		x.vals[id] = vals[name]
+	}
 }
 
 // lookup is the number of name, -1 for "" or a name the graph never

@@ -94,6 +94,18 @@ func (inf *Inference) index(g *model.Graph, vals map[string]*Value) *graphIndex 
 	return x
 }
 
+// adoptIndex makes x, the main graph numbered while inference ran
+// (numberGraph), the main graph's index, its values filled in.
+func (inf *Inference) adoptIndex(x *graphIndex) {
+	inf.mu.Lock()
+	defer inf.mu.Unlock()
+	x.fill(inf.Values)
+	if inf.indexes == nil {
+		inf.indexes = map[*model.Graph]*graphIndex{}
+	}
+	inf.indexes[inf.Model.Graph] = x
+}
+
 // DecidedIf is an If node whose condition inference knew: only Branch
 // ("then_branch" or "else_branch") was inferred, costed and planned.
 type DecidedIf struct {
@@ -148,7 +160,7 @@ type engine struct {
 	inputs    map[string]bool
 	// traceIfs is set when the model holds an If node anywhere: only
 	// its rule asks producers, which otherwise need not be recorded.
-	traceIfs bool
+	traceIfs  bool
 	decided   []DecidedIf
 	undecided []UndecidedIf
 	cur       int // index of the node being inferred in its graph
