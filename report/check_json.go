@@ -1,12 +1,9 @@
 package report
 
 import (
-	"bytes"
-	"encoding/json"
 	"io"
 
 	"github.com/loadline/loadline/budget"
-	"github.com/loadline/loadline/internal/display"
 )
 
 // CheckJSON writes the loadline.check/v1 document: the schema name, then
@@ -34,24 +31,8 @@ func CheckJSON(w io.Writer, r *budget.Result) error {
 		Schema string `json:"schema"`
 		*budget.Result
 	}{CheckSchema, &out}
-	// Encoded flat, then indented into a buffer sized once: the indenting
-	// encoder grows its buffers step by step, which on a report of
-	// thousands of models was most of the time it took.
-	var flat bytes.Buffer
-	enc := json.NewEncoder(&flat)
-	enc.SetEscapeHTML(false) // reasons read "ram 498 KiB > limit …", not "\u003e"
-	if err := enc.Encode(doc); err != nil {
-		return err
-	}
-	var buf bytes.Buffer
-	buf.Grow(2*flat.Len() + 64)
-	if err := json.Indent(&buf, flat.Bytes(), "", "  "); err != nil {
-		return err
-	}
-	// Paths stay exactly as git names them; only the CI command opener
-	// is written in another JSON spelling of the same string.
-	_, err := w.Write(display.GuardJSON(buf.Bytes()))
-	return err
+	// Reasons read "ram 498 KiB > limit …", not "\u003e".
+	return writeJSON(w, doc, false)
 }
 
 func orEmpty[T any](s []T) []T {

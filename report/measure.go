@@ -3,8 +3,6 @@
 package report
 
 import (
-	"bytes"
-	"encoding/json"
 	"fmt"
 	"io"
 	"math"
@@ -30,14 +28,7 @@ func MeasureJSON(w io.Writer, entries []*measure.Metrics) error {
 	if doc.Models == nil {
 		doc.Models = []*measure.Metrics{}
 	}
-	var buf bytes.Buffer
-	enc := json.NewEncoder(&buf)
-	enc.SetIndent("", "  ")
-	if err := enc.Encode(doc); err != nil {
-		return err
-	}
-	_, err := w.Write(display.GuardJSON(buf.Bytes()))
-	return err
+	return writeJSON(w, doc, true)
 }
 
 // MeasureText writes one block per model: its figures in units people read,

@@ -1,13 +1,10 @@
 package report
 
 import (
-	"bytes"
-	"encoding/json"
 	"io"
 	"time"
 
 	"github.com/loadline/loadline/budget"
-	"github.com/loadline/loadline/internal/display"
 )
 
 // The JSON form of the sign-off report (loadline.signoff/v1): the facts of
@@ -154,14 +151,7 @@ func SignoffJSON(w io.Writer, s *budget.Signoff, opt SignoffOptions) error {
 	if s.Current != nil && len(s.Current.Findings) > 0 {
 		out.Problems = s.Current.Findings
 	}
-	var buf bytes.Buffer
-	enc := json.NewEncoder(&buf)
-	enc.SetIndent("", "  ")
-	if err := enc.Encode(out); err != nil {
-		return err
-	}
-	_, err := w.Write(display.GuardJSON(buf.Bytes()))
-	return err
+	return writeJSON(w, out, true)
 }
 
 // deref copies models into a list, never null, as the JSON contracts have
