@@ -84,10 +84,10 @@ type decoder struct {
 	// Nodes, their input and output name lists, tensors and their
 	// segment lists are carved from chunks: a graph of 100,000 nodes
 	// would otherwise cost three or four small allocations a node.
-	nodeChunk   []model.Node
-	nameChunk   []string
-	tensorChunk []model.Tensor
-	segChunk    [][]byte
+	nodes    chunks[model.Node]
+	names    chunks[string]
+	tensors  chunks[model.Tensor]
+	segments chunks[[]byte]
 	// words holds one copy of each operator and domain name: a graph
 	// names a few dozen of them thousands of times.
 	words map[string]string
@@ -119,49 +119,35 @@ func (d *decoder) word(f *field, name string) (string, error) {
 	return w, nil
 }
 
-// newTensor is a zeroed tensor from the current chunk.
-func (d *decoder) newTensor() *model.Tensor {
-	if len(d.tensorChunk) == cap(d.tensorChunk) {
-		d.tensorChunk = make([]model.Tensor, 0, chunkLen)
-	}
-	d.tensorChunk = d.tensorChunk[:len(d.tensorChunk)+1]
-	return &d.tensorChunk[len(d.tensorChunk)-1]
-}
+// chunks hands out elements and short lists carved from blocks of
+// chunkLen, one allocation a block rather than one an element.
+type chunks[T any] struct{ block []T }
 
-// oneSegment is the segment list [b], carved from the current chunk.
-func (d *decoder) oneSegment(b []byte) [][]byte {
-	if len(d.segChunk) == cap(d.segChunk) {
-		d.segChunk = make([][]byte, 0, chunkLen)
-	}
-	d.segChunk = append(d.segChunk, b)
-	k := len(d.segChunk)
-	return d.segChunk[k-1 : k : k]
-}
-
-// chunkLen is how many nodes or names one chunk holds.
+// chunkLen is how many elements one block holds.
 const chunkLen = 1024
 
-// newNode is a zeroed node from the current chunk.
-func (d *decoder) newNode() *model.Node {
-	if len(d.nodeChunk) == cap(d.nodeChunk) {
-		d.nodeChunk = make([]model.Node, 0, chunkLen)
+// one is a zeroed element.
+func (c *chunks[T]) one() *T {
+	if len(c.block) == cap(c.block) {
+		c.block = make([]T, 0, chunkLen)
 	}
-	d.nodeChunk = d.nodeChunk[:len(d.nodeChunk)+1]
-	return &d.nodeChunk[len(d.nodeChunk)-1]
+	c.block = c.block[:len(c.block)+1]
+	return &c.block[len(c.block)-1]
 }
 
-// keepNames copies names into the current chunk; the copy's capacity ends
-// at its length, so that appending to it cannot reach a neighbour's names.
-func (d *decoder) keepNames(names []string) []string {
-	if len(names) == 0 {
+// copyOf copies list into the current block, nil for an empty one; the
+// copy's capacity ends at its length, so that appending to it cannot reach
+// a neighbour's elements.
+func (c *chunks[T]) copyOf(list ...T) []T {
+	if len(list) == 0 {
 		return nil
 	}
-	if cap(d.nameChunk)-len(d.nameChunk) < len(names) {
-		d.nameChunk = make([]string, 0, max(chunkLen, len(names)))
+	if cap(c.block)-len(c.block) < len(list) {
+		c.block = make([]T, 0, max(chunkLen, len(list)))
 	}
-	k := len(d.nameChunk)
-	d.nameChunk = append(d.nameChunk, names...)
-	return d.nameChunk[k : k+len(names) : k+len(names)]
+	k := len(c.block)
+	c.block = append(c.block, list...)
+	return c.block[k : k+len(list) : k+len(list)]
 }
 
 func newDecoder(data []byte, opts Options) *decoder {
@@ -435,7 +421,7 @@ func (d *decoder) valueInfo(lo, hi int) (*model.ValueInfo, error) {
 
 // NodeProto in a graph at the given depth.
 func (d *decoder) node(lo, hi, depth int) (*model.Node, error) {
-	n := d.newNode()
+	n := d.nodes.one()
 	// The names gather here (on the stack for a usual node) and are
 	// kept once the node is read.
 	var inBuf, outBuf [8]string
@@ -450,7 +436,7 @@ func (d *decoder) node(lo, hi, depth int) (*model.Node, error) {
 			return nil, err
 		}
 		if !ok {
-			n.Inputs, n.Outputs = d.keepNames(ins), d.keepNames(outs)
+			n.Inputs, n.Outputs = d.names.copyOf(ins...), d.names.copyOf(outs...)
 			return n, nil
 		}
 		var s string

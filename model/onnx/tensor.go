@@ -84,7 +84,7 @@ type tensorParts struct {
 
 // TensorProto; off is the offset of the field that holds it.
 func (d *decoder) tensor(lo, hi, off int) (*model.Tensor, error) {
-	t := d.newTensor()
+	t := d.tensors.one()
 	p := tensorParts{negDim: -1}
 	p.dtypeOff, p.encOff, p.rawOff, p.locOff, p.extOff = off, off, off, off, off
 	r := d.reader(lo, hi)
@@ -310,7 +310,7 @@ func (d *decoder) checkTensor(t *model.Tensor, p *tensorParts, off int) error {
 		if int64(len(p.raw)) != size {
 			return fail("raw_data", p.rawOff, "raw_data holds %d bytes, but dims %v of %s need %s", len(p.raw), t.Dims, dt, need())
 		}
-		t.Data = model.TensorData{Encoding: model.EncodingRaw, Segments: d.oneSegment(p.raw)}
+		t.Data = model.TensorData{Encoding: model.EncodingRaw, Segments: d.segments.copyOf(p.raw)}
 	case p.enc != model.EncodingNone:
 		if want := typedFieldFor(dt); p.enc != want {
 			return fail(encodingField(p.enc), p.encOff, "%s values cannot be stored in %s (onnx.proto says %s)", dt, encodingField(p.enc), encodingField(want))
