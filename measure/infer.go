@@ -228,12 +228,14 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 		nDims += len(t.Dims)
 	}
 	shapes := make(model.Shape, 0, nDims)
+	stored := make([]storedContents, len(g.Initializers))
 	for i, t := range g.Initializers {
 		k := len(shapes)
 		for _, d := range t.Dims {
 			shapes = append(shapes, model.Known(d))
 		}
-		inits[i] = Value{Type: model.TensorType(t.DType, shapes[k:len(shapes):len(shapes)]), lazy: t, Weight: true}
+		stored[i].tensor = t
+		inits[i] = Value{Type: model.TensorType(t.DType, shapes[k:len(shapes):len(shapes)]), lazy: &stored[i], Weight: true}
 		sc.vals[t.Name] = &inits[i]
 	}
 	for _, sp := range g.Sparse {

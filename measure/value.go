@@ -3,6 +3,7 @@ package measure
 import (
 	"fmt"
 	"sync"
+	"sync/atomic"
 
 	"github.com/loadline/loadline/model"
 )
@@ -12,14 +13,14 @@ import (
 // lets exporter output such as Shape→Gather→Concat→Reshape resolve to numbers.
 type Value struct {
 	Type model.Type
-	// held is the known contents once read, nil when unknown, too large
-	// to hold or not yet read from lazy (Const reads them).
+	// held is the contents a rule found, nil when unknown or too large to
+	// hold; rules set it while inference runs (one goroutine).
 	held *Data
-	// lazy is the stored tensor whose contents held will be, read only
-	// when a rule asks for them: most weights are never read element by
-	// element, and converting each to float64s up front costs time and
-	// memory for nothing.
-	lazy *model.Tensor
+	// lazy is a stored tensor's contents, read only when a rule asks for
+	// them (Const): most weights are never read element by element, and
+	// converting each to float64s up front costs time and memory for
+	// nothing.
+	lazy *storedContents
 	Seq  []*Value // elements of a sequence whose length is known
 	// SeqKnown reports that Seq lists every element of a sequence value.
 	SeqKnown bool
@@ -216,28 +217,45 @@ func dataFromTensor(t *model.Tensor) *Data {
 func tensorValue(t *model.Tensor) *Value {
 	return &Value{
 		Type:   model.TensorType(t.DType, t.Shape()),
-		lazy:   t,
+		lazy:   &storedContents{tensor: t},
 		Weight: true,
 	}
+}
+
+// storedContents is a stored tensor's contents, read on first use. Values
+// that re-view the tensor (shareContents) share it, so it is read once,
+// and the passes after inference, which may run side by side (Measure),
+// read it without a lock on the way once it is read.
+type storedContents struct {
+	tensor *model.Tensor
+	once   sync.Once
+	data   atomic.Pointer[Data] // nil until read, or when unreadable or too large
+}
+
+// read is the contents, read on the first call.
+func (s *storedContents) read() *Data {
+	s.once.Do(func() { s.data.Store(dataFromTensor(s.tensor)) })
+	return s.data.Load()
 }
 
 // Const is the known contents of v: nil when unknown or too large to hold
 // (more than maxFoldElements). A stored tensor's contents are read on the
 // first call.
 func (v *Value) Const() *Data {
-	contentsMu.Lock()
-	defer contentsMu.Unlock()
-	if v.held == nil && v.lazy != nil {
-		v.held = dataFromTensor(v.lazy)
-		v.lazy = nil
+	if v.held != nil || v.lazy == nil {
+		return v.held
 	}
-	return v.held
+	return v.lazy.read()
 }
 
-// contentsMu guards the reading of stored contents by Const: the passes
-// after inference may run side by side (Measure) and read one value.
-// Rules write held only while inference runs, which is one goroutine.
-var contentsMu sync.Mutex
+// heldData is the contents of v a rule has found or read so far, without
+// reading a stored tensor's: what inference work counts (work.go).
+func (v *Value) heldData() *Data {
+	if v.held != nil || v.lazy == nil {
+		return v.held
+	}
+	return v.lazy.data.Load()
+}
 
 // shareContents makes v's contents those of src, in the same element order,
 // without reading them.

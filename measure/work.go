@@ -131,8 +131,8 @@ func valuesSize(vs []*Value) int64 {
 			continue
 		}
 		n += int64(len(v.Type.Shape)) + int64(len(v.Seq))
-		if v.held != nil {
-			n += int64(v.held.Len())
+		if d := v.heldData(); d != nil {
+			n += int64(d.Len())
 		}
 	}
 	return n / workElemsPerUnit

@@ -209,7 +209,7 @@ func TestWorkStoredWeightsPassedOn(t *testing.T) {
 	if e.work != 1 {
 		t.Errorf("work %d units, want 1", e.work)
 	}
-	if sc.vals["w"].held != nil {
+	if sc.vals["w"].heldData() != nil {
 		t.Errorf("MatMul read the weight's elements; only its shape is needed")
 	}
 }
