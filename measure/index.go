@@ -1,6 +1,10 @@
 package measure
 
-import "github.com/loadline/loadline/model"
+import (
+	"sync"
+
+	"github.com/loadline/loadline/model"
+)
 
 // graphIndex numbers the values one graph names, so that the passes after
 // inference (the memory planners) keep their per-value records in slices
@@ -20,9 +24,10 @@ type graphIndex struct {
 	// and out[outAt[i]:outAt[i+1]].
 	in, out     []int32
 	inAt, outAt []int32
-	// held caches heldTensors (static.go), which three passes read.
+	// held caches heldTensors (static.go), which three passes read,
+	// found once (heldOnce) even when passes run side by side.
 	held     []heldTensor
-	heldDone bool
+	heldOnce sync.Once
 }
 
 // newGraphIndex numbers the values of g, whose inferred values are vals.

@@ -72,8 +72,8 @@ type Inference struct {
 	// the graph inputs it depends on, in the order met.
 	Undecided []UndecidedIf
 	// indexes holds each graph's numbered values (index.go), made when a
-	// pass first asks and shared by the passes after it; mu guards it and
-	// what an index caches, as Measure may run passes side by side.
+	// pass first asks and shared by the passes after it; mu guards the
+	// map, as Measure may run passes side by side.
 	mu      sync.Mutex
 	indexes map[*model.Graph]*graphIndex
 }

@@ -94,11 +94,7 @@ func foldsAtLoad(n *model.Node, ins []int32, fixed func(int32) bool) bool {
 // graph, kept with its index: the weights and the graph view both read it.
 func heldTensors(inf *Inference, g *model.Graph, vals map[string]*Value) []heldTensor {
 	x := inf.index(g, vals)
-	inf.mu.Lock()
-	defer inf.mu.Unlock()
-	if !x.heldDone {
-		x.held, x.heldDone = findHeld(x, g), true
-	}
+	x.heldOnce.Do(func() { x.held = findHeld(x, g) })
 	return x.held
 }
 
