@@ -275,6 +275,9 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, o
 	st := &deployState{g: g, x: x, recs: recs, readers: readers, isOutput: isOutput, static: static,
 		hasBody: hasBody, views: views, groupOut: groupOut, add: add, fused: &fused}
 	var outs []int32
+	// The records of node outputs come from one block: one each was most
+	// of this pass's allocations on a large graph.
+	slab := make([]dtensor, 0, len(x.out))
 	for i, n := range g.Nodes {
 		outs, hasBody[i] = planStep(plan, inf, x, static, n, i, depth, bodyPeak, bodyArena,
 			func(id int32) {
@@ -296,7 +299,8 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, o
 			continue
 		}
 		for _, id := range outs {
-			t := &dtensor{id: id, first: i, last: i, producer: i, head: i}
+			slab = append(slab, dtensor{id: id, first: i, last: i, producer: i, head: i})
+			t := &slab[len(slab)-1]
 			add(t)
 			groupOut[i] = t
 		}
@@ -365,7 +369,7 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, o
 		}
 	}
 
-	var live, lts []Lifetime
+	live, lts := make([]Lifetime, 0, len(roots)), make([]Lifetime, 0, len(roots))
 	for _, r := range roots {
 		if r.parent != nil {
 			continue // merged in place into another buffer

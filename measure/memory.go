@@ -528,15 +528,35 @@ type byteRun struct{ lo, hi int64 }
 // joined. The tensors that overlap [a, b] in time are those in cover of the
 // canonical nodes of [a, b] and of their ancestors, and those in part of
 // the canonical nodes.
+//
+// A node's runs live in chunks shared by all nodes, named by a runList of
+// three int32s: a tree over 200,000 steps has a million lists, most of
+// them empty, and a slice header each (24 bytes) was most of a large
+// graph's planning memory. Chunks are never copied as the tree grows.
 type runTree struct {
 	size        int
-	cover, part [][]byteRun
-	slab        []byteRun // where nodes' first runs are carved from
+	cover, part []runList
+	chunks      [][]byteRun
+}
+
+// runList is the runs chunks[c][at : at+n]. Its room is implicit: a list
+// is given roomFor(n) runs when it is placed, and as joining runs only
+// shortens it, roomFor of its current length never exceeds what it has.
+type runList struct{ c, at, n int32 }
+
+// runChunk is the size of a chunk of runs; a list with more room than
+// that has a chunk of its own.
+const runChunk = 1 << 13
+
+// roomFor is the room given to a list of n runs: the next power of two,
+// at least 2 (most lists hold one or two runs).
+func roomFor(n int32) int32 {
+	return max(2, int32(1)<<bits.Len32(uint32(n-1)))
 }
 
 func newRunTree(size int) *runTree {
 	n := treeNodes(size)
-	return &runTree{size: size, cover: make([][]byteRun, n), part: make([][]byteRun, n)}
+	return &runTree{size: size, cover: make([]runList, n), part: make([]runList, n)}
 }
 
 // treeNodes is the length of the node arrays of a segment tree over size
@@ -573,33 +593,45 @@ func (t *runTree) q(node, l, h, a, b int, out []byteRun) []byteRun {
 	if b < l || h < a {
 		return out
 	}
-	out = append(out, t.cover[node]...)
+	out = append(out, t.runs(t.cover[node])...)
 	if a <= l && h <= b {
-		return append(out, t.part[node]...)
+		return append(out, t.runs(t.part[node])...)
 	}
 	mid := (l + h) / 2
 	out = t.q(2*node, l, mid, a, b, out)
 	return t.q(2*node+1, mid+1, h, a, b, out)
 }
 
-// add is addRun, a node's first run taken from a slab with room for a
-// second: most nodes hold one or two runs, and a slice each would be most
-// of the planner's allocations.
-func (t *runTree) add(rs []byteRun, r byteRun) []byteRun {
-	if cap(rs) > 0 {
-		return addRun(rs, r)
+// runs is the runs of list l.
+func (t *runTree) runs(l runList) []byteRun {
+	if l.n == 0 {
+		return nil
 	}
-	if cap(t.slab)-len(t.slab) < 2 {
-		t.slab = make([]byteRun, 0, 4096)
-	}
-	k := len(t.slab)
-	t.slab = append(t.slab, r, byteRun{}) // the second slot is the room
-	return t.slab[k : k+1 : k+2]
+	return t.chunks[l.c][l.at : l.at+l.n]
 }
 
-// addRun adds r to the sorted disjoint runs rs, joining the runs it
-// overlaps or touches.
-func addRun(rs []byteRun, r byteRun) []byteRun {
+// place finds room for a list of n runs and returns the list, its runs
+// to be written.
+func (t *runTree) place(n int32) (runList, []byteRun) {
+	room := int(roomFor(n))
+	c := len(t.chunks) - 1
+	if room > runChunk {
+		t.chunks = append(t.chunks, make([]byteRun, 0, room))
+		c++
+	} else if c < 0 || cap(t.chunks[c])-len(t.chunks[c]) < room {
+		t.chunks = append(t.chunks, make([]byteRun, 0, runChunk))
+		c++
+	}
+	at := len(t.chunks[c])
+	t.chunks[c] = t.chunks[c][:at+room]
+	return runList{int32(c), int32(at), n}, t.chunks[c][at : at+int(n)]
+}
+
+// add adds r to list l, joining the runs it overlaps or touches, and
+// returns the list: in place when it has room, else moved to a new place
+// with twice the room (what it leaves behind is not reused).
+func (t *runTree) add(l runList, r byteRun) runList {
+	rs := t.runs(l)
 	// The first run that ends at or after r begins, and the first that
 	// begins after r ends: those between are joined with r.
 	i := sort.Search(len(rs), func(k int) bool { return rs[k].hi >= r.lo })
@@ -608,7 +640,20 @@ func addRun(rs []byteRun, r byteRun) []byteRun {
 		r.lo, r.hi = min(r.lo, rs[j].lo), max(r.hi, rs[j].hi)
 		j++
 	}
-	return slices.Replace(rs, i, j, r)
+	n := l.n - int32(j-i) + 1
+	if l.n == 0 || n > roomFor(l.n) {
+		moved, to := t.place(n)
+		copy(to, rs[:i])
+		to[i] = r
+		copy(to[i+1:], rs[j:])
+		return moved
+	}
+	rs = t.chunks[l.c][l.at : l.at+max(l.n, n)]
+	if j != i+1 {
+		copy(rs[i+1:], rs[j:l.n])
+	}
+	rs[i] = r
+	return runList{l.c, l.at, n}
 }
 
 // stepTree is a segment tree over steps 0..size-1 holding intervals of

@@ -939,3 +939,42 @@ func TestPlanArenaFanInBounded(t *testing.T) {
 	}
 	t.Logf("queries met %d runs at most, %d in all", most, total)
 }
+
+// TestRunListAdd adds random byte ranges to the lists of one tree, some
+// far apart and some touching, and compares each list with the union
+// worked out byte by byte (hand-checkable reference: a bitmap of 256
+// bytes), so that lists growing past their room, shrinking by joins and
+// moving in the pool all keep their runs sorted, disjoint and joined.
+func TestRunListAdd(t *testing.T) {
+	rng := rand.New(rand.NewSource(7))
+	tree := newRunTree(4)
+	const lists = 3
+	var ls [lists]runList
+	var bytes [lists][256]bool
+	for step := 0; step < 3000; step++ {
+		k := rng.Intn(lists)
+		lo := rng.Int63n(250)
+		hi := lo + 1 + rng.Int63n(min(6, 256-lo))
+		if step%500 == 0 {
+			ls[k], bytes[k] = runList{}, [256]bool{} // start again: lists long and short
+		}
+		ls[k] = tree.add(ls[k], byteRun{lo, hi})
+		for b := lo; b < hi; b++ {
+			bytes[k][b] = true
+		}
+		var want []byteRun
+		for b := int64(0); b < 256; b++ {
+			if !bytes[k][b] {
+				continue
+			}
+			if n := len(want); n > 0 && want[n-1].hi == b {
+				want[n-1].hi++
+			} else {
+				want = append(want, byteRun{b, b + 1})
+			}
+		}
+		if got := tree.runs(ls[k]); !slices.Equal(got, want) {
+			t.Fatalf("step %d, list %d: runs %v, want %v", step, k, got, want)
+		}
+	}
+}
