@@ -6,6 +6,8 @@ import (
 	"os"
 	"strconv"
 	"strings"
+
+	"github.com/loadline/loadline/internal/regular"
 )
 
 // GitHubEnv is what a GitHub Actions job tells a step about itself, read
@@ -55,6 +57,9 @@ func (e GitHubEnv) RunURL() string {
 	return strings.TrimRight(e.ServerURL, "/") + "/" + e.Repository + "/actions/runs/" + e.RunID
 }
 
+// maxEventPayload bounds the event payload file GitHubEnvFrom reads.
+const maxEventPayload = 64 << 20
+
 // GitHubEnvFrom reads the environment through getenv (os.Getenv in a
 // job, a map in tests), and the event payload file it names. A missing
 // payload file is no error (the step may not be in a pull request); an
@@ -78,7 +83,9 @@ func GitHubEnvFrom(getenv func(string) string) (GitHubEnv, error) {
 	if e.EventPath == "" {
 		return e, nil
 	}
-	data, err := os.ReadFile(e.EventPath)
+	// GitHub caps a webhook payload at 25 MB; the bound keeps a stray
+	// path (a device, a huge file) from being read without end.
+	data, err := regular.ReadFile(e.EventPath, maxEventPayload)
 	if os.IsNotExist(err) {
 		return e, nil
 	}

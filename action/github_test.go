@@ -799,3 +799,26 @@ func TestDetect(t *testing.T) {
 		t.Fatal("detected a CI in an empty environment")
 	}
 }
+
+// TestGitHubEnvPayloadBounded: the event payload path is read only when it
+// is a regular file of at most maxEventPayload bytes (GitHub caps webhook
+// payloads at 25 MB, per its webhook documentation), so a stray path to a
+// device or a huge file is an error naming it, not a read without end.
+func TestGitHubEnvPayloadBounded(t *testing.T) {
+	dir := t.TempDir()
+	huge := filepath.Join(dir, "huge.json")
+	f, err := os.Create(huge)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := f.Truncate(maxEventPayload + 1); err != nil { // sparse: no disk used
+		t.Fatal(err)
+	}
+	f.Close()
+	for path, want := range map[string]string{huge: "more than the", "/dev/zero": "not a regular file"} {
+		_, err := GitHubEnvFrom(func(k string) string { return map[string]string{"GITHUB_EVENT_PATH": path}[k] })
+		if err == nil || !strings.Contains(err.Error(), want) || !strings.Contains(err.Error(), path) {
+			t.Errorf("%s: error %v, want one naming the file and saying %q", path, err, want)
+		}
+	}
+}
