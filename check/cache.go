@@ -19,6 +19,12 @@ import (
 // change a figure, so that no stale figure survives an upgrade.
 const AnalyzerVersion = "loadline-figures-13"
 
+// entryFormat names the form of the cache's entries (entry.go). It is part
+// of every cache key beside AnalyzerVersion: change it whenever that form
+// changes, so that an entry of another form is never looked up (a miss,
+// measured again).
+const entryFormat = "figures-binary-1"
+
 // Cache keeps measured figures keyed by blob id, analyzer version and the
 // measuring options, in pack files under the repository's git directory
 // (pack.go): each key has two entries, the figures (small, read by every
@@ -120,7 +126,7 @@ func keyOf(blob string, opts measure.Options) cacheKey {
 	}
 	fmt.Fprintf(&o, "deploy=%+v", deploy)
 	h := sha256.New()
-	fmt.Fprintf(h, "%s\x00%s\x00%s", AnalyzerVersion, blob, o.String())
+	fmt.Fprintf(h, "%s\x00%s\x00%s\x00%s", AnalyzerVersion, entryFormat, blob, o.String())
 	k := cacheKey{blob: blob, options: o.String()}
 	copy(k.digest[:], h.Sum(nil))
 	return k
@@ -162,11 +168,22 @@ func (c *Cache) read(k cacheKey, kind byte, limit int64) (*cacheEntry, bool) {
 	if !ok {
 		return nil, false
 	}
-	var e cacheEntry
-	if json.Unmarshal(b, &e) != nil || e.Blob != k.blob || e.Version != AnalyzerVersion || e.Options != k.options {
+	var e *cacheEntry
+	if kind == kindFigures {
+		var err error
+		if e, err = decodeFigures(b); err != nil {
+			return nil, false
+		}
+	} else {
+		e = &cacheEntry{}
+		if json.Unmarshal(b, e) != nil {
+			return nil, false
+		}
+	}
+	if e.Blob != k.blob || e.Version != AnalyzerVersion || e.Options != k.options {
 		return nil, false // corrupt, stale or forged for another key: measured again and rewritten
 	}
-	return &e, true
+	return e, true
 }
 
 // Put keeps figures, with layers (measured with the per-layer view) in two
@@ -178,16 +195,23 @@ func (c *Cache) Put(k cacheKey, m *measure.Metrics, deps map[string]string, laye
 	}
 	figures := *m
 	figures.Layers, figures.MemoryDetail.LiveBytesByStep = nil, nil
-	if layers {
-		c.keep(k.pack(kindDetail), cacheEntry{Blob: k.blob, Version: AnalyzerVersion, Options: k.options, Layers: true,
-			PerLayer: &perLayer{Layers: m.Layers, LiveBytesByStep: m.MemoryDetail.LiveBytesByStep}}, maxDetailEntry)
+	fig, err := encodeFigures(&cacheEntry{Blob: k.blob, Version: AnalyzerVersion, Options: k.options, Deps: deps, Metrics: &figures})
+	if err != nil {
+		return
 	}
-	c.keep(k.pack(kindFigures), cacheEntry{Blob: k.blob, Version: AnalyzerVersion, Options: k.options, Deps: deps, Metrics: &figures}, maxFiguresEntry)
+	if layers {
+		det, err := json.Marshal(cacheEntry{Blob: k.blob, Version: AnalyzerVersion, Options: k.options, Layers: true,
+			PerLayer: &perLayer{Layers: m.Layers, LiveBytesByStep: m.MemoryDetail.LiveBytesByStep}})
+		if err != nil {
+			return
+		}
+		c.keep(k.pack(kindDetail), det, maxDetailEntry)
+	}
+	c.keep(k.pack(kindFigures), fig, maxFiguresEntry)
 }
 
-func (c *Cache) keep(pk packKey, e cacheEntry, limit int) {
-	b, err := json.Marshal(e)
-	if err != nil || len(b) > limit {
+func (c *Cache) keep(pk packKey, b []byte, limit int) {
+	if len(b) > limit {
 		return
 	}
 	c.mu.Lock()

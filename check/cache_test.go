@@ -120,15 +120,23 @@ func TestCacheEntryForgedForAnotherBlob(t *testing.T) {
 	}
 	// Another analyzer version's entry, or one made under other options,
 	// stored under a's key, is a miss too.
-	for _, c := range []struct{ what, from, to string }{
-		{"version", `"version":"` + AnalyzerVersion + `"`, `"version":"loadline-figures-0"`},
-		{"options", `"options":"deploy=`, `"options":"batch=4\u0000deploy=`},
+	for _, c := range []struct {
+		what   string
+		change func(*cacheEntry)
+	}{
+		{"version", func(e *cacheEntry) { e.Version = "loadline-figures-0" }},
+		{"options", func(e *cacheEntry) { e.Options = "batch=4\x00" + e.Options }},
 	} {
-		changed := strings.Replace(string(aFig), c.from, c.to, 1)
-		if changed == string(aFig) {
-			t.Fatalf("%s: %q is not in the entry %s", c.what, c.from, aFig)
+		e, err := decodeFigures(aFig)
+		if err != nil {
+			t.Fatal(err)
 		}
-		replacePacks(t, r, map[packKey][]byte{key(jobs[0], kindFigures): []byte(changed), key(jobs[0], kindDetail): aDetail})
+		c.change(e)
+		changed, err := encodeFigures(e)
+		if err != nil {
+			t.Fatal(err)
+		}
+		replacePacks(t, r, map[packKey][]byte{key(jobs[0], kindFigures): changed, key(jobs[0], kindDetail): aDetail})
 		if _, st := cachedRun(r, jobs[:1]); st.Measured.Load() != 1 {
 			t.Errorf("an entry of another %s was used", c.what)
 		}

@@ -135,17 +135,37 @@ func FuzzCachePack(f *testing.F) {
 // FuzzCacheEntry: whatever the stored bytes of an entry, the cache gives a
 // miss or the figures it was made for: an entry for another blob, analyzer
 // version or options, or that does not decode, is a miss, and what it
-// gives, Figures and DetailOf take without panicking. The pack around the
-// entries is well formed, so the fuzzer works on their JSON. Seeds: the
-// entries of a real measurement.
+// gives, Figures and DetailOf take without panicking. Figures that decode
+// are encoded again to the same figures. The pack around the entries is
+// well formed, so the fuzzer works on the entries: the figures in their
+// binary form (entry.go), the per-layer view as JSON. Seeds: the entries
+// of a real measurement, and the smallest entries made for the key.
 func FuzzCacheEntry(f *testing.F) {
 	k, fig, det := fuzzEntries(f)
 	f.Add(fig, det)
-	f.Add([]byte("{}"), []byte("null"))
-	f.Add([]byte(`{"blob":"`+fuzzBlob+`","version":"`+AnalyzerVersion+`","options":`+jsonString(f, k.options)+`,"metrics":{}}`),
+	f.Add([]byte{}, []byte("null"))
+	empty, err := encodeFigures(&cacheEntry{Blob: fuzzBlob, Version: AnalyzerVersion, Options: k.options, Metrics: &measure.Metrics{}})
+	if err != nil {
+		f.Fatal(err)
+	}
+	f.Add(empty,
 		[]byte(`{"blob":"`+fuzzBlob+`","version":"`+AnalyzerVersion+`","options":`+jsonString(f, k.options)+`,"layers":true,"per_layer":{"layers":[{}],"live_bytes_by_step":[-1]}}`))
 	dir := f.TempDir()
 	f.Fuzz(func(t *testing.T, fig, det []byte) {
+		if e, err := decodeFigures(fig); err == nil {
+			again, err := encodeFigures(e)
+			if err != nil {
+				t.Fatalf("figures read from an entry do not encode: %v", err)
+			}
+			// Compared as bytes: a float may be NaN.
+			e2, err := decodeFigures(again)
+			if err != nil {
+				t.Fatalf("figures encoded again do not read back: %v", err)
+			}
+			if again2, err := encodeFigures(e2); err != nil || !bytes.Equal(again2, again) {
+				t.Fatalf("figures encoded again read back different: %v\n%x\n%x", err, again2, again)
+			}
+		}
 		c := &Cache{Dir: dir}
 		defer c.release()
 		c.pending = map[packKey][]byte{k.pack(kindFigures): fig, k.pack(kindDetail): det}

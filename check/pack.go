@@ -21,7 +21,8 @@ import (
 //	magic   "loadline-cache-pack-1\n"
 //	count   uint32, little-endian
 //	index   count × (key [21]byte, offset uint64, length uint32), by key
-//	data    the entries, each a JSON document
+//	data    the entries: figures in the binary form of entry.go, the
+//	        per-layer view as a JSON document
 //
 // A key is the 20-byte digest of a cacheKey and one byte for the kind of
 // entry (figures or detail). A pack is written once, to a temporary file
