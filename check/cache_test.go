@@ -163,7 +163,7 @@ func TestCachePackRefused(t *testing.T) {
 	if _, ok := pk.get(k, 4); ok {
 		t.Error("an entry over its bound was read")
 	}
-	pk.f.Close()
+	pk.close()
 	if _, err := openPack(dir); err == nil {
 		t.Error("a folder was opened as a pack")
 	}

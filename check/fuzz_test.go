@@ -97,7 +97,7 @@ func FuzzCachePack(f *testing.F) {
 			}
 			return
 		}
-		defer pk.f.Close()
+		defer pk.close()
 		if n := int64(len(pk.keys)); n > maxPackEntries || int64(len(packMagic))+4+n*packRecordLen > int64(len(data)) {
 			t.Fatalf("an index of %d records accepted from a file of %d bytes", n, len(data))
 		}

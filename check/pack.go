@@ -10,6 +10,8 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"runtime"
+	"runtime/debug"
 	"sort"
 	"strings"
 	"sync"
@@ -59,6 +61,10 @@ type pack struct {
 	size int64
 	keys []packKey
 	at   []packSpan
+	// data is the file mapped read-only (packmap_unix.go), nil where it
+	// could not be mapped; unmap releases it.
+	data  []byte
+	unmap func()
 }
 
 type packSpan struct {
@@ -113,7 +119,17 @@ func openPack(p string) (*pack, error) {
 			return fail("its index is not sorted")
 		}
 	}
+	pk.data, pk.unmap = mapPack(f, size)
 	return pk, nil
+}
+
+// close releases the pack's file and mapping.
+func (p *pack) close() {
+	if p.unmap != nil {
+		p.unmap()
+		p.data, p.unmap = nil, nil
+	}
+	p.f.Close()
 }
 
 // get returns the entry of a key, refusing one longer than limit or
@@ -127,11 +143,35 @@ func (p *pack) get(k packKey, limit int64) ([]byte, bool) {
 	if s.n > limit || s.off < 0 || s.off > p.size-s.n {
 		return nil, false
 	}
+	if p.data != nil && s.off+s.n <= int64(len(p.data)) {
+		return copyMapped(p.data[s.off : s.off+s.n])
+	}
 	b := make([]byte, s.n)
 	if _, err := p.f.ReadAt(b, s.off); err != nil {
 		return nil, false
 	}
 	return b, true
+}
+
+// copyMapped copies an entry out of a mapped pack, so that nothing refers
+// to the mapping once it is released. A pack cut short after it was mapped
+// faults on the pages past its end: that entry is a miss, not a crash.
+func copyMapped(b []byte) (out []byte, ok bool) {
+	defer debug.SetPanicOnFault(debug.SetPanicOnFault(true))
+	defer func() {
+		if r := recover(); r != nil {
+			// A memory fault's runtime.Error has an Addr method
+			// (runtime/debug.SetPanicOnFault).
+			if _, fault := r.(interface {
+				runtime.Error
+				Addr() uintptr
+			}); !fault {
+				panic(r)
+			}
+			out, ok = nil, false
+		}
+	}()
+	return bytes.Clone(b), true
 }
 
 // openRegular opens a regular file for reading. A symbolic link, a device
@@ -261,7 +301,7 @@ func (c *Cache) Flush() {
 				all[k] = b
 			}
 		}
-		pk.f.Close()
+		pk.close()
 	}
 	if _, err := writePack(c.Dir, all); err != nil {
 		return
@@ -286,7 +326,7 @@ func (c *Cache) Close() {
 
 func (c *Cache) release() {
 	for _, p := range c.packs {
-		p.f.Close()
+		p.close()
 	}
 	c.packs = nil
 }
