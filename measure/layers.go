@@ -45,10 +45,12 @@ type Layer struct {
 	// position: stored (initializers, Constant nodes) or known before the
 	// run (computed from constants: a folded Shape, a Transpose of a
 	// weight). ActivationBytes is the size of its outputs and of its
-	// run-time inputs at data positions; a run-time value read as a shape,
-	// index, axis or count, or as statistics or quantization metadata
-	// (shapeOperands, params.go), is not data and counts in neither. Each
-	// input counts once per node. Defined in traffic.
+	// run-time inputs at data positions, indices read element by element
+	// among them (Gather's, GatherElements', ScatterND's, …: indexOperands,
+	// params.go); a run-time value read as a shape, axis or count, or as
+	// statistics or quantization metadata (shapeOperands), is not data
+	// and counts in neither. Each input counts once per node. Defined in
+	// traffic.
 	WeightBytes     int64 `json:"weight_bytes"`
 	ActivationBytes int64 `json:"activation_bytes"`
 
@@ -255,9 +257,10 @@ func traffic(l *Layer, n *model.Node, vals map[string]*Value) {
 			// Known before the run (computed from constants, or bound):
 			// a constant, read as the stored ones are.
 			l.WeightBytes += b
-		case isShapeOperand(n, i):
-			// A run-time shape, index, axis or count, statistics or
-			// quantization metadata (params.go's shapeOperands): not data.
+		case isShapeOperand(n, i) && !isIndexOperand(n, i):
+			// A run-time shape, axis or count, statistics or quantization
+			// metadata (params.go's shapeOperands): not data. Indices
+			// read element by element (indexOperands) are.
 		default:
 			l.ActivationBytes += b
 		}

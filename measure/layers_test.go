@@ -111,3 +111,35 @@ func TestLayerTrafficConstantsAndShapeOperands(t *testing.T) {
 		t.Errorf("MatMul dtype %q, want float32", m.Layers[4].DType)
 	}
 }
+
+// TestLayerTrafficIndexOperands: indices a kernel reads element by element
+// are run-time data, counted in activation bytes (a run-time shape is not:
+// TestLayerTrafficConstantsAndShapeOperands). Hand-worked: x float32[4,6]
+// = 96 bytes; idx int64[4,6] (GatherElements' indices, as large as its
+// output) = 192 bytes; y float32[4,6] = 96 bytes: 96 + 192 + 96 = 384.
+// Gather's run-time indices likewise: int64[3] = 24 bytes, with x's 96
+// and its output float32[3,6]'s 72: 192.
+func TestLayerTrafficIndexOperands(t *testing.T) {
+	g := &model.Graph{
+		Inputs: []*model.ValueInfo{
+			input("x", model.Float32, model.Known(4), model.Known(6)),
+			input("idx", model.Int64, model.Known(4), model.Known(6)),
+			input("rows", model.Int64, model.Known(3)),
+		},
+		Nodes: []*model.Node{
+			node("GatherElements", []string{"x", "idx"}, []string{"y"}),
+			node("Gather", []string{"x", "rows"}, []string{"picked"}),
+		},
+		Outputs: []*model.ValueInfo{{Name: "y"}, {Name: "picked"}},
+	}
+	m, err := Measure(graphModel(g), 0, Options{Layers: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := map[string]int64{"GatherElements": 384, "Gather": 192}
+	for _, l := range m.Layers {
+		if l.ActivationBytes != want[l.Op] || l.WeightBytes != 0 {
+			t.Errorf("%s: activation %d, weight %d; want %d, 0", l.Op, l.ActivationBytes, l.WeightBytes, want[l.Op])
+		}
+	}
+}

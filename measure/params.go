@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/binary"
 	"fmt"
+	"slices"
 	"sort"
 
 	"github.com/loadline/loadline/model"
@@ -50,21 +51,44 @@ var shapeOperands = map[string][]int{
 	"DynamicQuantizeLinear": {},
 }
 
+// indexOperands lists, per operator, the positions of shapeOperands that
+// hold indices read element by element, as many as the data they pick or
+// place (GatherElements' indices are as large as its output): no weight,
+// but data a kernel reads in full, so per-layer traffic counts them
+// (layers.go) where it leaves shapes, axes and counts out. Gather's
+// indices (position 1) are among them too (isIndexOperand).
+var indexOperands = map[string][]int{
+	"GatherElements": {1}, "GatherND": {1}, "ScatterND": {1}, "ScatterElements": {1}, "Scatter": {1},
+	"Compress": {1}, "MaxUnpool": {1}, "OneHot": {0}, "ReverseSequence": {1}, "RoiAlign": {2},
+	// TFLite's rows (tfliteOps): GATHER's and GATHER_ND's indices, SCATTER_ND's
+	// and ONE_HOT's indices, EMBEDDING_LOOKUP's ids.
+	"tflite:GATHER": {1}, "tflite:GATHER_ND": {1}, "tflite:SCATTER_ND": {0}, "tflite:ONE_HOT": {0},
+	"tflite:EMBEDDING_LOOKUP": {0},
+}
+
+// operandKey is n's row in shapeOperands and indexOperands.
+func operandKey(n *model.Node) string {
+	if n.Domain == "tflite" {
+		return "tflite:" + n.Op // TFLite's rows, from tfliteOps
+	}
+	return n.Op
+}
+
+// isIndexOperand reports whether input i of n holds indices read element
+// by element (indexOperands).
+func isIndexOperand(n *model.Node, i int) bool {
+	if n.Op == "Gather" && i == 1 {
+		return true
+	}
+	return slices.Contains(indexOperands[operandKey(n)], i)
+}
+
 // isShapeOperand reports whether input i of n carries a shape or index.
 func isShapeOperand(n *model.Node, i int) bool {
 	if n.Op == "Gather" && i == 1 {
 		return true
 	}
-	key := n.Op
-	if n.Domain == "tflite" {
-		key = "tflite:" + n.Op // TFLite's rows, from tfliteOps
-	}
-	for _, j := range shapeOperands[key] {
-		if j == i {
-			return true
-		}
-	}
-	return false
+	return slices.Contains(shapeOperands[operandKey(n)], i)
 }
 
 // ParamTensor is one weight with its figures.

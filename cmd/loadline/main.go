@@ -130,8 +130,9 @@ const conventions = `Figures (static estimates from the model file; measure on t
                flash (or RAM) bytes per cycle + activation bytes / RAM bytes per
                cycle (a roofline); weight bytes = the layer's constant inputs,
                stored or known before the run; activation bytes = its outputs
-               plus its run-time inputs at data positions (a run-time shape,
-               index, axis or count, statistics or quantization metadata is not
+               plus its run-time inputs at data positions, indices read element
+               by element (Gather's, ScatterND's, ...) included (a run-time
+               shape, axis or count, statistics or quantization metadata is not
                data and counts in neither); latency = cycles / clock, energy = power × latency.
                Built-in targets are fitted to published MLPerf Tiny measurements;
                these are estimates: measure on the device before release.
