@@ -128,7 +128,7 @@ func TestCorpusShapeScore(t *testing.T) {
 				misses = append(misses, fmt.Sprintf("%s/%s %s: inference failed: %v", sc.folder, sc.name, name, err))
 				continue
 			}
-			v := res.Values[name]
+			v := res.Values.Get(name)
 			got := "unknown"
 			if v != nil && v.Type.RankKnown {
 				got = v.Type.Shape.String()

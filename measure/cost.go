@@ -635,11 +635,11 @@ func (t *tally) times(n int64) *tally {
 }
 
 // scopes looks a value up in a subgraph's values, then its enclosing ones.
-type scopes []map[string]*Value
+type scopes []*Values
 
 func (s scopes) lookup(name string) *Value {
 	for i := len(s) - 1; i >= 0; i-- {
-		if v, ok := s[i][name]; ok {
+		if v, ok := s[i].lookup(name); ok {
 			return v
 		}
 	}

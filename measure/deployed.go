@@ -89,7 +89,7 @@ var viewOps = map[string]bool{
 // isView reports whether node n's first output is a view of its first
 // input under AliasViews: a viewOps node, or one that copies nothing
 // (noOpView).
-func isView(n *model.Node, vals map[string]*Value) bool {
+func isView(n *model.Node, vals *Values) bool {
 	return viewOps[n.Op] || noOpView(n, vals)
 }
 
@@ -97,19 +97,19 @@ func isView(n *model.Node, vals map[string]*Value) bool {
 // changes nothing: a Cast or CastLike to the dtype its input already has,
 // or a Dropout in inference mode (no training_mode input, or a false one)
 // whose mask output nobody asked for.
-func noOpView(n *model.Node, vals map[string]*Value) bool {
+func noOpView(n *model.Node, vals *Values) bool {
 	if len(n.Inputs) == 0 || len(n.Outputs) == 0 || n.Outputs[0] == "" || storedOutputs(n) != 1 {
 		return false
 	}
 	switch n.Op {
 	case "Cast", "CastLike":
-		in, out := vals[n.Inputs[0]], vals[n.Outputs[0]]
+		in, out := vals.Get(n.Inputs[0]), vals.Get(n.Outputs[0])
 		return in != nil && out != nil && in.Type.DType != model.Undefined && in.Type.DType == out.Type.DType
 	case "Dropout":
 		if len(n.Inputs) < 3 || n.Inputs[2] == "" {
 			return true
 		}
-		v := vals[n.Inputs[2]]
+		v := vals.Get(n.Inputs[2])
 		if v == nil {
 			return false
 		}
@@ -205,7 +205,7 @@ func planDeployed(inf *Inference, opts DeployOptions, buffers bool) *MemoryPlan 
 	return planDeployedGraph(inf, inf.Model.Graph, inf.Values, opts, buffers, 0)
 }
 
-func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, opts DeployOptions, buffers bool, depth int) *MemoryPlan {
+func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts DeployOptions, buffers bool, depth int) *MemoryPlan {
 	plan := &MemoryPlan{}
 	steps := max(1, len(g.Nodes))
 	lastStep := steps - 1
@@ -285,7 +285,7 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals map[string]*Value, o
 					recs[id].last = i
 				}
 			},
-			func(body *model.Graph, bv map[string]*Value) *MemoryPlan {
+			func(body *model.Graph, bv *Values) *MemoryPlan {
 				return planDeployedGraph(inf, body, bv, opts, buffers, depth+1)
 			}, outs[:0])
 		first := x.outs(i)
@@ -739,12 +739,12 @@ func storedOutputs(n *model.Node) int {
 
 // isDepthwise reports whether a Conv is depthwise with multiplier 1: group
 // greater than 1 and equal to its input's and its output's channels.
-func isDepthwise(n *model.Node, vals map[string]*Value) bool {
+func isDepthwise(n *model.Node, vals *Values) bool {
 	a := n.Attr("group")
 	if a == nil || a.Int <= 1 {
 		return false
 	}
-	in, out := vals[n.Input(0)], vals[n.Outputs[0]]
+	in, out := vals.Get(n.Input(0)), vals.Get(n.Outputs[0])
 	if !in.shapeKnown() || !out.shapeKnown() || len(in.Type.Shape) < 3 || len(out.Type.Shape) < 3 {
 		return false
 	}

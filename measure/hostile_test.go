@@ -84,10 +84,10 @@ func TestHostileHugeDims(t *testing.T) {
 	}
 	// Reshape to [-1] of 2^62·2^62·4 elements overflows: the node is
 	// unresolved with a reason, not a wrong number.
-	if v := res.Values["flat"]; v.Type.RankKnown && v.Type.Shape.AllKnown() {
+	if v := res.Values.Get("flat"); v.Type.RankKnown && v.Type.Shape.AllKnown() {
 		t.Errorf("flat: got known shape %v for an overflowing element count", v.Type.Shape)
 	}
-	if v := res.Values["y"]; !v.Type.RankKnown || len(v.Type.Shape) != 3 {
+	if v := res.Values.Get("y"); !v.Type.RankKnown || len(v.Type.Shape) != 3 {
 		t.Errorf("y: want rank 3, got %v", v.Type)
 	}
 }
@@ -150,7 +150,7 @@ func TestHostileRunawayLoop(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if got := res.Values["out"].Type.Shape; !got.Equal(model.KnownShape(1 << 62)) {
+	if got := res.Values.Get("out").Type.Shape; !got.Equal(model.KnownShape(1 << 62)) {
 		t.Errorf("out: got %v, want [%d]", got, int64(1)<<62)
 	}
 }
@@ -259,7 +259,7 @@ func TestHostileSplitToSequenceHugeAxis(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			if v := res.Values["s"]; v == nil || v.Type.Kind != model.KindSequence || v.SeqKnown {
+			if v := res.Values.Get("s"); v == nil || v.Type.Kind != model.KindSequence || v.SeqKnown {
 				t.Errorf("s: want a sequence of unknown length, got %+v", v)
 			}
 		})
@@ -286,8 +286,8 @@ func TestHostileSequenceMapUnequalLengths(t *testing.T) {
 		Outputs: []*model.ValueInfo{{Name: "out"}},
 	}
 	res, err := Infer(graphModel(g), InferOptions{})
-	if err == nil && (res.Values["out"] == nil || res.Values["out"].SeqKnown) {
-		t.Errorf("out: want an error or a sequence of unknown length, got %+v", res.Values["out"])
+	if err == nil && (res.Values.Get("out") == nil || res.Values.Get("out").SeqKnown) {
+		t.Errorf("out: want an error or a sequence of unknown length, got %+v", res.Values.Get("out"))
 	}
 }
 
@@ -311,7 +311,7 @@ func TestHostileGatherFoldBlowup(t *testing.T) {
 	if alloc > 16<<20 {
 		t.Errorf("Gather folding allocated %d bytes", alloc)
 	}
-	v := res.Values["y"]
+	v := res.Values.Get("y")
 	if !v.Type.Shape.Equal(model.KnownShape(n, n)) {
 		t.Errorf("y: shape %v, want [%d,%d]", v.Type.Shape, n, n)
 	}
@@ -345,7 +345,7 @@ func TestHostileConcatFoldDoubling(t *testing.T) {
 	if alloc > 64<<20 {
 		t.Errorf("Concat folding allocated %d bytes", alloc)
 	}
-	v := res.Values[prev]
+	v := res.Values.Get(prev)
 	if !v.Type.Shape.Equal(model.KnownShape(1024 << steps)) {
 		t.Errorf("%s: shape %v, want [%d]", prev, v.Type.Shape, int64(1024)<<steps)
 	}
@@ -377,7 +377,7 @@ func TestHostileRuntimeShapeLength(t *testing.T) {
 				t.Errorf("allocated %d bytes", alloc)
 			}
 			if err == nil && len(res.Unresolved) == 0 {
-				t.Errorf("y: %v, want the node unresolved", res.Values["y"].Type)
+				t.Errorf("y: %v, want the node unresolved", res.Values.Get("y").Type)
 			}
 		})
 	}
@@ -393,7 +393,7 @@ func TestHostileGatherNDNegativeBatchDims(t *testing.T) {
 	}
 	res, err := Infer(graphModel(g), InferOptions{})
 	if err == nil && len(res.Unresolved) == 0 {
-		t.Errorf("y: %v, want GatherND unresolved", res.Values["y"].Type)
+		t.Errorf("y: %v, want GatherND unresolved", res.Values.Get("y").Type)
 	}
 }
 
@@ -419,7 +419,7 @@ func TestHostileNodeWithoutOutputs(t *testing.T) {
 			if len(res.Unresolved) != 1 || res.Unresolved[0].Node != "n" || res.Unresolved[0].Reason != "the node declares no outputs" {
 				t.Errorf("unresolved %+v, want node n: the node declares no outputs", res.Unresolved)
 			}
-			if got := res.Values["y"].String(); got != "int64[4]" {
+			if got := res.Values.Get("y").String(); got != "int64[4]" {
 				t.Errorf("y is %s, want int64[4]", got)
 			}
 		})

@@ -30,8 +30,66 @@ type graphIndex struct {
 	heldOnce sync.Once
 }
 
+// Values is what inference found of the values of one graph, by name. The
+// main graph's are kept by number (numberedValues): a graph of 100,000
+// nodes names some 170,000 values, and a map of them beside the index's
+// own was the largest part of inference's memory and much of its time.
+// A subgraph's, a function body's and a TFLite graph's are kept by name.
+type Values struct {
+	x      *graphIndex       // the names numbered, nil for values kept by name alone
+	byID   []*Value          // by number, when x is set
+	byName map[string]*Value // the names x does not number, or all when x is nil
+}
+
+// namedValues is an empty table kept by name, with room for n names.
+func namedValues(n int) *Values { return &Values{byName: make(map[string]*Value, n)} }
+
+// numberedValues is an empty table of the values x numbers, the slice x's
+// passes read (graphIndex.vals) its storage.
+func numberedValues(x *graphIndex) *Values {
+	vs := &Values{x: x, byID: make([]*Value, len(x.names))}
+	x.vals = vs.byID
+	return vs
+}
+
+// Get is the value named name, nil when nothing is known of it.
+func (vs *Values) Get(name string) *Value {
+	v, _ := vs.lookup(name)
+	return v
+}
+
+// lookup is Get, and whether the table holds name at all: a subgraph's
+// name held with no value still hides an enclosing graph's (scope).
+func (vs *Values) lookup(name string) (*Value, bool) {
+	if vs == nil {
+		return nil, false
+	}
+	if vs.x != nil {
+		if id, ok := vs.x.ids[name]; ok {
+			v := vs.byID[id]
+			return v, v != nil
+		}
+	}
+	v, ok := vs.byName[name]
+	return v, ok
+}
+
+// set records v as the value named name.
+func (vs *Values) set(name string, v *Value) {
+	if vs.x != nil {
+		if id, ok := vs.x.ids[name]; ok {
+			vs.byID[id] = v
+			return
+		}
+	}
+	if vs.byName == nil {
+		vs.byName = map[string]*Value{}
+	}
+	vs.byName[name] = v
+}
+
 // newGraphIndex numbers the values of g, whose inferred values are vals.
-func newGraphIndex(g *model.Graph, vals map[string]*Value) *graphIndex {
+func newGraphIndex(g *model.Graph, vals *Values) *graphIndex {
 	x := numberGraph(g)
 	x.fill(vals)
 	return x
@@ -46,7 +104,7 @@ func numberGraph(g *model.Graph) *graphIndex {
 		nIn += len(n.Inputs)
 		nOut += len(n.Outputs)
 	}
-	size := len(g.Inputs) + len(g.Initializers) + nOut + len(g.Outputs)
+	size := len(g.Inputs) + len(g.Initializers) + nOut + len(g.Outputs) + len(g.Sparse)
 	x := &graphIndex{ids: make(map[string]int32, size), names: make([]string, 0, size),
 		in: make([]int32, 0, nIn), out: make([]int32, 0, nOut),
 		inAt: make([]int32, 0, len(g.Nodes)+1), outAt: make([]int32, 0, len(g.Nodes)+1)}
@@ -83,14 +141,21 @@ func numberGraph(g *model.Graph) *graphIndex {
 	for _, o := range g.Outputs {
 		number(o.Name)
 	}
+	// Last, so that the numbers above do not depend on them: sparse
+	// initializers no node reads, which inference records all the same.
+	for _, sp := range g.Sparse {
+		if sp.Values != nil {
+			number(sp.Values.Name)
+		}
+	}
 	return x
 }
 
-// fill sets each numbered value to what inference found, vals[name].
-func (x *graphIndex) fill(vals map[string]*Value) {
+// fill sets each numbered value to what inference found, vals.Get(name).
+func (x *graphIndex) fill(vals *Values) {
 	x.vals = make([]*Value, len(x.names))
 	for id, name := range x.names {
-		x.vals[id] = vals[name]
+		x.vals[id] = vals.Get(name)
 	}
 }
 
@@ -170,7 +235,7 @@ func (s *staticSet) mark(id int32) {
 // runtime computes it once at load time — and the others are appended to
 // outs, which is returned, with whether the node holds a subgraph.
 func planStep(plan *MemoryPlan, inf *Inference, x *graphIndex, static *staticSet, n *model.Node, i, depth int,
-	bodyPeak, bodyArena map[int]int64, touch func(id int32), planBody func(*model.Graph, map[string]*Value) *MemoryPlan,
+	bodyPeak, bodyArena map[int]int64, touch func(id int32), planBody func(*model.Graph, *Values) *MemoryPlan,
 	outs []int32) ([]int32, bool) {
 	ins := x.ins(i)
 	for _, id := range ins {

@@ -41,8 +41,9 @@ type Unresolved struct {
 // Inference is the result of shape inference on a model's main graph.
 type Inference struct {
 	Model *model.Model
-	// Values maps each value name of the main graph to what is known of it.
-	Values map[string]*Value
+	// Values holds what is known of each value of the main graph, by name
+	// (Values.Get).
+	Values *Values
 	// Inputs and Outputs are the main graph's runtime inputs (initializers
 	// excluded) and outputs, in file order.
 	Inputs, Outputs []NamedValue
@@ -51,7 +52,7 @@ type Inference struct {
 	Unresolved []Unresolved
 	// Subgraphs maps a control-flow node's name to what inference learned of
 	// each of its subgraphs' values, for cost counting of their bodies.
-	Subgraphs map[*model.Graph]map[string]*Value
+	Subgraphs map[*model.Graph]*Values
 	// Calls maps each call of a model-local function to the function's body
 	// as instantiated for it, with the values inference found there, for
 	// cost counting.
@@ -80,7 +81,7 @@ type Inference struct {
 
 // index is the numbered values of g, a graph of the model whose inferred
 // values are vals, made on the first call.
-func (inf *Inference) index(g *model.Graph, vals map[string]*Value) *graphIndex {
+func (inf *Inference) index(g *model.Graph, vals *Values) *graphIndex {
 	inf.mu.Lock()
 	defer inf.mu.Unlock()
 	if x := inf.indexes[g]; x != nil {
@@ -92,18 +93,6 @@ func (inf *Inference) index(g *model.Graph, vals map[string]*Value) *graphIndex 
 	x := newGraphIndex(g, vals)
 	inf.indexes[g] = x
 	return x
-}
-
-// adoptIndex makes x, the main graph numbered while inference ran
-// (numberGraph), the main graph's index, its values filled in.
-func (inf *Inference) adoptIndex(x *graphIndex) {
-	inf.mu.Lock()
-	defer inf.mu.Unlock()
-	x.fill(inf.Values)
-	if inf.indexes == nil {
-		inf.indexes = map[*model.Graph]*graphIndex{}
-	}
-	inf.indexes[inf.Model.Graph] = x
 }
 
 // DecidedIf is an If node whose condition inference knew: only Branch
@@ -125,7 +114,7 @@ type UndecidedIf struct {
 // inference knows of its values.
 type CallBody struct {
 	Graph  *model.Graph
-	Values map[string]*Value
+	Values *Values
 }
 
 // NamedValue is a graph input or output with what is known of it.
@@ -144,7 +133,7 @@ type engine struct {
 	m          *model.Model
 	opts       InferOptions
 	unresolved []Unresolved
-	subgraphs  map[*model.Graph]map[string]*Value
+	subgraphs  map[*model.Graph]*Values
 	calls      map[*model.Node]*CallBody
 	work       int64 // units of inference work spent (work.go)
 	workLimit  int64 // the model's budget (workBudget)
@@ -181,12 +170,12 @@ type engine struct {
 
 type scope struct {
 	parent *scope
-	vals   map[string]*Value
+	vals   *Values
 }
 
 func (s *scope) lookup(name string) *Value {
 	for ; s != nil; s = s.parent {
-		if v, ok := s.vals[name]; ok {
+		if v, ok := s.vals.lookup(name); ok {
 			return v
 		}
 	}
@@ -194,7 +183,7 @@ func (s *scope) lookup(name string) *Value {
 }
 
 func newEngine(m *model.Model, opts InferOptions) *engine {
-	return &engine{m: m, opts: opts, workLimit: workBudget(m), subgraphs: map[*model.Graph]map[string]*Value{}, calls: map[*model.Node]*CallBody{}, poisoned: map[string]string{},
+	return &engine{m: m, opts: opts, workLimit: workBudget(m), subgraphs: map[*model.Graph]*Values{}, calls: map[*model.Node]*CallBody{}, poisoned: map[string]string{},
 		memo: map[string]*callResult{}, ids: map[any]int{}, opsets: map[string]*mergedOpsets{},
 		producers: map[string]*model.Node{}, inputs: map[string]bool{}}
 }
@@ -210,15 +199,14 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 	}
 	e := newEngine(m, opts)
 	g := m.Graph
-	outputs := 0
-	for _, n := range g.Nodes {
-		outputs += len(n.Outputs)
-	}
-	sc := &scope{vals: make(map[string]*Value, len(g.Initializers)+len(g.Inputs)+outputs)}
+	// The main graph's values are kept by number (Values): the index
+	// the passes after inference read is made first.
+	x := numberGraph(g)
+	sc := &scope{vals: numberedValues(x)}
 	if e.traceIfs = holdsIf(m); e.traceIfs {
-		e.producers = make(map[string]*model.Node, outputs)
+		e.producers = make(map[string]*model.Node, len(x.out))
 	}
-	res := &Inference{Model: m, Subgraphs: e.subgraphs, Calls: e.calls}
+	res := &Inference{Model: m, Subgraphs: e.subgraphs, Calls: e.calls, indexes: map[*model.Graph]*graphIndex{g: x}}
 
 	// The initializers' values in one block: a large model has tens of
 	// thousands, and an allocation each would cost more than their use.
@@ -236,16 +224,16 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 		}
 		stored[i].tensor = t
 		inits[i] = Value{Type: model.TensorType(t.DType, shapes[k:len(shapes):len(shapes)]), lazy: &stored[i], Weight: true}
-		sc.vals[t.Name] = &inits[i]
+		sc.vals.set(t.Name, &inits[i])
 	}
 	for _, sp := range g.Sparse {
 		if sp.Values != nil {
-			sc.vals[sp.Values.Name] = &Value{Type: model.TensorType(sp.Values.DType, model.KnownShape(sp.Dims...)), Weight: true}
+			sc.vals.set(sp.Values.Name, &Value{Type: model.TensorType(sp.Values.DType, model.KnownShape(sp.Dims...)), Weight: true})
 		}
 	}
 	var ins []*model.ValueInfo
 	for _, in := range g.Inputs {
-		if _, isInit := sc.vals[in.Name]; isInit {
+		if _, isInit := sc.vals.lookup(in.Name); isInit {
 			continue // IR < 4 lists initializers among the inputs too
 		}
 		ins = append(ins, in)
@@ -258,7 +246,7 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 	res.Dims, res.BindingIssues = dims, issues
 	res.Has = inputsText(ins, vals)
 	for i, in := range ins {
-		sc.vals[in.Name] = vals[i]
+		sc.vals.set(in.Name, vals[i])
 		e.inputs[in.Name] = true
 		res.Inputs = append(res.Inputs, NamedValue{in.Name, vals[i]})
 	}
@@ -349,11 +337,11 @@ func (e *engine) declaredTypes(g *model.Graph) map[string]model.Type {
 // declares; inferred facts win where both exist.
 func (e *engine) applyDeclared(g *model.Graph, sc *scope, _ bool) {
 	for name, t := range e.declaredTypes(g) {
-		v := sc.vals[name]
+		v := sc.vals.Get(name)
 		if v == nil || v.Weight {
 			continue
 		}
-		sc.vals[name] = withDeclared(v, t)
+		sc.vals.set(name, withDeclared(v, t))
 	}
 }
 
@@ -449,7 +437,7 @@ func (e *engine) inferNodes(g *model.Graph, sc *scope, path *trail) error {
 			if t, ok := decl[name]; ok {
 				v = withDeclared(v, t)
 			}
-			sc.vals[name] = v
+			sc.vals.set(name, v)
 		}
 	}
 	return nil
@@ -556,10 +544,10 @@ func (e *engine) inferFunction(f *model.Function, call *model.Node, ins []*Value
 	}
 	e.depth++
 	defer func() { e.depth-- }()
-	fs := &scope{vals: make(map[string]*Value, len(f.Inputs)+len(f.Nodes))}
+	fs := &scope{vals: namedValues(len(f.Inputs) + len(f.Nodes))}
 	for i, name := range f.Inputs {
 		if i < len(ins) && ins[i] != nil {
-			fs.vals[name] = ins[i]
+			fs.vals.set(name, ins[i])
 		}
 	}
 	// Each call gets its own copy of the body's nodes: Inference.Calls
@@ -615,7 +603,7 @@ func (e *engine) inferFunction(f *model.Function, call *model.Node, ins []*Value
 	}
 	r := &callResult{body: &CallBody{Graph: body, Values: fs.vals}}
 	for _, name := range f.Outputs {
-		r.outs = append(r.outs, fs.vals[name])
+		r.outs = append(r.outs, fs.vals.Get(name))
 	}
 	e.memo[key] = r
 	if e.quiet == 0 && e.calls != nil {
@@ -632,15 +620,15 @@ func (e *engine) inferSubgraph(g *model.Graph, outer *scope, bound []*Value, pat
 	}
 	e.depth++
 	defer func() { e.depth-- }()
-	sc := &scope{parent: outer, vals: map[string]*Value{}}
+	sc := &scope{parent: outer, vals: namedValues(0)}
 	for _, t := range g.Initializers {
-		sc.vals[t.Name] = tensorValue(t)
+		sc.vals.set(t.Name, tensorValue(t))
 	}
 	for i, in := range g.Inputs {
 		if i < len(bound) && bound[i] != nil {
-			sc.vals[in.Name] = bound[i]
+			sc.vals.set(in.Name, bound[i])
 		} else {
-			sc.vals[in.Name] = &Value{Type: bindDims(in.Type, e.opts.Dims)}
+			sc.vals.set(in.Name, &Value{Type: bindDims(in.Type, e.opts.Dims)})
 		}
 	}
 	if err := e.inferNodes(g, sc, path); err != nil {

@@ -196,7 +196,7 @@ func layersOf(inf *Inference, costs *Costs, plan *MemoryPlan) []Layer {
 		l := Layer{Step: i, Node: nodeName(n, i), Op: n.Op, Offset: -1}
 		if len(n.Outputs) > 0 {
 			l.Output = n.Outputs[0]
-			if v := inf.Values[l.Output]; v != nil {
+			if v := inf.Values.Get(l.Output); v != nil {
 				l.Shape = v.Type.String()
 			}
 			if p, ok := offsets[l.Output]; ok {
@@ -230,10 +230,10 @@ var depthwiseOps = map[string]bool{"Conv": true, "ConvInteger": true, "QLinearCo
 // inference knows of the node's inputs and outputs: the one definition of
 // a layer's weight bytes and activation bytes (README "Conventions",
 // `loadline --help`), which the device cost model's memory term reads.
-func traffic(l *Layer, n *model.Node, vals map[string]*Value) {
+func traffic(l *Layer, n *model.Node, vals *Values) {
 	seen := map[string]bool{}
 	for i, name := range n.Inputs {
-		v := vals[name]
+		v := vals.Get(name)
 		if name == "" || v == nil || v.Absent {
 			continue
 		}
@@ -266,7 +266,7 @@ func traffic(l *Layer, n *model.Node, vals map[string]*Value) {
 		}
 	}
 	for _, name := range n.Outputs {
-		v := vals[name]
+		v := vals.Get(name)
 		if name == "" || v == nil || v.Absent {
 			continue
 		}

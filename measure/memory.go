@@ -139,7 +139,7 @@ type tensorRec struct {
 	producer    int // node index, -1 for a graph input
 }
 
-func planGraph(inf *Inference, g *model.Graph, vals map[string]*Value, depth int) *MemoryPlan {
+func planGraph(inf *Inference, g *model.Graph, vals *Values, depth int) *MemoryPlan {
 	plan := &MemoryPlan{}
 	steps := max(1, len(g.Nodes))
 	lastStep := steps - 1
@@ -179,7 +179,7 @@ func planGraph(inf *Inference, g *model.Graph, vals map[string]*Value, depth int
 	var outs []int32
 	for i, n := range g.Nodes {
 		outs, _ = planStep(plan, inf, x, static, n, i, depth, bodyPeak, bodyArena, touch(i),
-			func(body *model.Graph, bv map[string]*Value) *MemoryPlan {
+			func(body *model.Graph, bv *Values) *MemoryPlan {
 				return planGraph(inf, body, bv, depth+1)
 			}, outs[:0])
 		for _, id := range outs {
@@ -221,8 +221,8 @@ func planGraph(inf *Inference, g *model.Graph, vals map[string]*Value, depth int
 // planBody, records the largest body peak and arena at step i, and calls
 // use with every name the bodies read, so that outer tensors stay live
 // through the node. It reports whether n has a subgraph.
-func (plan *MemoryPlan) bodies(n *model.Node, i, depth int, cond *Value, subs map[*model.Graph]map[string]*Value, bodyPeak, bodyArena map[int]int64,
-	use func(string), planBody func(*model.Graph, map[string]*Value) *MemoryPlan) bool {
+func (plan *MemoryPlan) bodies(n *model.Node, i, depth int, cond *Value, subs map[*model.Graph]*Values, bodyPeak, bodyArena map[int]int64,
+	use func(string), planBody func(*model.Graph, *Values) *MemoryPlan) bool {
 	hasBody := false
 	// An If whose condition is known runs one branch; the other was not
 	// inferred and takes no memory.

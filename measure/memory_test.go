@@ -259,7 +259,7 @@ func randomGraph(r *rand.Rand) *Inference {
 		name := avail[len(avail)-1-r.Intn(min(len(avail), 3))]
 		g.Outputs = append(g.Outputs, &model.ValueInfo{Name: name})
 	}
-	return &Inference{Model: &model.Model{Graph: g}, Values: vals}
+	return &Inference{Model: &model.Model{Graph: g}, Values: &Values{byName: vals}}
 }
 
 // bruteLiveBytes is the independent peak checker: at each step, sums the
@@ -291,7 +291,7 @@ func bruteLiveBytes(inf *Inference) []int64 {
 			folded = folded && static[in]
 		}
 		for _, o := range n.Outputs {
-			static[o] = inf.Values[o].Weight || folded
+			static[o] = inf.Values.Get(o).Weight || folded
 			if !static[o] {
 				ts = append(ts, tensor{o, i})
 			}
@@ -303,7 +303,7 @@ func bruteLiveBytes(inf *Inference) []int64 {
 	// values alone and never read at a data position: live at every step;
 	// from an inferred value: live from its producer through its last
 	// reader that is not folded.
-	elems := func(name string) int64 { n, _ := inf.Values[name].Type.Shape.Elements(); return n }
+	elems := func(name string) int64 { n, _ := inf.Values.Get(name).Type.Shape.Elements(); return n }
 	src := map[string]int64{}
 	stored := map[string]bool{}
 	folded := make([]bool, len(g.Nodes))
@@ -321,7 +321,7 @@ func bruteLiveBytes(inf *Inference) []int64 {
 			e, ok := src[in]
 			if !ok {
 				e = elems(in)
-				fromStored = fromStored && inf.Values[in].Weight
+				fromStored = fromStored && inf.Values.Get(in).Weight
 			} else {
 				fromStored = fromStored && stored[in]
 			}
@@ -386,7 +386,7 @@ func bruteLiveBytes(inf *Inference) []int64 {
 				}
 			}
 			if live {
-				n, _ := inf.Values[t.name].Type.Shape.Elements()
+				n, _ := inf.Values.Get(t.name).Type.Shape.Elements()
 				out[s] += n
 			}
 		}

@@ -141,26 +141,7 @@ func sideBySide(parallel bool, a, b func()) {
 // Measure infers shapes and computes the figures of a decoded model.
 // fileBytes is the size of the model file as stored.
 func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
-	// With a core to spare, the main graph is numbered (index.go) while
-	// inference runs: both only read the model.
-	var numbered chan *graphIndex
-	if opts.Parallel && m != nil && m.Graph != nil {
-		numbered = make(chan *graphIndex, 1)
-		go func() {
-			var x *graphIndex
-			defer func() {
-				recover() // a graph it cannot number is numbered again, after inference, where a panic is seen
-				numbered <- x
-			}()
-			x = numberGraph(m.Graph)
-		}()
-	}
 	inf, err := Infer(m, InferOptions{Dims: opts.Dims, Shapes: opts.Shapes, Values: opts.Values, Lenient: opts.Lenient})
-	if numbered != nil {
-		if x := <-numbered; x != nil && err == nil {
-			inf.adoptIndex(x)
-		}
-	}
 	if err != nil {
 		return nil, err
 	}

@@ -186,7 +186,7 @@ func nnRun(t *testing.T, c nnCase) ([]*Value, []Unresolved) {
 	outs := make([]*Value, nOut)
 	for i, name := range n.Outputs {
 		if name != "" {
-			outs[i] = res.Values[name]
+			outs[i] = res.Values.Get(name)
 		}
 	}
 	return outs, res.Unresolved

@@ -69,7 +69,7 @@ func TestNMSCorpus(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			got := res.Values[g.Outputs[0].Name]
+			got := res.Values.Get(g.Outputs[0].Name)
 			if d, ok := got.Type.Shape.Ints(); !ok || fmt.Sprint(d) != fmt.Sprint(want) {
 				t.Errorf("inferred %v, expected %v (test_data_set_0/output_0.pb)", got, want)
 			}

@@ -133,7 +133,7 @@ func TestReduceProdOfShape(t *testing.T) {
 		t.Fatal(err)
 	}
 	// hand-worked: N × 3 × 4
-	if got := res.Values["n"].String(); got != "int64[][N*12]" {
+	if got := res.Values.Get("n").String(); got != "int64[][N*12]" {
 		t.Errorf("got %s, want int64[][N*12]", got)
 	}
 }

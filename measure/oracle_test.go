@@ -98,7 +98,7 @@ func compareWithOracle(t *testing.T, paths []string) {
 			continue
 		}
 		for name, want := range ref[p] {
-			v := res.Values[name]
+			v := res.Values.Get(name)
 			checked++
 			if v == nil || !v.Type.RankKnown {
 				t.Errorf("%s: %s: loadline infers no shape, reference gives %v", shortPath(p), name, want)

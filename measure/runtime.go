@@ -114,7 +114,7 @@ func planRuntime(inf *Inference) (view RuntimeView, persistent int64, unresolved
 	}
 	vals := inf.Values
 	for _, st := range g.State {
-		size, reason := tensorBytes(vals[st.Name])
+		size, reason := tensorBytes(vals.Get(st.Name))
 		if reason != "" {
 			unresolved = append(unresolved, Unresolved{Node: st.Name, Reason: "persistent memory unknown: " + reason})
 			continue
@@ -167,7 +167,7 @@ func planRuntime(inf *Inference) (view RuntimeView, persistent int64, unresolved
 		if !used {
 			continue
 		}
-		size, reason := tensorBytes(vals[name])
+		size, reason := tensorBytes(vals.Get(name))
 		if reason != "" {
 			unresolved = append(unresolved, Unresolved{Node: name, Reason: fmt.Sprintf("runtime memory unknown: %s (tensor %q)", reason, name)})
 			continue

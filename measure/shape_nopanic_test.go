@@ -99,7 +99,7 @@ func TestShapeRulesNoPanic(t *testing.T) {
 							t.Errorf("%s/%s panicked: %v\nnode %+v\ninputs %v", fam, op, r, n, in)
 						}
 					}()
-					_, _ = rule.infer(&ctx{e: e, node: n, in: in, opset: opset, sc: &scope{vals: map[string]*Value{}}})
+					_, _ = rule.infer(&ctx{e: e, node: n, in: in, opset: opset, sc: &scope{vals: namedValues(0)}})
 				}()
 			}
 		}

@@ -92,7 +92,7 @@ func foldsAtLoad(n *model.Node, ins []int32, fixed func(int32) bool) bool {
 // those of its subgraphs; vals are its inferred values) that the device
 // holds, in the order their producers appear. The list is made once per
 // graph, kept with its index: the weights and the graph view both read it.
-func heldTensors(inf *Inference, g *model.Graph, vals map[string]*Value) []heldTensor {
+func heldTensors(inf *Inference, g *model.Graph, vals *Values) []heldTensor {
 	x := inf.index(g, vals)
 	x.heldOnce.Do(func() { x.held = findHeld(x, g) })
 	return x.held
@@ -243,11 +243,11 @@ func findHeld(x *graphIndex, g *model.Graph) []heldTensor {
 // not static, weight or not, is listed as unresolved instead: the memory
 // figures (and ram, which counts the generated weights) are then lower
 // bounds.
-func heldConstants(inf *Inference, g *model.Graph, vals map[string]*Value, steps int) ([]Lifetime, []Unresolved) {
+func heldConstants(inf *Inference, g *model.Graph, vals *Values, steps int) ([]Lifetime, []Unresolved) {
 	var lts []Lifetime
 	var unres []Unresolved
 	for _, h := range heldTensors(inf, g, vals) {
-		size, reason := tensorBytes(vals[h.name])
+		size, reason := tensorBytes(vals.Get(h.name))
 		if reason != "" {
 			n := g.Nodes[h.producer]
 			unres = append(unres, Unresolved{Node: nodeLabel(n, h.producer), Op: n.Op,
@@ -269,13 +269,13 @@ func heldConstants(inf *Inference, g *model.Graph, vals map[string]*Value, steps
 // stored values.
 func generatedWeights(inf *Inference) []ParamTensor {
 	var out []ParamTensor
-	var walk func(g *model.Graph, vals map[string]*Value, depth int)
-	walk = func(g *model.Graph, vals map[string]*Value, depth int) {
+	var walk func(g *model.Graph, vals *Values, depth int)
+	walk = func(g *model.Graph, vals *Values, depth int) {
 		if g == nil || vals == nil || depth > maxGraphDepth {
 			return
 		}
 		for _, h := range heldTensors(inf, g, vals) {
-			v := vals[h.name]
+			v := vals.Get(h.name)
 			if !h.stored || !h.weight || v == nil {
 				continue
 			}

@@ -28,7 +28,7 @@ func inferStored(m *model.Model, opts InferOptions) (*Inference, error) {
 	for k, v := range bound {
 		dims[k] = v
 	}
-	s := &storedInference{dims: dims, res: &Inference{Model: m, Subgraphs: map[*model.Graph]map[string]*Value{}, Calls: map[*model.Node]*CallBody{},
+	s := &storedInference{dims: dims, res: &Inference{Model: m, Subgraphs: map[*model.Graph]*Values{}, Calls: map[*model.Node]*CallBody{},
 		Dims: bound, BindingIssues: issues, Has: inputsText(m.Graph.Inputs, ins)}}
 	s.inputs = map[string]*Value{}
 	for i, in := range m.Graph.Inputs {
@@ -42,10 +42,10 @@ func inferStored(m *model.Model, opts InferOptions) (*Inference, error) {
 	}
 	s.res.Values = vals
 	for _, in := range m.Graph.Inputs {
-		s.res.Inputs = append(s.res.Inputs, NamedValue{in.Name, vals[in.Name]})
+		s.res.Inputs = append(s.res.Inputs, NamedValue{in.Name, vals.Get(in.Name)})
 	}
 	for _, out := range m.Graph.Outputs {
-		s.res.Outputs = append(s.res.Outputs, NamedValue{out.Name, vals[out.Name]})
+		s.res.Outputs = append(s.res.Outputs, NamedValue{out.Name, vals.Get(out.Name)})
 	}
 	s.res.Unresolved = s.unresolved
 	return s.res, nil
@@ -60,25 +60,25 @@ type storedInference struct {
 
 // graph gives every tensor of g its stored type, checks g's operators and
 // does the same for the subgraphs they run.
-func (s *storedInference) graph(g *model.Graph, path string, depth int) (map[string]*Value, error) {
+func (s *storedInference) graph(g *model.Graph, path string, depth int) (*Values, error) {
 	if depth > maxGraphDepth {
 		return nil, errDepth
 	}
-	vals := map[string]*Value{}
+	vals := namedValues(len(g.Initializers) + len(g.ValueInfo))
 	declare := func(vis []*model.ValueInfo, state bool) {
 		for _, vi := range vis {
-			if _, done := vals[vi.Name]; !done {
-				vals[vi.Name] = &Value{Type: bindDims(vi.Type, s.dims), State: state}
+			if _, done := vals.lookup(vi.Name); !done {
+				vals.set(vi.Name, &Value{Type: bindDims(vi.Type, s.dims), State: state})
 			}
 		}
 	}
 	for _, t := range g.Initializers {
-		vals[t.Name] = tensorValue(t)
+		vals.set(t.Name, tensorValue(t))
 	}
 	declare(g.State, true)
 	if depth == 0 {
 		for name, v := range s.inputs {
-			vals[name] = v
+			vals.set(name, v)
 		}
 	}
 	declare(g.Inputs, false)
@@ -103,7 +103,7 @@ func (s *storedInference) graph(g *model.Graph, path string, depth int) (map[str
 }
 
 // check compares n's stored output shapes with what its inputs imply.
-func (s *storedInference) check(n *model.Node, i int, vals map[string]*Value, path string) {
+func (s *storedInference) check(n *model.Node, i int, vals *Values, path string) {
 	op, ok := tfliteOps[n.Op]
 	if !ok || n.Domain != "tflite" || op.check == nil {
 		return
@@ -111,20 +111,20 @@ func (s *storedInference) check(n *model.Node, i int, vals map[string]*Value, pa
 	c := newCostCtx(n)
 	for j, name := range n.Inputs {
 		if name != "" {
-			c.ins[j] = vals[name]
+			c.ins[j] = vals.Get(name)
 		}
 	}
 	for j, name := range n.Outputs {
 		if name != "" {
-			c.outs[j] = vals[name]
+			c.outs[j] = vals.Get(name)
 		}
 	}
 	want, err := op.check(c)
 	bad := func(j int, reason string) {
 		s.unresolved = append(s.unresolved, Unresolved{Node: path + nodeName(n, i), Op: n.Op, Reason: reason})
 		if j >= 0 && j < len(n.Outputs) && n.Outputs[j] != "" {
-			if v := vals[n.Outputs[j]]; v != nil {
-				vals[n.Outputs[j]] = &Value{Type: model.Type{Kind: model.KindTensor, DType: v.Type.DType}}
+			if v := vals.Get(n.Outputs[j]); v != nil {
+				vals.set(n.Outputs[j], &Value{Type: model.Type{Kind: model.KindTensor, DType: v.Type.DType}})
 			}
 		}
 	}

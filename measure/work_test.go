@@ -175,7 +175,7 @@ func TestWorkBoundWhileTrueLoop(t *testing.T) {
 		Outputs:      []*model.ValueInfo{{Name: "out"}},
 	}
 	e := newEngine(graphModel(g), InferOptions{})
-	sc := &scope{vals: map[string]*Value{"c": boolScalar(true)}}
+	sc := &scope{vals: &Values{byName: map[string]*Value{"c": boolScalar(true)}}}
 	if err := e.inferNodes(g, sc, &trail{seg: "graph", node: -1}); err != nil {
 		t.Fatal(err)
 	}
@@ -183,7 +183,7 @@ func TestWorkBoundWhileTrueLoop(t *testing.T) {
 	if e.work != 3 {
 		t.Errorf("work %d units, want 3 (the loop was unrolled)", e.work)
 	}
-	if s := sc.vals["out"].Type.Shape; len(s) != 1 || s[0].IsKnown() {
+	if s := sc.vals.Get("out").Type.Shape; len(s) != 1 || s[0].IsKnown() {
 		t.Errorf("out: shape %v, want one symbolic dim", s)
 	}
 }
@@ -202,14 +202,14 @@ func TestWorkStoredWeightsPassedOn(t *testing.T) {
 		Outputs:      []*model.ValueInfo{{Name: "y"}}}
 	m := graphModel(g)
 	e := newEngine(m, InferOptions{})
-	sc := &scope{vals: map[string]*Value{"x": {Type: g.Inputs[0].Type}, "w": tensorValue(w)}}
+	sc := &scope{vals: &Values{byName: map[string]*Value{"x": {Type: g.Inputs[0].Type}, "w": tensorValue(w)}}}
 	if err := e.inferNodes(g, sc, &trail{seg: "graph", node: -1}); err != nil {
 		t.Fatal(err)
 	}
 	if e.work != 1 {
 		t.Errorf("work %d units, want 1", e.work)
 	}
-	if sc.vals["w"].heldData() != nil {
+	if sc.vals.Get("w").heldData() != nil {
 		t.Errorf("MatMul read the weight's elements; only its shape is needed")
 	}
 }
@@ -246,7 +246,7 @@ func TestWorkBudgetGrowsWithTheFile(t *testing.T) {
 		t.Errorf("unresolved: %v", inf.Unresolved)
 	}
 	e := newEngine(m, InferOptions{})
-	sc := &scope{vals: map[string]*Value{"x0": {Type: m.Graph.Inputs[0].Type}}}
+	sc := &scope{vals: &Values{byName: map[string]*Value{"x0": {Type: m.Graph.Inputs[0].Type}}}}
 	if err := e.inferNodes(m.Graph, sc, &trail{seg: "graph", node: -1}); err != nil {
 		t.Fatal(err)
 	}
