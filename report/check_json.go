@@ -14,13 +14,7 @@ import (
 // head figures are null.
 func CheckJSON(w io.Writer, r *budget.Result) error {
 	out := *r
-	out.Models = make([]budget.ModelResult, len(r.Models))
-	for i, m := range r.Models {
-		if m.Checks == nil {
-			m.Checks = []budget.Check{}
-		}
-		out.Models[i] = m
-	}
+	out.Models = []budget.ModelResult{} // written one by one (writeJSONList)
 	out.Verdict = verdict(r)
 	out.BudgetChanges = orEmpty(out.BudgetChanges)
 	out.Waivers = orEmpty(out.Waivers)
@@ -32,7 +26,15 @@ func CheckJSON(w io.Writer, r *budget.Result) error {
 		*budget.Result
 	}{CheckSchema, &out}
 	// Reasons read "ram 498 KiB > limit …", not "\u003e".
-	return writeJSON(w, doc, false)
+	return writeJSONList(w, doc, "models", len(r.Models), func(i int) any {
+		m := &r.Models[i]
+		if m.Checks != nil {
+			return m
+		}
+		c := *m
+		c.Checks = []budget.Check{}
+		return &c
+	}, false)
 }
 
 func orEmpty[T any](s []T) []T {
