@@ -97,6 +97,27 @@ func NewCache(r *Repo) *Cache {
 // rewrites. The per-layer view is no
 // part of it: it is kept as the entry's detail, beside the figures.
 func keyOf(blob string, opts measure.Options) cacheKey {
+	return keyWith(blob, keyOptions(opts))
+}
+
+// keyWith is keyOf for options written by keyOptions, once for the many
+// blobs measured with them.
+func keyWith(blob, options string) cacheKey {
+	b := make([]byte, 0, len(AnalyzerVersion)+len(entryFormat)+len(blob)+len(options)+3)
+	for i, part := range []string{AnalyzerVersion, entryFormat, blob, options} {
+		if i > 0 {
+			b = append(b, 0)
+		}
+		b = append(b, part...)
+	}
+	sum := sha256.Sum256(b)
+	k := cacheKey{blob: blob, options: options}
+	copy(k.digest[:], sum[:])
+	return k
+}
+
+// keyOptions writes every option that changes the figures, canonically.
+func keyOptions(opts measure.Options) string {
 	names := make([]string, 0, len(opts.Dims))
 	for k := range opts.Dims {
 		names = append(names, k)
@@ -125,11 +146,7 @@ func keyOf(blob string, opts measure.Options) cacheKey {
 		fmt.Fprintf(&o, "digests\x00")
 	}
 	fmt.Fprintf(&o, "deploy=%+v", deploy)
-	h := sha256.New()
-	fmt.Fprintf(h, "%s\x00%s\x00%s\x00%s", AnalyzerVersion, entryFormat, blob, o.String())
-	k := cacheKey{blob: blob, options: o.String()}
-	copy(k.digest[:], h.Sum(nil))
-	return k
+	return o.String()
 }
 
 // Get returns the cached figures and the dependencies they were read with
@@ -164,17 +181,21 @@ func (c *Cache) Get(k cacheKey, layers bool, depOK func(path, blob string) bool)
 // read decodes one entry, refusing one larger than limit bytes, one that
 // does not decode, and one made for another key.
 func (c *Cache) read(k cacheKey, kind byte, limit int64) (*cacheEntry, bool) {
-	b, ok := c.lookup(k.pack(kind), limit)
-	if !ok {
-		return nil, false
-	}
 	var e *cacheEntry
 	if kind == kindFigures {
+		s, ok := c.lookupString(k.pack(kind), limit)
+		if !ok {
+			return nil, false
+		}
 		var err error
-		if e, err = decodeFigures(b); err != nil {
+		if e, err = decodeFigures(s); err != nil {
 			return nil, false
 		}
 	} else {
+		b, ok := c.lookup(k.pack(kind), limit)
+		if !ok {
+			return nil, false
+		}
 		e = &cacheEntry{}
 		if json.Unmarshal(b, e) != nil {
 			return nil, false

@@ -2,6 +2,7 @@ package check
 
 import (
 	"bytes"
+	"crypto/sha256"
 	"encoding/binary"
 	"errors"
 	"math/rand"
@@ -127,7 +128,7 @@ func TestCacheEntryForgedForAnotherBlob(t *testing.T) {
 		{"version", func(e *cacheEntry) { e.Version = "loadline-figures-0" }},
 		{"options", func(e *cacheEntry) { e.Options = "batch=4\x00" + e.Options }},
 	} {
-		e, err := decodeFigures(aFig)
+		e, err := decodeFigures(string(aFig))
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -305,5 +306,21 @@ func TestBlobReadersAgree(t *testing.T) {
 			}
 			r.Close()
 		}
+	}
+}
+
+// TestCacheKeyDigest: a key's digest is the first 20 bytes of the SHA-256
+// of the analyzer version, the entry form, the blob id and the options,
+// joined by NUL bytes (hand-worked from the definition, hashed here with
+// crypto/sha256 on the joined text), whether made by keyOf or by keyWith.
+func TestCacheKeyDigest(t *testing.T) {
+	opts := measure.Options{Dims: map[string]int64{"batch": 1, "seq": 8}, Lenient: true}
+	k := keyOf(fuzzBlob, opts)
+	if k.options != keyOptions(opts) || !strings.HasPrefix(k.options, "batch=1\x00seq=8\x00lenient\x00") {
+		t.Fatalf("options %q", k.options)
+	}
+	sum := sha256.Sum256([]byte(AnalyzerVersion + "\x00" + entryFormat + "\x00" + fuzzBlob + "\x00" + k.options))
+	if !bytes.Equal(k.digest[:], sum[:20]) || keyWith(fuzzBlob, k.options) != k {
+		t.Errorf("digest %x, want %x", k.digest, sum[:20])
 	}
 }

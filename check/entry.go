@@ -151,11 +151,10 @@ func encodeFigures(e *cacheEntry) ([]byte, error) {
 	return w.b, nil
 }
 
-// decodeFigures reads a figures entry; any error is a miss.
-func decodeFigures(b []byte) (*cacheEntry, error) {
-	// One string holds the entry's text: the strings read from it are
-	// slices of it, not one allocation each.
-	r := entryReader{s: string(b)}
+// decodeFigures reads a figures entry; any error is a miss. The strings
+// of the figures are slices of s, not one allocation each.
+func decodeFigures(s string) (*cacheEntry, error) {
+	r := entryReader{s: s}
 	e := &cacheEntry{Blob: r.str(), Version: r.str(), Options: r.str(), Deps: r.strMap()}
 	m := &measure.Metrics{}
 	e.Metrics = m

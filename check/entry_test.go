@@ -103,7 +103,7 @@ func TestFiguresEntryKeepsEveryField(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	out, err := decodeFigures(b)
+	out, err := decodeFigures(string(b))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -114,11 +114,11 @@ func TestFiguresEntryKeepsEveryField(t *testing.T) {
 	}
 	// Each cut of the entry is an error, never a panic.
 	for n := range len(b) {
-		if _, err := decodeFigures(b[:n]); err == nil {
+		if _, err := decodeFigures(string(b[:n])); err == nil {
 			t.Fatalf("the entry cut to %d of %d bytes was read", n, len(b))
 		}
 	}
-	if _, err := decodeFigures(append(b, 0)); err == nil {
+	if _, err := decodeFigures(string(append(b, 0))); err == nil {
 		t.Fatal("an entry with a byte after it was read")
 	}
 }
@@ -138,7 +138,7 @@ func TestFiguresEntryNilAndEmpty(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			out, err := decodeFigures(b)
+			out, err := decodeFigures(string(b))
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -177,7 +177,7 @@ func TestFiguresEntryRefuses(t *testing.T) {
 		"a varint of 11 bytes":           bytes.Repeat([]byte{0xff}, 11),
 		"a string longer than the entry": append([]byte{0}, binary.AppendUvarint(nil, 1<<30)...),
 	} {
-		if _, err := decodeFigures(append(append([]byte{}, head...), rest...)); err == nil {
+		if _, err := decodeFigures(string(append(append([]byte{}, head...), rest...))); err == nil {
 			t.Errorf("%s: read", name)
 		}
 	}
@@ -191,7 +191,7 @@ func TestFiguresEntryRefuses(t *testing.T) {
 		t.Fatalf("no nodes field in %x", b)
 	}
 	b[at+5] = 2
-	if _, err := decodeFigures(b); err == nil || !strings.Contains(err.Error(), "bool") {
+	if _, err := decodeFigures(string(b)); err == nil || !strings.Contains(err.Error(), "bool") {
 		t.Errorf("a presence byte of 2: %v", err)
 	}
 }
@@ -217,7 +217,7 @@ func TestFiguresEntryCorpus(t *testing.T) {
 			t.Errorf("%s: %v", p, err)
 			continue
 		}
-		out, err := decodeFigures(b)
+		out, err := decodeFigures(string(b))
 		if err != nil {
 			t.Errorf("%s: %v", p, err)
 			continue

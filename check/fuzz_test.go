@@ -152,13 +152,13 @@ func FuzzCacheEntry(f *testing.F) {
 		[]byte(`{"blob":"`+fuzzBlob+`","version":"`+AnalyzerVersion+`","options":`+jsonString(f, k.options)+`,"layers":true,"per_layer":{"layers":[{}],"live_bytes_by_step":[-1]}}`))
 	dir := f.TempDir()
 	f.Fuzz(func(t *testing.T, fig, det []byte) {
-		if e, err := decodeFigures(fig); err == nil {
+		if e, err := decodeFigures(string(fig)); err == nil {
 			again, err := encodeFigures(e)
 			if err != nil {
 				t.Fatalf("figures read from an entry do not encode: %v", err)
 			}
 			// Compared as bytes: a float may be NaN.
-			e2, err := decodeFigures(again)
+			e2, err := decodeFigures(string(again))
 			if err != nil {
 				t.Fatalf("figures encoded again do not read back: %v", err)
 			}

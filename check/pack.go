@@ -135,17 +135,46 @@ func (p *pack) close() {
 // get returns the entry of a key, refusing one longer than limit or
 // outside the file.
 func (p *pack) get(k packKey, limit int64) ([]byte, bool) {
+	s, ok := p.span(k, limit)
+	if !ok {
+		return nil, false
+	}
+	if p.data != nil {
+		return copyMapped(p.data[s.off:s.off+s.n], bytes.Clone)
+	}
+	return p.read(s)
+}
+
+// getString is get for an entry read as text (the figures, entry.go):
+// copied once, into the string.
+func (p *pack) getString(k packKey, limit int64) (string, bool) {
+	s, ok := p.span(k, limit)
+	if !ok {
+		return "", false
+	}
+	if p.data != nil {
+		return copyMapped(p.data[s.off:s.off+s.n], func(b []byte) string { return string(b) })
+	}
+	b, ok := p.read(s)
+	return string(b), ok
+}
+
+// span finds the entry of a key, within the file and no longer than
+// limit.
+func (p *pack) span(k packKey, limit int64) (packSpan, bool) {
 	i := sort.Search(len(p.keys), func(i int) bool { return bytes.Compare(p.keys[i][:], k[:]) >= 0 })
 	if i == len(p.keys) || p.keys[i] != k {
-		return nil, false
+		return packSpan{}, false
 	}
 	s := p.at[i]
-	if s.n > limit || s.off < 0 || s.off > p.size-s.n {
-		return nil, false
+	if s.n > limit || s.off < 0 || s.off > p.size-s.n || p.data != nil && s.off+s.n > int64(len(p.data)) {
+		return packSpan{}, false
 	}
-	if p.data != nil && s.off+s.n <= int64(len(p.data)) {
-		return copyMapped(p.data[s.off : s.off+s.n])
-	}
+	return s, true
+}
+
+// read reads an entry from the file.
+func (p *pack) read(s packSpan) ([]byte, bool) {
 	b := make([]byte, s.n)
 	if _, err := p.f.ReadAt(b, s.off); err != nil {
 		return nil, false
@@ -153,10 +182,11 @@ func (p *pack) get(k packKey, limit int64) ([]byte, bool) {
 	return b, true
 }
 
-// copyMapped copies an entry out of a mapped pack, so that nothing refers
-// to the mapping once it is released. A pack cut short after it was mapped
-// faults on the pages past its end: that entry is a miss, not a crash.
-func copyMapped(b []byte) (out []byte, ok bool) {
+// copyMapped copies an entry out of a mapped pack with cp, so that nothing
+// refers to the mapping once it is released. A pack cut short after it
+// was mapped faults on the pages past its end: that entry is a miss, not
+// a crash.
+func copyMapped[T any](b []byte, cp func([]byte) T) (out T, ok bool) {
 	defer debug.SetPanicOnFault(debug.SetPanicOnFault(true))
 	defer func() {
 		if r := recover(); r != nil {
@@ -168,10 +198,11 @@ func copyMapped(b []byte) (out []byte, ok bool) {
 			}); !fault {
 				panic(r)
 			}
-			out, ok = nil, false
+			var zero T
+			out, ok = zero, false
 		}
 	}()
-	return bytes.Clone(b), true
+	return cp(b), true
 }
 
 // openRegular opens a regular file for reading. A symbolic link, a device
@@ -261,6 +292,23 @@ func (c *Cache) lookup(k packKey, limit int64) ([]byte, bool) {
 		}
 	}
 	return nil, false
+}
+
+// lookupString is lookup for an entry read as text (the figures).
+func (c *Cache) lookupString(k packKey, limit int64) (string, bool) {
+	c.mu.Lock()
+	b, ok := c.pending[k]
+	c.mu.Unlock()
+	if ok {
+		return string(b), true
+	}
+	c.open()
+	for _, p := range c.packs {
+		if s, ok := p.getString(k, limit); ok {
+			return s, true
+		}
+	}
+	return "", false
 }
 
 // Flush writes the entries of this run as one new pack, and merges the

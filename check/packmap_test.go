@@ -38,6 +38,9 @@ func TestMappedPackTruncated(t *testing.T) {
 	if got, ok := pk.get(last, 2<<20); ok {
 		t.Fatalf("an entry past the cut was read: %d bytes", len(got))
 	}
+	if got, ok := pk.getString(last, 2<<20); ok {
+		t.Fatalf("an entry past the cut was read as text: %d bytes", len(got))
+	}
 	if string(b) != "first" {
 		t.Errorf("the entry read before the cut changed: %q", b)
 	}

@@ -52,6 +52,7 @@ type measured struct {
 // in memory at a time.
 func measureBlobs(jobs []blobJob, opts measure.Options, cache *Cache, stats *Stats) []measured {
 	out := make([]measured, len(jobs))
+	options := keyOptions(opts)
 	next := make(chan int)
 	var wg sync.WaitGroup
 	for range min(len(jobs), max(1, runtime.NumCPU())) {
@@ -60,7 +61,7 @@ func measureBlobs(jobs []blobJob, opts measure.Options, cache *Cache, stats *Sta
 			defer wg.Done()
 			var buf []byte
 			for i := range next {
-				out[i] = measureBlob(jobs[i].snap, jobs[i].path, opts, cache, stats, &buf)
+				out[i] = measureBlob(jobs[i].snap, jobs[i].path, opts, options, cache, stats, &buf)
 			}
 		}()
 	}
@@ -74,14 +75,14 @@ func measureBlobs(jobs []blobJob, opts measure.Options, cache *Cache, stats *Sta
 
 // measureBlob reads one model from the git object store at a snapshot
 // (never from the working tree: what is checked is what is committed) into
-// buf and measures it, using the cache when it can. Nothing returned
-// refers to buf.
-func measureBlob(s *Snapshot, p string, opts measure.Options, cache *Cache, stats *Stats, buf *[]byte) measured {
+// buf and measures it, using the cache when it can (options are opts as
+// keyOptions writes them). Nothing returned refers to buf.
+func measureBlob(s *Snapshot, p string, opts measure.Options, options string, cache *Cache, stats *Stats, buf *[]byte) measured {
 	h, ok := s.Hash(p)
 	if !ok {
 		return measured{Metrics: failed(p, s.notThere(p))}
 	}
-	key := keyOf(h.String(), opts)
+	key := keyWith(h.String(), options)
 	// External data is resolved against the model's own folder, and the
 	// same blob may sit in two folders with different data beside it: the
 	// cache records dependencies relative to the folder and checks them
