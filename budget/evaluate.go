@@ -180,7 +180,7 @@ func (f *File) Evaluate(models []Input, opts EvalOptions) *Result {
 	}
 	y, m, d := today.Date()
 	day := time.Date(y, m, d, 0, 0, 0, 0, time.UTC)
-	res := &Result{Models: []ModelResult{}, BudgetChanges: []BudgetChange{}, Waivers: []Waiver{},
+	res := &Result{Models: make([]ModelResult, 0, len(models)), BudgetChanges: []BudgetChange{}, Waivers: []Waiver{},
 		Problems: []string{}, Findings: []Finding{}}
 	e := &evaluation{file: f, strict: opts.Strict, res: res}
 	for _, w := range f.Waivers {

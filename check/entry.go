@@ -4,6 +4,7 @@ import (
 	"encoding/binary"
 	"errors"
 	"fmt"
+	"maps"
 	"math"
 	"slices"
 
@@ -104,7 +105,7 @@ func encodeFigures(e *cacheEntry) ([]byte, error) {
 	}
 	w.int(m.GeneratedParamBytes)
 	w.count(len(m.Opsets), m.Opsets == nil)
-	for _, k := range sortedKeys(m.Opsets) {
+	for _, k := range slices.Sorted(maps.Keys(m.Opsets)) {
 		w.str(k)
 		w.int(m.Opsets[k])
 	}
@@ -126,7 +127,7 @@ func encodeFigures(e *cacheEntry) ([]byte, error) {
 	w.float(d.ArenaRatio)
 	w.float(d.DeployedRatio)
 	w.count(len(d.Views), d.Views == nil)
-	for _, k := range sortedKeys(d.Views) {
+	for _, k := range slices.Sorted(maps.Keys(d.Views)) {
 		v := d.Views[k]
 		w.str(k)
 		w.int(int64(v.PeakStep))
@@ -308,7 +309,7 @@ func (w *entryWriter) ints(s []int64) {
 
 func (w *entryWriter) strMap(m map[string]string) {
 	w.count(len(m), m == nil)
-	for _, k := range sortedKeys(m) {
+	for _, k := range slices.Sorted(maps.Keys(m)) {
 		w.str(k)
 		w.str(m[k])
 	}
@@ -339,15 +340,6 @@ func (w *entryWriter) ios(list []measure.IOInfo) error {
 		}
 	}
 	return nil
-}
-
-func sortedKeys[V any](m map[string]V) []string {
-	keys := make([]string, 0, len(m))
-	for k := range m {
-		keys = append(keys, k)
-	}
-	slices.Sort(keys)
-	return keys
 }
 
 // entryReader reads the parts of an entry from s, what is left of it.

@@ -751,8 +751,8 @@ func dropUnreadData(changes []FileChange, pairs []pair, all []FileChange, metric
 		}
 		return false
 	}
-	var keptChanges []FileChange
-	var keptPairs []pair
+	keptChanges := make([]FileChange, 0, len(changes))
+	keptPairs := make([]pair, 0, len(changes))
 	for i, c := range changes {
 		if c.viaData && !reads(pairs[i].head) && !reads(pairs[i].base) {
 			continue
