@@ -63,20 +63,16 @@ func DetailOf(m *measure.Metrics) *budget.Detail {
 		return nil
 	}
 	d := &budget.Detail{LiveBytes: m.MemoryDetail.LiveBytesByStep, PeakStep: m.MemoryDetail.PeakStep}
-	byMACs := append([]measure.Layer{}, m.Layers...)
-	sort.SliceStable(byMACs, func(i, j int) bool { return byMACs[i].MACs > byMACs[j].MACs })
-	for _, l := range byMACs[:min(5, len(byMACs))] {
-		if l.MACs > 0 {
+	for _, i := range measure.TopLayers(m.Layers, 5, func(l *measure.Layer) int64 { return l.MACs }) {
+		if l := &m.Layers[i]; l.MACs > 0 {
 			d.TopMACs = append(d.TopMACs, budget.Layer{Node: l.Node, Op: l.Op, Value: l.MACs})
 		}
 	}
 	// The largest activations: the tensors the nodes write, by their own
 	// bytes (constants and statically known outputs are not planned, so
 	// they have none).
-	byMem := append([]measure.Layer{}, m.Layers...)
-	sort.SliceStable(byMem, func(i, j int) bool { return byMem[i].Bytes > byMem[j].Bytes })
-	for _, l := range byMem[:min(5, len(byMem))] {
-		if l.Bytes > 0 {
+	for _, i := range measure.TopLayers(m.Layers, 5, func(l *measure.Layer) int64 { return l.Bytes }) {
+		if l := &m.Layers[i]; l.Bytes > 0 {
 			d.TopMemory = append(d.TopMemory, budget.Layer{Node: l.Node, Op: l.Op, Value: l.Bytes})
 		}
 	}

@@ -1,6 +1,10 @@
 package measure
 
-import "github.com/loadline/loadline/model"
+import (
+	"slices"
+
+	"github.com/loadline/loadline/model"
+)
 
 // Layer is one node of the main graph in the per-layer view: what it
 // computes, what its first output costs in memory, how much is live at its
@@ -291,4 +295,29 @@ func elementsOf(v *Value) int64 {
 		return e
 	}
 	return 0
+}
+
+// TopLayers is the positions of the k layers with the largest key, largest
+// first, an earlier layer first on a tie (a stable sort's order), picked
+// in one pass: sorting a copy of every layer to show five was most of the
+// time of a large graph's per-layer report. Reports' "top" lists use it.
+func TopLayers(ls []Layer, k int, key func(*Layer) int64) []int {
+	best := make([]int, 0, k+1)
+	for i := range ls {
+		v := key(&ls[i])
+		if len(best) == k && v <= key(&ls[best[k-1]]) {
+			continue
+		}
+		// After every kept layer whose key is at least v: on a tie the
+		// earlier layer stays ahead.
+		at := len(best)
+		for at > 0 && key(&ls[best[at-1]]) < v {
+			at--
+		}
+		best = slices.Insert(best, at, i)
+		if len(best) > k {
+			best = best[:k]
+		}
+	}
+	return best
 }

@@ -6,7 +6,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"sort"
 	"strings"
 	"text/tabwriter"
 
@@ -229,21 +228,20 @@ func layersText(w io.Writer, m *measure.Metrics) {
 		fmt.Fprintf(tw, "  %d\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t\n", l.Step, l.Node, l.Op, l.Shape, Count(l.MACs), Bytes(l.Bytes), Bytes(l.LiveBytes), off(l.Offset), dl, do)
 	}
 	tw.Flush()
-	top := func(title string, key func(measure.Layer) int64, unit func(int64) string) {
-		ls := append([]measure.Layer{}, m.Layers...)
-		sort.SliceStable(ls, func(i, j int) bool { return key(ls[i]) > key(ls[j]) })
+	top := func(title string, key func(*measure.Layer) int64, unit func(int64) string) {
 		fmt.Fprintf(w, "\n  top %s\n", title)
-		for _, l := range ls[:min(5, len(ls))] {
+		for _, i := range measure.TopLayers(m.Layers, 5, key) {
+			l := &m.Layers[i]
 			if key(l) == 0 {
 				break
 			}
 			fmt.Fprintf(w, "    %-10s %s (%s, step %d)\n", unit(key(l)), l.Node, l.Op, l.Step)
 		}
 	}
-	top("MACs", func(l measure.Layer) int64 { return l.MACs }, Count)
-	top("activations (each node's output, own bytes)", func(l measure.Layer) int64 { return l.Bytes }, Bytes)
-	top("live memory (graph view)", func(l measure.Layer) int64 { return l.LiveBytes }, Bytes)
-	top("live memory (deployed view)", func(l measure.Layer) int64 { return l.Views[measure.ViewDeployed].LiveBytes }, Bytes)
+	top("MACs", func(l *measure.Layer) int64 { return l.MACs }, Count)
+	top("activations (each node's output, own bytes)", func(l *measure.Layer) int64 { return l.Bytes }, Bytes)
+	top("live memory (graph view)", func(l *measure.Layer) int64 { return l.LiveBytes }, Bytes)
+	top("live memory (deployed view)", func(l *measure.Layer) int64 { return l.Views[measure.ViewDeployed].LiveBytes }, Bytes)
 	for _, name := range []string{measure.ViewGraph, measure.ViewDeployed, "runtime"} {
 		v, ok := m.MemoryDetail.Views[name]
 		if !ok {
