@@ -142,7 +142,7 @@ func addLayerView(layers []Layer, g *model.Graph, name string, plan *MemoryPlan)
 	for i := range layers {
 		l := &layers[i]
 		if l.Views == nil {
-			l.Views = map[string]LayerView{}
+			l.Views = make(map[string]LayerView, 3) // graph, deployed and a runtime's
 		}
 		v := LayerView{Offset: -1}
 		if l.Step < len(plan.LiveBytesByStep) {
@@ -235,7 +235,6 @@ var depthwiseOps = map[string]bool{"Conv": true, "ConvInteger": true, "QLinearCo
 // a layer's weight bytes and activation bytes (README "Conventions",
 // `loadline --help`), which the device cost model's memory term reads.
 func traffic(l *Layer, n *model.Node, vals *Values) {
-	seen := map[string]bool{}
 	for i, name := range n.Inputs {
 		v := vals.Get(name)
 		if name == "" || v == nil || v.Absent {
@@ -244,10 +243,9 @@ func traffic(l *Layer, n *model.Node, vals *Values) {
 		if i == 0 {
 			l.InElements = elementsOf(v)
 		}
-		if seen[name] {
-			continue
+		if slices.Contains(n.Inputs[:i], name) {
+			continue // counted once per node; a node has a handful of inputs
 		}
-		seen[name] = true
 		b, _ := tensorBytes(v)
 		if v.Weight {
 			l.WeightBytes += b
