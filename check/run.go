@@ -430,10 +430,11 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 		if c.OldPath != "" && !covered(c.Path) {
 			rulePath = c.OldPath // moved out of every rule: judged by its old one
 		}
+		bound := dimsFor(rulePath) // read only: both sides share it
 		if c.Kind != "removed" {
 			pairs[i].head = len(jobs)
 			jobs = append(jobs, blobJob{rg.Head, c.Path})
-			dims = append(dims, dimsFor(rulePath))
+			dims = append(dims, bound)
 		}
 		if c.Kind != "added" && c.Kind != string(budget.Unchanged) {
 			old := c.Path
@@ -444,7 +445,7 @@ func runRange(r *Repo, rg *Range, o Options) (*budget.Result, *Stats, error) {
 			jobs = append(jobs, blobJob{rg.Base, old})
 			// Both sides are measured with the dims of the head's rule, so
 			// that they compare like with like.
-			dims = append(dims, dimsFor(rulePath))
+			dims = append(dims, bound)
 		}
 	}
 	metrics, deps := measureJobs(jobs, dims, runsTogether(inForce), o.Detail || withTarget(files...), cache, stats)
@@ -672,8 +673,13 @@ func measureJobs(jobs []blobJob, dims []*boundSet, digests, layers bool, cache *
 	deps := make([][]string, len(jobs))
 	groups := map[string][]int{}
 	var order []string
+	keys := map[*boundSet]string{} // a set shared by both sides of a model is keyed once
 	for i, d := range dims {
-		k := d.key()
+		k, ok := keys[d]
+		if !ok {
+			k = d.key()
+			keys[d] = k
+		}
 		if _, ok := groups[k]; !ok {
 			order = append(order, k)
 		}
