@@ -15,6 +15,7 @@ import (
 // no value for those in this graph: vals[id] is nil, as a look-up by name
 // in the graph's own values finds nothing).
 type graphIndex struct {
+	g     *model.Graph // the graph numbered
 	ids   map[string]int32
 	names []string
 	// vals holds, by number, what inference found of each value.
@@ -105,7 +106,7 @@ func numberGraph(g *model.Graph) *graphIndex {
 		nOut += len(n.Outputs)
 	}
 	size := len(g.Inputs) + len(g.Initializers) + nOut + len(g.Outputs) + len(g.Sparse)
-	x := &graphIndex{ids: make(map[string]int32, size), names: make([]string, 0, size),
+	x := &graphIndex{g: g, ids: make(map[string]int32, size), names: make([]string, 0, size),
 		in: make([]int32, 0, nIn), out: make([]int32, 0, nOut),
 		inAt: make([]int32, 0, len(g.Nodes)+1), outAt: make([]int32, 0, len(g.Nodes)+1)}
 	number := func(name string) int32 {

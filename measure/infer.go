@@ -377,13 +377,24 @@ func withDeclared(v *Value, t model.Type) *Value {
 // each node's work to the engine's budget (work.go).
 func (e *engine) inferNodes(g *model.Graph, sc *scope, path *trail) error {
 	decl := e.declaredTypes(g)
+	// The graph whose values sc keeps by number (the main graph): each
+	// node's inputs and outputs are read and written by their numbers.
+	var x *graphIndex
+	if sc.vals.x != nil && sc.vals.x.g == g {
+		x = sc.vals.x
+	}
 	for i, n := range g.Nodes {
 		ins := make([]*Value, len(n.Inputs))
 		for j, name := range n.Inputs {
 			if name == "" {
 				continue
 			}
-			v := sc.lookup(name)
+			var v *Value
+			if x != nil {
+				v = x.vals[x.ins(i)[j]]
+			} else {
+				v = sc.lookup(name)
+			}
 			if v == nil {
 				return fmt.Errorf("%s.node[%d] (%s %q) reads %q, which no earlier node, graph input or initializer provides: the graph has a cycle or is not in topological order", path, i, n.Op, n.Name, name)
 			}
@@ -437,7 +448,11 @@ func (e *engine) inferNodes(g *model.Graph, sc *scope, path *trail) error {
 			if t, ok := decl[name]; ok {
 				v = withDeclared(v, t)
 			}
-			sc.vals.set(name, v)
+			if x != nil {
+				x.vals[x.outs(i)[j]] = v
+			} else {
+				sc.vals.set(name, v)
+			}
 		}
 	}
 	return nil
