@@ -4,8 +4,11 @@ package check
 
 import (
 	"bytes"
+	"fmt"
 	"os"
 	"testing"
+
+	"github.com/loadline/loadline/measure"
 )
 
 // TestMappedPackTruncated: a pack cut short after a run mapped it faults
@@ -43,5 +46,51 @@ func TestMappedPackTruncated(t *testing.T) {
 	}
 	if string(b) != "first" {
 		t.Errorf("the entry read before the cut changed: %q", b)
+	}
+}
+
+// TestCachePacksMerged: when more than maxPacks packs pile up, the run
+// that writes one more merges them into one (reading every entry of every
+// mapped pack), and every model's figures, with their per-layer view, are
+// still found, equal to those first measured.
+func TestCachePacksMerged(t *testing.T) {
+	g := newGitRepo(t)
+	const n = maxPacks + 2
+	for i := range n {
+		g.write(fmt.Sprintf("m%d.onnx", i), smallModel(t, int64(4+i)))
+	}
+	g.commit("models")
+	r, s := snapshotAt(t, g.dir, "HEAD")
+	var jobs []blobJob
+	var first []int64
+	for i := range n {
+		j := blobJob{s, fmt.Sprintf("m%d.onnx", i)}
+		jobs = append(jobs, j)
+		out, st := cachedRun(r, []blobJob{j}) // one new pack each
+		if st.Measured.Load() != 1 {
+			t.Fatalf("%s: measured %d", j.path, st.Measured.Load())
+		}
+		first = append(first, out[0].Params)
+		if got := len(NewCache(r).packPaths()); got > maxPacks {
+			t.Fatalf("after %d runs, %d packs (at most %d before a merge)", i+1, got, maxPacks)
+		}
+	}
+	if got := len(NewCache(r).packPaths()); got >= n {
+		t.Fatalf("%d packs after %d runs: never merged", got, n)
+	}
+	// One cache reads every model from the merged packs, twice.
+	c := NewCache(r)
+	var st Stats
+	got := measureBlobs(jobs, measure.Options{Layers: true}, c, &st)
+	c.Flush()
+	again := measureBlobs(jobs, measure.Options{Layers: true}, c, &st)
+	c.Close()
+	if st.Measured.Load() != 0 || st.CacheHits.Load() != 2*n {
+		t.Fatalf("measured %d, hits %d; want all %d models from the cache twice", st.Measured.Load(), st.CacheHits.Load(), n)
+	}
+	for i := range got {
+		if got[i].Params != first[i] || again[i].Params != first[i] || len(got[i].Layers) == 0 {
+			t.Errorf("%s: params %d and %d, %d layers; first measured %d", jobs[i].path, got[i].Params, again[i].Params, len(got[i].Layers), first[i])
+		}
 	}
 }
