@@ -32,11 +32,16 @@ ll="$work/loadline"
 py=/usr/bin/python3
 "$py" -c 'import onnx' 2>/dev/null || { echo "python3 with onnx is needed (apt install python3-onnx)" >&2; exit 3; }
 
-# run CMD...: one run; prints "wall_seconds peak_kib".
+# run CMD...: one run; prints "wall_seconds peak_kib". The wall time is
+# taken here to the millisecond (/usr/bin/time gives hundredths, too coarse
+# for runs of a few hundredths); /usr/bin/time gives the peak memory.
 run() {
-  /usr/bin/time -f '%e %M' -o "$work/time" "$@" >/dev/null 2>"$work/stderr" || {
+  local t0 t1
+  t0=$(date +%s%N)
+  /usr/bin/time -f '%M' -o "$work/time" "$@" >/dev/null 2>"$work/stderr" || {
     echo "failed: $*" >&2; cat "$work/stderr" >&2; exit 1; }
-  cat "$work/time"
+  t1=$(date +%s%N)
+  echo "$(awk -v a="$t0" -v b="$t1" 'BEGIN {printf "%.3f", (b - a) / 1e9}') $(cat "$work/time")"
 }
 # median of the numbers on stdin
 median() { sort -g | awk '{a[NR]=$1} END {print a[int((NR+1)/2)]}'; }
@@ -92,8 +97,10 @@ machine="$(nproc) cores ($(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | s
 section=$(cat <<EOF
 Measured by \`scripts/bench-speed.sh\` on $(date -u +%Y-%m-%d), on $machine, with
 $(go version | cut -d' ' -f3) and onnx $("$py" -c 'import onnx; print(onnx.__version__)'): medians of $runs runs of the whole
-process, commands compared run in turn, peak resident memory from \`/usr/bin/time\`. The
-machine is shared, so quote the ratios rather than the seconds.
+process, commands compared run in turn, peak resident memory from \`/usr/bin/time\`. Peak
+resident memory counts the pages of a memory-mapped model file that were read: they are the
+page cache's, shared, not memory loadline allocated (on the large model they are nearly all
+of it). The machine is shared, so quote the ratios rather than the seconds.
 
 | what | loadline | beside it | ratio |
 | --- | --- | --- | --- |
