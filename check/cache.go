@@ -1,6 +1,7 @@
 package check
 
 import (
+	"bytes"
 	"crypto/sha256"
 	"encoding/json"
 	"fmt"
@@ -205,6 +206,55 @@ func (c *Cache) read(k cacheKey, kind byte, limit int64) (*cacheEntry, bool) {
 		return nil, false // corrupt, stale or forged for another key: measured again and rewritten
 	}
 	return e, true
+}
+
+// entryCurrent reports whether b, read under key k, is an entry this
+// version would read: its own blob and options give k again under the
+// current analyzer version and entry format (keyWith). Only the entry's
+// head is read: a figures entry's first three strings, a per-layer
+// entry's first three JSON members.
+func entryCurrent(k packKey, b []byte) bool {
+	var blob, version, options string
+	switch k[packKeyLen-1] {
+	case kindFigures:
+		r := entryReader{s: string(b)}
+		blob, version, options = r.str(), r.str(), r.str()
+		if r.err != nil {
+			return false
+		}
+	case kindDetail:
+		head, ok := jsonHead(b, "blob", "version", "options")
+		if !ok {
+			return false
+		}
+		blob, version, options = head[0], head[1], head[2]
+	default:
+		return false
+	}
+	return version == AnalyzerVersion && keyWith(blob, options).pack(k[packKeyLen-1]) == k
+}
+
+// jsonHead reads the string members names, in that order, at the start
+// of the JSON object b, without reading the rest of it.
+func jsonHead(b []byte, names ...string) ([]string, bool) {
+	d := json.NewDecoder(bytes.NewReader(b))
+	if t, err := d.Token(); err != nil || t != json.Delim('{') {
+		return nil, false
+	}
+	out := make([]string, len(names))
+	for i, name := range names {
+		key, err := d.Token()
+		if err != nil || key != name {
+			return nil, false
+		}
+		v, err := d.Token()
+		s, isString := v.(string)
+		if err != nil || !isString {
+			return nil, false
+		}
+		out[i] = s
+	}
+	return out, true
 }
 
 // Put keeps figures, with layers (measured with the per-layer view) in two

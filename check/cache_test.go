@@ -324,3 +324,71 @@ func TestCacheKeyDigest(t *testing.T) {
 		t.Errorf("digest %x, want %x", k.digest, sum[:20])
 	}
 }
+
+// TestMergeKeepsOnlyCurrentEntries: when packs are merged, an entry made
+// by an earlier analyzer version (under the key that version gave it), one
+// whose head names another key than the one it is filed under, and one
+// that does not decode are left behind; the current entries, figures and
+// per-layer view, are kept and still read.
+func TestMergeKeepsOnlyCurrentEntries(t *testing.T) {
+	dir := t.TempDir()
+	figures := measure.Metrics{Format: "onnx", Params: 7, Inputs: []measure.IOInfo{}, Outputs: []measure.IOInfo{}, Unresolved: []measure.Unresolved{}}
+	// The key an earlier version gave blob "old": keyWith's digest with
+	// its version string in place of AnalyzerVersion.
+	oldVersion := "loadline-figures-0"
+	sum := sha256.Sum256([]byte(oldVersion + "\x00" + entryFormat + "\x00old\x00opts"))
+	var old cacheKey
+	copy(old.digest[:], sum[:])
+	oldFig, err := encodeFigures(&cacheEntry{Blob: "old", Version: oldVersion, Options: "opts", Metrics: &figures})
+	if err != nil {
+		t.Fatal(err)
+	}
+	oldDetail := []byte(`{"blob":"old","version":"` + oldVersion + `","options":"opts","layers":true,"per_layer":{"layers":[],"live_bytes_by_step":[]}}`)
+	// Filed under blob "elsewhere"'s key, but made for blob "other".
+	misfiled, err := encodeFigures(&cacheEntry{Blob: "other", Version: AnalyzerVersion, Options: "opts", Metrics: &figures})
+	if err != nil {
+		t.Fatal(err)
+	}
+	elsewhere := keyWith("elsewhere", "opts")
+	garbled := keyWith("garbled", "opts")
+	stale := map[packKey][]byte{
+		old.pack(kindFigures): oldFig, old.pack(kindDetail): oldDetail,
+		elsewhere.pack(kindFigures): misfiled, garbled.pack(kindFigures): []byte("\xff\xff"),
+	}
+	for range maxPacks {
+		if _, err := writePack(dir, stale); err != nil {
+			t.Fatal(err)
+		}
+	}
+	// One more run's pack makes the merge.
+	cur := keyWith("current", "opts")
+	c := &Cache{Dir: dir}
+	withLayers := figures
+	withLayers.Layers = []measure.Layer{{Step: 0, Node: "n", Op: "Relu", Offset: -1}}
+	withLayers.MemoryDetail.LiveBytesByStep = []int64{64}
+	c.Put(cur, &withLayers, nil, true)
+	c.Close()
+
+	paths := (&Cache{Dir: dir}).packPaths()
+	if len(paths) != 1 {
+		t.Fatalf("%d packs after the merge, want 1", len(paths))
+	}
+	pk, err := openPack(paths[0])
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer pk.close()
+	want := map[packKey]bool{cur.pack(kindFigures): true, cur.pack(kindDetail): true}
+	if len(pk.keys) != len(want) {
+		t.Errorf("merged pack holds %d entries, want the %d current ones", len(pk.keys), len(want))
+	}
+	for _, k := range pk.keys {
+		if !want[k] {
+			t.Errorf("merged pack kept entry %x, which is not current", k)
+		}
+	}
+	got, _ := (&Cache{Dir: dir}).Get(cur, true, func(string, string) bool { return true })
+	if got == nil || got.Params != 7 || len(got.Layers) != 1 {
+		t.Fatalf("current entry after the merge: %+v", got)
+	}
+}

@@ -8,6 +8,7 @@ import (
 	"os"
 	"path"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
@@ -101,12 +102,13 @@ func FuzzCachePack(f *testing.F) {
 		if n := int64(len(pk.keys)); n > maxPackEntries || int64(len(packMagic))+4+n*packRecordLen > int64(len(data)) {
 			t.Fatalf("an index of %d records accepted from a file of %d bytes", n, len(data))
 		}
-		// Every entry read in full (as a merge does) is no more than the
-		// file.
+		// Every entry read in full and its head judged (as a merge does)
+		// is no more than the file, and judging it never panics.
 		var total int64
 		for _, key := range pk.keys {
 			if b, ok := pk.get(key, maxDetailEntry); ok {
 				total += int64(len(b))
+				entryCurrent(key, b)
 			}
 		}
 		if total > int64(len(data)) {
@@ -336,6 +338,40 @@ func FuzzLinkTarget(f *testing.F) {
 		}
 		if p == ".." || strings.HasPrefix(p, "../") || strings.HasPrefix(p, "/") || filepath.IsAbs(p) {
 			t.Fatalf("link %q → %q resolved to %q, outside the repository", link, target, p)
+		}
+	})
+}
+
+// FuzzEntryHead: judging whether any bytes filed under a key are a current
+// entry (what a merge keeps) never panics, and accepts only an entry
+// whose head gives the key it is filed under.
+func FuzzEntryHead(f *testing.F) {
+	k := keyWith("blob", "opts")
+	fig, err := encodeFigures(&cacheEntry{Blob: "blob", Version: AnalyzerVersion, Options: "opts", Metrics: &measure.Metrics{}})
+	if err != nil {
+		f.Fatal(err)
+	}
+	f.Add(byte(kindFigures), fig)
+	f.Add(byte(kindDetail), []byte(`{"blob":"blob","version":"`+AnalyzerVersion+`","options":"opts","layers":true}`))
+	f.Add(byte(kindDetail), []byte(`{"blob":"blob","version":[1,2],"options":"opts"}`))
+	f.Add(byte(kindDetail), []byte(`{"blob":`))
+	f.Fuzz(func(t *testing.T, kind byte, b []byte) {
+		pk := k.pack(kind)
+		if !entryCurrent(pk, b) {
+			return
+		}
+		var head []string
+		switch kind {
+		case kindFigures:
+			r := entryReader{s: string(b)}
+			head = []string{r.str(), r.str(), r.str()}
+		case kindDetail:
+			head, _ = jsonHead(b, "blob", "version", "options")
+		default:
+			t.Fatalf("kind %q accepted", kind)
+		}
+		if !slices.Equal(head, []string{"blob", AnalyzerVersion, "opts"}) {
+			t.Fatalf("accepted under blob's key an entry whose head is %q", head)
 		}
 	})
 }

@@ -12,6 +12,7 @@ import (
 	"path/filepath"
 	"runtime"
 	"runtime/debug"
+	"slices"
 	"sort"
 	"strings"
 	"sync"
@@ -337,21 +338,36 @@ func (c *Cache) Flush() {
 		}
 		return
 	}
-	// Merge: every entry of every pack, the newest copy of each key.
-	all := map[packKey][]byte{}
-	for i := len(paths) - 1; i >= 0; i-- {
-		pk, err := openPack(paths[i])
+	// Merge: the newest copy of each key whose entry is current (made by
+	// this analyzer version and entry format for that very key: entries
+	// of earlier versions are never read again, and would otherwise be
+	// carried from merge to merge for ever). The merged pack is written
+	// entry by entry from the packs, not gathered in memory first.
+	var packs []*pack
+	defer func() {
+		for _, pk := range packs {
+			pk.close()
+		}
+	}()
+	from := map[packKey]*pack{}
+	var keys []packKey
+	for _, path := range paths {
+		pk, err := openPack(path)
 		if err != nil {
 			continue
 		}
+		packs = append(packs, pk)
 		for _, k := range pk.keys {
-			if b, ok := pk.get(k, maxDetailEntry); ok && len(all) < maxPackEntries {
-				all[k] = b
+			if _, seen := from[k]; seen || len(keys) >= maxPackEntries {
+				continue
+			}
+			if b, ok := pk.get(k, maxDetailEntry); ok && entryCurrent(k, b) {
+				from[k] = pk
+				keys = append(keys, k)
 			}
 		}
-		pk.close()
 	}
-	if _, err := writePack(c.Dir, all); err != nil {
+	if _, err := writePackFrom(c.Dir, keys, func(k packKey) ([]byte, bool) { return from[k].get(k, maxDetailEntry) }); err != nil {
 		return
 	}
 	// The merged packs go; a run that has one open keeps reading it.
@@ -385,16 +401,30 @@ func writePack(dir string, entries map[packKey][]byte) (string, error) {
 	for k := range entries {
 		keys = append(keys, k)
 	}
-	sort.Slice(keys, func(i, j int) bool { return bytes.Compare(keys[i][:], keys[j][:]) < 0 })
+	return writePackFrom(dir, keys, func(k packKey) ([]byte, bool) { return entries[k], true })
+}
+
+// writePackFrom writes a pack of the entries of keys (distinct), read one
+// at a time by get, twice: once for the index's lengths, once to write
+// them; an entry that cannot be read, or reads differently the second
+// time, fails the write and nothing is left behind.
+func writePackFrom(dir string, keys []packKey, get func(packKey) ([]byte, bool)) (string, error) {
+	slices.SortFunc(keys, func(a, b packKey) int { return bytes.Compare(a[:], b[:]) })
+	lengths := make([]int, len(keys))
 	var head bytes.Buffer
 	head.WriteString(packMagic)
 	binary.Write(&head, binary.LittleEndian, uint32(len(keys)))
 	off := int64(head.Len()) + int64(len(keys))*packRecordLen
-	for _, k := range keys {
+	for i, k := range keys {
+		b, ok := get(k)
+		if !ok {
+			return "", fmt.Errorf("cache entry %x cannot be read", k)
+		}
+		lengths[i] = len(b)
 		head.Write(k[:])
 		binary.Write(&head, binary.LittleEndian, uint64(off))
-		binary.Write(&head, binary.LittleEndian, uint32(len(entries[k])))
-		off += int64(len(entries[k]))
+		binary.Write(&head, binary.LittleEndian, uint32(len(b)))
+		off += int64(len(b))
 	}
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return "", err
@@ -405,10 +435,17 @@ func writePack(dir string, entries map[packKey][]byte) (string, error) {
 	}
 	w := bufio.NewWriterSize(tmp, 1<<16)
 	w.Write(head.Bytes())
-	for _, k := range keys {
-		w.Write(entries[k])
+	for i, k := range keys {
+		b, ok := get(k)
+		if !ok || len(b) != lengths[i] {
+			err = fmt.Errorf("cache entry %x changed while a pack was written", k)
+			break
+		}
+		w.Write(b)
 	}
-	err = w.Flush()
+	if ferr := w.Flush(); err == nil {
+		err = ferr
+	}
 	if cerr := tmp.Close(); err == nil {
 		err = cerr
 	}
