@@ -235,6 +235,7 @@ var depthwiseOps = map[string]bool{"Conv": true, "ConvInteger": true, "QLinearCo
 // a layer's weight bytes and activation bytes (README "Conventions",
 // `loadline --help`), which the device cost model's memory term reads.
 func traffic(l *Layer, n *model.Node, vals *Values) {
+	var seen map[string]bool
 	for i, name := range n.Inputs {
 		v := vals.Get(name)
 		if name == "" || v == nil || v.Absent {
@@ -243,8 +244,8 @@ func traffic(l *Layer, n *model.Node, vals *Values) {
 		if i == 0 {
 			l.InElements = elementsOf(v)
 		}
-		if slices.Contains(n.Inputs[:i], name) {
-			continue // counted once per node; a node has a handful of inputs
+		if countedBefore(n.Inputs, i, &seen) {
+			continue // each input counts once per node
 		}
 		b, _ := tensorBytes(v)
 		if v.Weight {
@@ -284,6 +285,24 @@ func traffic(l *Layer, n *model.Node, vals *Values) {
 	}
 }
 
+// countedBefore reports whether ins[i] is among ins[:i]: by a look along
+// them for the few inputs most nodes have, by a set (made in *seen on
+// the first call that needs it) for a node of many inputs (a Concat or Sum
+// of thousands), whose looks along would cost the square of its inputs.
+func countedBefore(ins []string, i int, seen *map[string]bool) bool {
+	if len(ins) <= 16 {
+		return slices.Contains(ins[:i], ins[i])
+	}
+	if *seen == nil {
+		*seen = make(map[string]bool, len(ins))
+	}
+	if (*seen)[ins[i]] {
+		return true
+	}
+	(*seen)[ins[i]] = true
+	return false
+}
+
 // elementsOf is a tensor value's element count, 0 when not known.
 func elementsOf(v *Value) int64 {
 	if v == nil || v.Type.Kind != model.KindTensor || !v.Type.RankKnown {
@@ -300,6 +319,9 @@ func elementsOf(v *Value) int64 {
 // in one pass: sorting a copy of every layer to show five was most of the
 // time of a large graph's per-layer report. Reports' "top" lists use it.
 func TopLayers(ls []Layer, k int, key func(*Layer) int64) []int {
+	if k <= 0 {
+		return nil
+	}
 	best := make([]int, 0, k+1)
 	for i := range ls {
 		v := key(&ls[i])

@@ -1,6 +1,7 @@
 package measure
 
 import (
+	"fmt"
 	"testing"
 
 	"github.com/loadline/loadline/model"
@@ -141,5 +142,31 @@ func TestLayerTrafficIndexOperands(t *testing.T) {
 		if l.ActivationBytes != want[l.Op] || l.WeightBytes != 0 {
 			t.Errorf("%s: activation %d, weight %d; want %d, 0", l.Op, l.ActivationBytes, l.WeightBytes, want[l.Op])
 		}
+	}
+}
+
+// TestLayerTrafficManyInputs: a node of many inputs (past the handful a
+// look along them serves) counts each distinct input once. Hand-worked:
+// Concat of x0..x19, float32[2] each (8 bytes), then x0 and x5 again:
+// inputs 20 × 8 = 160 bytes, output float32[44] = 176 bytes, 336 in all.
+func TestLayerTrafficManyInputs(t *testing.T) {
+	g := &model.Graph{}
+	var ins []string
+	for i := range 20 {
+		name := fmt.Sprintf("x%d", i)
+		g.Inputs = append(g.Inputs, input(name, model.Float32, model.Known(2)))
+		ins = append(ins, name)
+	}
+	ins = append(ins, "x0", "x5")
+	cat := node("Concat", ins, []string{"y"})
+	cat.Attrs = []*model.Attr{{Name: "axis", Kind: model.AttrInt, Int: 0}}
+	g.Nodes = []*model.Node{cat}
+	g.Outputs = []*model.ValueInfo{{Name: "y"}}
+	m, err := Measure(graphModel(g), 0, Options{Layers: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if l := m.Layers[0]; l.ActivationBytes != 336 {
+		t.Errorf("Concat of 22 inputs (20 distinct): activation bytes %d, want 336", l.ActivationBytes)
 	}
 }

@@ -30,4 +30,7 @@ func TestTopLayersAsStableSort(t *testing.T) {
 			t.Fatalf("trial %d, k %d, keys %v: got %v, want %v", trial, k, ls, got, want)
 		}
 	}
+	if got := TopLayers([]Layer{{MACs: 1}}, 0, func(l *Layer) int64 { return l.MACs }); got != nil {
+		t.Errorf("k 0: %v, want none", got)
+	}
 }
