@@ -208,6 +208,14 @@ func (c *Cache) read(k cacheKey, kind byte, limit int64) (*cacheEntry, bool) {
 	return e, true
 }
 
+// entryLimit is the bound on the entry filed under k, by its kind.
+func entryLimit(k packKey) int64 {
+	if k[packKeyLen-1] == kindFigures {
+		return maxFiguresEntry
+	}
+	return maxDetailEntry
+}
+
 // entryCurrent reports whether b, read under key k, is an entry this
 // version would read: its own blob and options give k again under the
 // current analyzer version and entry format (keyWith). Only the entry's

@@ -361,13 +361,13 @@ func (c *Cache) Flush() {
 			if _, seen := from[k]; seen || len(keys) >= maxPackEntries {
 				continue
 			}
-			if b, ok := pk.get(k, maxDetailEntry); ok && entryCurrent(k, b) {
+			if b, ok := pk.get(k, entryLimit(k)); ok && entryCurrent(k, b) {
 				from[k] = pk
 				keys = append(keys, k)
 			}
 		}
 	}
-	if _, err := writePackFrom(c.Dir, keys, func(k packKey) ([]byte, bool) { return from[k].get(k, maxDetailEntry) }); err != nil {
+	if _, err := writePackFrom(c.Dir, keys, func(k packKey) ([]byte, bool) { return from[k].get(k, entryLimit(k)) }); err != nil {
 		return
 	}
 	// The merged packs go; a run that has one open keeps reading it.
