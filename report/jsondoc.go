@@ -14,9 +14,12 @@ import (
 // indented by two spaces, HTML characters escaped or not as escapeHTML
 // says, and CI command openers in paths written in another JSON spelling
 // of the same string (display.GuardJSON). The document is encoded flat and
-// then indented into a buffer sized once: an indenting encoder grows its
-// buffers step by step, which on a per-layer report of 100,000 nodes (80
-// MB) was most of the time the report took.
+// then indented into a buffer of spillSize, written out whenever it fills
+// at a line's end: an indenting encoder grows its buffers step by step,
+// and indenting a per-layer report of 100,000 nodes (80 MB flat) into one
+// buffer took twice that again, most of the time the report took. A line's
+// end is outside every string, and the guard looks back only within one
+// string, so guarding the pieces guards the document.
 func writeJSON(w io.Writer, v any, escapeHTML bool) error {
 	var flat bytes.Buffer
 	enc := json.NewEncoder(&flat)
@@ -24,11 +27,20 @@ func writeJSON(w io.Writer, v any, escapeHTML bool) error {
 	if err := enc.Encode(v); err != nil {
 		return err
 	}
-	buf := appendIndent(make([]byte, 0, 2*flat.Len()+64), bytes.TrimSuffix(flat.Bytes(), []byte("\n")), "")
-	buf = append(buf, '\n')
-	_, err := w.Write(display.GuardJSON(buf))
+	var err error
+	write := func(b []byte) []byte {
+		if err == nil {
+			_, err = w.Write(display.GuardJSON(b))
+		}
+		return b[:0]
+	}
+	buf := indent(make([]byte, 0, min(2*flat.Len(), spillSize)+64), bytes.TrimSuffix(flat.Bytes(), []byte("\n")), "", write)
+	write(append(buf, '\n'))
 	return err
 }
+
+// spillSize is how much indented JSON writeJSON holds before writing it.
+const spillSize = 256 << 10
 
 // writeJSONList writes doc as writeJSON does, with the n elements that
 // elem gives in place of the empty list doc holds at its top-level key:
@@ -119,8 +131,17 @@ func (b *blocks) add(p []byte) {
 // report of 2,000 models took); src is never anything but the encoder's
 // output, whose validity the encoder guarantees.
 func appendIndent(dst, src []byte, prefix string) []byte {
+	return indent(dst, src, prefix, nil)
+}
+
+// indent is appendIndent, handing dst to spill (which returns what to
+// append to next) at each line's end once it holds spillSize bytes.
+func indent(dst, src []byte, prefix string, spill func([]byte) []byte) []byte {
 	depth := 0
 	newline := func() {
+		if spill != nil && len(dst) >= spillSize {
+			dst = spill(dst)
+		}
 		dst = append(dst, '\n')
 		dst = append(dst, prefix...)
 		for range depth {

@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"github.com/loadline/loadline/budget"
+	"github.com/loadline/loadline/internal/display"
 )
 
 // wholeCheckJSON is the check document written whole by writeJSON, as
@@ -188,4 +189,39 @@ func FuzzAppendIndent(f *testing.F) {
 		}
 		indentAgrees(t, doc)
 	})
+}
+
+// TestWriteJSONInPieces: a document many times spillSize, written in
+// pieces at lines' ends, is byte for byte what encoding/json's own
+// indentation gives, with CI command openers inside strings guarded as
+// in one piece (display.GuardJSON over the whole).
+func TestWriteJSONInPieces(t *testing.T) {
+	type row struct {
+		Name  string            `json:"name"`
+		Sizes []int64           `json:"sizes"`
+		Tags  map[string]string `json:"tags"`
+		Empty []int             `json:"empty"`
+	}
+	var doc struct {
+		Rows []row `json:"rows"`
+	}
+	for i := range 20000 {
+		doc.Rows = append(doc.Rows, row{Name: fmt.Sprintf("##[group]%d ##vso[task] <b>", i), Sizes: []int64{int64(i), -1},
+			Tags: map[string]string{"k": "[v]", "a": `q"##[`}, Empty: []int{}})
+	}
+	var got bytes.Buffer
+	if err := writeJSON(&got, doc, true); err != nil {
+		t.Fatal(err)
+	}
+	want, err := json.MarshalIndent(doc, "", "  ")
+	if err != nil {
+		t.Fatal(err)
+	}
+	want = display.GuardJSON(append(want, '\n'))
+	if got.Len() < 4*spillSize {
+		t.Fatalf("document of %d bytes: not many pieces", got.Len())
+	}
+	if !bytes.Equal(got.Bytes(), want) {
+		t.Fatal("written in pieces, the document differs from encoding/json's indentation")
+	}
 }
