@@ -537,6 +537,7 @@ type runTree struct {
 	size        int
 	cover, part []runList
 	chunks      [][]byteRun
+	chunkSize   int // the size of the last regular chunk
 }
 
 // runList is the runs chunks[c][at : at+n]. Its room is implicit: a list
@@ -544,8 +545,8 @@ type runTree struct {
 // shortens it, roomFor of its current length never exceeds what it has.
 type runList struct{ c, at, n int32 }
 
-// runChunk is the size of a chunk of runs; a list with more room than
-// that has a chunk of its own.
+// runChunk is the largest size of a chunk of runs; a list with more room
+// than that has a chunk of its own.
 const runChunk = 1 << 13
 
 // roomFor is the room given to a list of n runs: the next power of two,
@@ -619,7 +620,10 @@ func (t *runTree) place(n int32) (runList, []byteRun) {
 		t.chunks = append(t.chunks, make([]byteRun, 0, room))
 		c++
 	} else if c < 0 || cap(t.chunks[c])-len(t.chunks[c]) < room {
-		t.chunks = append(t.chunks, make([]byteRun, 0, runChunk))
+		// Chunks double from a small first one: a small graph's tree,
+		// planned twice for each model a check reads, needs a few runs.
+		t.chunkSize = min(runChunk, max(64, room, 2*t.chunkSize))
+		t.chunks = append(t.chunks, make([]byteRun, 0, t.chunkSize))
 		c++
 	}
 	at := len(t.chunks[c])
