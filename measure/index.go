@@ -6,10 +6,11 @@ import (
 	"github.com/loadline/loadline/model"
 )
 
-// graphIndex numbers the values one graph names, so that the passes after
-// inference (the memory planners) keep their per-value records in slices
-// indexed by number rather than in maps keyed by name: on a graph of
-// 100,000 nodes, name look-ups were most of their time. Every name the
+// graphIndex numbers the values one graph names, so that inference (for
+// the main graph, Values) and the passes after it (the memory planners,
+// the costs, the weights) keep their per-value records in slices indexed
+// by number rather than in maps keyed by name: on a graph of 100,000
+// nodes, name look-ups were most of their time. Every name the
 // graph's inputs, initializers, nodes and outputs mention gets a number,
 // names of an enclosing graph that its nodes read included (inference has
 // no value for those in this graph: vals[id] is nil, as a look-up by name

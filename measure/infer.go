@@ -72,9 +72,10 @@ type Inference struct {
 	// Undecided lists the If nodes whose condition was not known, with
 	// the graph inputs it depends on, in the order met.
 	Undecided []UndecidedIf
-	// indexes holds each graph's numbered values (index.go), made when a
-	// pass first asks and shared by the passes after it; mu guards the
-	// map, as Measure may run passes side by side.
+	// indexes holds each graph's numbered values (index.go): the main
+	// graph's, made before inference, which keeps its values by number;
+	// a subgraph's, made when a pass first asks and shared by the passes
+	// after it. mu guards the map, as Measure may run passes side by side.
 	mu      sync.Mutex
 	indexes map[*model.Graph]*graphIndex
 }
