@@ -176,14 +176,7 @@ func (p *catFile) read(h plumbing.Hash, limit int64, buf *[]byte) (data []byte, 
 	if size > limit {
 		return nil, false, fmt.Errorf("%w: %d bytes is larger than loadline reads (%d)", errBlobTooLarge, size, limit)
 	}
-	if buf == nil {
-		data = make([]byte, size)
-	} else {
-		if int64(cap(*buf)) < size {
-			*buf = make([]byte, size)
-		}
-		data = (*buf)[:size]
-	}
+	data = readBuffer(buf, size)
 	if _, err := io.ReadFull(p.out, data); err != nil {
 		return nil, false, err
 	}
@@ -191,4 +184,17 @@ func (p *catFile) read(h plumbing.Hash, limit int64, buf *[]byte) (data []byte, 
 		return nil, false, fmt.Errorf("git cat-file: no newline after %s", h)
 	}
 	return data, true, nil
+}
+
+// readBuffer is where a blob of size bytes is read: *buf, grown when it is
+// too small, for a worker that reads blob after blob into one buffer; a
+// new slice when buf is nil.
+func readBuffer(buf *[]byte, size int64) []byte {
+	if buf == nil {
+		return make([]byte, size)
+	}
+	if int64(cap(*buf)) < size {
+		*buf = make([]byte, size)
+	}
+	return (*buf)[:size]
 }

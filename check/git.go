@@ -570,15 +570,7 @@ func (r *Repo) streamBlob(h plumbing.Hash, limit int64, buf *[]byte) ([]byte, er
 		return nil, err
 	}
 	defer rd.Close()
-	var data []byte
-	if buf == nil {
-		data = make([]byte, blob.Size)
-	} else {
-		if int64(cap(*buf)) < blob.Size {
-			*buf = make([]byte, blob.Size)
-		}
-		data = (*buf)[:blob.Size]
-	}
+	data := readBuffer(buf, blob.Size)
 	if _, err := io.ReadFull(rd, data); err != nil {
 		return nil, err
 	}
@@ -667,15 +659,7 @@ func (r *Repo) readLFS(ptr lfsPointer, p, label, fetchRef string, buf *[]byte) (
 	if !st.Mode().IsRegular() || st.Size() != ptr.Size || ptr.Size > maxBlob {
 		return nil, &EnvError{Err: fmt.Errorf("%s at %s: LFS object %s has %d bytes, its pointer says %d", p, label, ptr.OID[:12], st.Size(), ptr.Size), Hint: "refetch it: git lfs fetch --all"}
 	}
-	var data []byte
-	if buf == nil {
-		data = make([]byte, ptr.Size)
-	} else {
-		if int64(cap(*buf)) < ptr.Size {
-			*buf = make([]byte, ptr.Size)
-		}
-		data = (*buf)[:ptr.Size]
-	}
+	data := readBuffer(buf, ptr.Size)
 	// The pointer's blob is read into the same buffer first; it is
 	// parsed already and no longer needed.
 	sum := sha256.New()
