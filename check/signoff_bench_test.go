@@ -3,10 +3,10 @@ package check
 import (
 	"fmt"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"testing"
 
+	"github.com/loadline/loadline/internal/benchrepo"
 	"github.com/loadline/loadline/internal/corpus"
 	"github.com/loadline/loadline/measure/benchmodel"
 	"github.com/loadline/loadline/model/onnx"
@@ -23,11 +23,8 @@ func BenchmarkSignoff50Models10Releases(b *testing.B) {
 	corpus.Tool(b, "git", "git")
 	dir := b.TempDir()
 	git := func(args ...string) {
-		cmd := exec.Command("git", args...)
-		cmd.Dir = dir
-		cmd.Env = append(os.Environ(), "GIT_CONFIG_NOSYSTEM=1", "HOME="+dir)
-		if out, err := cmd.CombinedOutput(); err != nil {
-			b.Fatalf("git %v: %v\n%s", args, err, out)
+		if err := benchrepo.Git(dir, args...); err != nil {
+			b.Fatal(err)
 		}
 	}
 	write := func(i int, seed uint64) {
@@ -47,18 +44,7 @@ func BenchmarkSignoff50Models10Releases(b *testing.B) {
 			b.Fatal(err)
 		}
 	}
-	git("init", "-q", "-b", "main")
-	git("config", "user.email", "bench@wrenfield.example")
-	git("config", "user.name", "bench")
-	if err := os.WriteFile(filepath.Join(dir, "loadline.yaml"), []byte(`version: 1
-devices:
-  hub: {ram: 64MiB, flash: 1GiB}
-models:
-  - path: "models/*.onnx"
-    device: hub
-    dims: {batch: 1}
-    limits: {flash: 100MiB}
-`), 0o644); err != nil {
+	if err := benchrepo.Init(dir); err != nil {
 		b.Fatal(err)
 	}
 	for i := range 50 {
