@@ -99,11 +99,7 @@ func TestFiguresEntryKeepsEveryField(t *testing.T) {
 	var m measure.Metrics
 	(&filler{}).fill(t, reflect.ValueOf(&m).Elem(), "Metrics")
 	in := &cacheEntry{Blob: fuzzBlob, Version: AnalyzerVersion, Options: "batch=1\x00deploy={…}", Deps: map[string]string{"w.bin": "ab", "x/y.bin": "cd"}, Metrics: &m}
-	b, err := encodeFigures(in)
-	if err != nil {
-		t.Fatal(err)
-	}
-	out, err := decodeFigures(string(b))
+	out, b, err := roundTrip(in)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -134,11 +130,7 @@ func TestFiguresEntryNilAndEmpty(t *testing.T) {
 	for _, m := range []*measure.Metrics{empty, {}} {
 		for _, deps := range []map[string]string{nil, {}} {
 			in := &cacheEntry{Blob: "b", Metrics: m, Deps: deps}
-			b, err := encodeFigures(in)
-			if err != nil {
-				t.Fatal(err)
-			}
-			out, err := decodeFigures(string(b))
+			out, _, err := roundTrip(in)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -212,12 +204,7 @@ func TestFiguresEntryCorpus(t *testing.T) {
 		figures := *m
 		figures.Layers, figures.MemoryDetail.LiveBytesByStep = nil, nil
 		in := &cacheEntry{Blob: fuzzBlob, Version: AnalyzerVersion, Options: "o", Metrics: &figures}
-		b, err := encodeFigures(in)
-		if err != nil {
-			t.Errorf("%s: %v", p, err)
-			continue
-		}
-		out, err := decodeFigures(string(b))
+		out, _, err := roundTrip(in)
 		if err != nil {
 			t.Errorf("%s: %v", p, err)
 			continue
@@ -242,4 +229,15 @@ func TestFiguresEntryCorpus(t *testing.T) {
 	if kept < len(paths)/2 || runtime == 0 || constants == 0 {
 		t.Errorf("too little of the corpus measured: %d of %d, %d with a runtime view, %d with constants", kept, len(paths), runtime, constants)
 	}
+}
+
+// roundTrip encodes a figures entry and reads it back, returning the
+// entry read and its bytes.
+func roundTrip(in *cacheEntry) (*cacheEntry, []byte, error) {
+	b, err := encodeFigures(in)
+	if err != nil {
+		return nil, nil, err
+	}
+	out, err := decodeFigures(string(b))
+	return out, b, err
 }
