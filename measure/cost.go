@@ -230,6 +230,21 @@ func (c *costCtx) reset(n *model.Node) {
 	c.ins, c.outs = vs[:len(n.Inputs):len(n.Inputs)], vs[len(n.Inputs):]
 }
 
+// lookUp sets each of c's inputs and outputs to find's value for its
+// name; an omitted one ("") stays nil.
+func (c *costCtx) lookUp(find func(string) *Value) {
+	for j, name := range c.node.Inputs {
+		if name != "" {
+			c.ins[j] = find(name)
+		}
+	}
+	for j, name := range c.node.Outputs {
+		if name != "" {
+			c.outs[j] = find(name)
+		}
+	}
+}
+
 func (c *costCtx) attrInt(name string, def int64) int64 {
 	if a := c.node.Attr(name); a != nil {
 		return a.Int
@@ -754,16 +769,7 @@ func (k *coster) node(n *model.Node, i int, sc scopes, x *graphIndex) *tally {
 			c.outs[j] = x.value(id)
 		}
 	} else {
-		for j, name := range n.Inputs {
-			if name != "" {
-				c.ins[j] = sc.lookup(name)
-			}
-		}
-		for j, name := range n.Outputs {
-			if name != "" {
-				c.outs[j] = sc.lookup(name)
-			}
-		}
+		c.lookUp(sc.lookup)
 	}
 	t := newTally()
 	var err error

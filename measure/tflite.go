@@ -109,16 +109,7 @@ func (s *storedInference) check(n *model.Node, i int, vals *Values, path string)
 		return
 	}
 	c := newCostCtx(n)
-	for j, name := range n.Inputs {
-		if name != "" {
-			c.ins[j] = vals.Get(name)
-		}
-	}
-	for j, name := range n.Outputs {
-		if name != "" {
-			c.outs[j] = vals.Get(name)
-		}
-	}
+	c.lookUp(vals.Get)
 	want, err := op.check(c)
 	bad := func(j int, reason string) {
 		s.unresolved = append(s.unresolved, Unresolved{Node: path + nodeName(n, i), Op: n.Op, Reason: reason})
