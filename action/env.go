@@ -83,8 +83,9 @@ func GitHubEnvFrom(getenv func(string) string) (GitHubEnv, error) {
 	if e.EventPath == "" {
 		return e, nil
 	}
-	// GitHub caps a webhook payload at 25 MB; the bound keeps a stray
-	// path (a device, a huge file) from being read without end.
+	// GitHub caps a webhook payload at 25 MB (its webhook documentation,
+	// from memory); the bound keeps a stray path (a device, a huge file)
+	// from being read without end.
 	data, err := regular.ReadFile(e.EventPath, maxEventPayload)
 	if os.IsNotExist(err) {
 		return e, nil

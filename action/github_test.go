@@ -802,8 +802,9 @@ func TestDetect(t *testing.T) {
 
 // TestGitHubEnvPayloadBounded: the event payload path is read only when it
 // is a regular file of at most maxEventPayload bytes (GitHub caps webhook
-// payloads at 25 MB, per its webhook documentation), so a stray path to a
-// device or a huge file is an error naming it, not a read without end.
+// payloads at 25 MB, per its webhook documentation, from memory), so a
+// stray path to a device or a huge file is an error naming it, not a read
+// without end.
 func TestGitHubEnvPayloadBounded(t *testing.T) {
 	dir := t.TempDir()
 	huge := filepath.Join(dir, "huge.json")
