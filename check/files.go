@@ -56,22 +56,33 @@ func MeasureFile(path string, opts measure.Options) (m *measure.Metrics) {
 // onMapped runs f, which reads a memory-mapped file, turning a fault on
 // its pages into the file's error entry.
 func onMapped(path string, f func() *measure.Metrics) (m *measure.Metrics) {
+	if fault := catchFault(func() { m = f() }); fault != nil {
+		return failed(path, fmt.Errorf("%s changed while it was being read (%v); measure it again", path, fault))
+	}
+	return m
+}
+
+// catchFault runs f and returns the memory fault it met reading a mapped
+// file (a file cut short after it was mapped faults on the pages past its
+// new end), nil when none; any other panic goes on up.
+func catchFault(f func()) (fault error) {
 	defer debug.SetPanicOnFault(debug.SetPanicOnFault(true))
 	defer func() {
 		if r := recover(); r != nil {
 			// A memory fault's runtime.Error has an Addr method
 			// (runtime/debug.SetPanicOnFault).
-			if re, ok := r.(interface {
+			re, ok := r.(interface {
 				runtime.Error
 				Addr() uintptr
-			}); ok {
-				m = failed(path, fmt.Errorf("%s changed while it was being read (%v); measure it again", path, re))
-				return
+			})
+			if !ok {
+				panic(r)
 			}
-			panic(r)
+			fault = re
 		}
 	}()
-	return f()
+	f()
+	return nil
 }
 
 // failed is the entry of a model that could not be measured: every list

@@ -10,8 +10,6 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
-	"runtime"
-	"runtime/debug"
 	"slices"
 	"sort"
 	"strings"
@@ -188,22 +186,11 @@ func (p *pack) read(s packSpan) ([]byte, bool) {
 // was mapped faults on the pages past its end: that entry is a miss, not
 // a crash.
 func copyMapped[T any](b []byte, cp func([]byte) T) (out T, ok bool) {
-	defer debug.SetPanicOnFault(debug.SetPanicOnFault(true))
-	defer func() {
-		if r := recover(); r != nil {
-			// A memory fault's runtime.Error has an Addr method
-			// (runtime/debug.SetPanicOnFault).
-			if _, fault := r.(interface {
-				runtime.Error
-				Addr() uintptr
-			}); !fault {
-				panic(r)
-			}
-			var zero T
-			out, ok = zero, false
-		}
-	}()
-	return cp(b), true
+	if catchFault(func() { out = cp(b) }) != nil {
+		var zero T
+		return zero, false
+	}
+	return out, true
 }
 
 // openRegular opens a regular file for reading. A symbolic link, a device
