@@ -17,7 +17,7 @@ import (
 // in the graph's own values finds nothing).
 type graphIndex struct {
 	g     *model.Graph // the graph numbered
-	ids   map[string]int32
+	ids   nameTable    // finds a name's number in names
 	names []string
 	// vals holds, by number, what inference found of each value.
 	vals []*Value
@@ -67,7 +67,7 @@ func (vs *Values) lookup(name string) (*Value, bool) {
 		return nil, false
 	}
 	if vs.x != nil {
-		if id, ok := vs.x.ids[name]; ok {
+		if id := vs.x.lookup(name); id >= 0 {
 			v := vs.byID[id]
 			return v, v != nil
 		}
@@ -79,7 +79,7 @@ func (vs *Values) lookup(name string) (*Value, bool) {
 // set records v as the value named name.
 func (vs *Values) set(name string, v *Value) {
 	if vs.x != nil {
-		if id, ok := vs.x.ids[name]; ok {
+		if id := vs.x.lookup(name); id >= 0 {
 			vs.byID[id] = v
 			return
 		}
@@ -107,19 +107,21 @@ func numberGraph(g *model.Graph) *graphIndex {
 		nOut += len(n.Outputs)
 	}
 	size := len(g.Inputs) + len(g.Initializers) + nOut + len(g.Outputs) + len(g.Sparse)
-	x := &graphIndex{g: g, ids: make(map[string]int32, size), names: make([]string, 0, size),
+	x := &graphIndex{g: g, ids: newNameTable(size), names: make([]string, 0, size),
 		in: make([]int32, 0, nIn), out: make([]int32, 0, nOut),
 		inAt: make([]int32, 0, len(g.Nodes)+1), outAt: make([]int32, 0, len(g.Nodes)+1)}
 	number := func(name string) int32 {
 		if name == "" {
 			return -1
 		}
-		if id, ok := x.ids[name]; ok {
+		id, slot, ok := x.ids.find(x.names, name)
+		if ok {
 			return id
 		}
-		id := int32(len(x.names))
-		x.ids[name] = id
+		id = int32(len(x.names))
+		x.ids.slots[slot] = id
 		x.names = append(x.names, name)
+		x.ids.grow(x.names)
 		return id
 	}
 	for _, in := range g.Inputs {
@@ -164,10 +166,11 @@ func (x *graphIndex) fill(vals *Values) {
 // lookup is the number of name, -1 for "" or a name the graph never
 // mentions.
 func (x *graphIndex) lookup(name string) int32 {
-	if id, ok := x.ids[name]; ok {
-		return id
+	if name == "" {
+		return -1
 	}
-	return -1
+	id, _, _ := x.ids.find(x.names, name)
+	return id
 }
 
 // ins and outs are the numbers of node i's inputs and outputs.
@@ -197,7 +200,9 @@ type staticSet struct {
 func newStaticSet(g *model.Graph, x *graphIndex) *staticSet {
 	s := &staticSet{x: x, marked: make([]bool, len(x.names))}
 	for _, t := range g.Initializers {
-		s.marked[x.ids[t.Name]] = true
+		if id := x.lookup(t.Name); id >= 0 {
+			s.marked[id] = true
+		}
 	}
 	for _, sp := range g.Sparse {
 		if sp.Values != nil {
