@@ -109,6 +109,13 @@ type Options struct {
 	// caller with a core to spare (one model measured alone); the
 	// figures are the same either way.
 	Parallel bool
+	// WeightsRead, when set, is called with the stored bytes of each
+	// weight once its zeros are counted, in the order they lie in memory:
+	// the last read of them a measurement makes on its usual path, so that
+	// a caller that mapped the model file can give those pages back
+	// (check.MeasureFile). Constant digests (Digests) read them again.
+	// It is not part of the figures.
+	WeightsRead func(stored []byte)
 }
 
 // sideBySide runs a and b, at once when parallel is set, and returns when
@@ -176,7 +183,7 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 		dep         *MemoryPlan
 	)
 	weightsAndGraph := func() {
-		ws, wsErr = weights(inf)
+		ws, wsErr = weights(inf, opts.WeightsRead)
 		plan := PlanMemory(inf)
 		out.Memory.Graph = MemoryView{PeakLiveBytes: plan.PeakLiveBytes, ArenaBytes: plan.ArenaBytes}
 		out.MemoryDetail = MemoryDetail{PeakStep: plan.PeakStep, LiveAtPeak: plan.LiveAtPeak, ArenaRatio: plan.Ratio()}

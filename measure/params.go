@@ -2,10 +2,12 @@ package measure
 
 import (
 	"bytes"
+	"cmp"
 	"encoding/binary"
 	"fmt"
 	"slices"
 	"sort"
+	"unsafe"
 
 	"github.com/loadline/loadline/model"
 )
@@ -203,39 +205,54 @@ func countZeros(t *model.Tensor) (int64, error) {
 }
 
 // weights finds the constants of the model (main graph and subgraphs) used
-// as weights, in the order their first consumer appears.
-func weights(inf *Inference) ([]ParamTensor, error) {
+// as weights, in the order their first consumer appears. When read is set,
+// it is called with each weight's stored bytes once its zeros are counted,
+// in the order those bytes lie in memory (storedAt), so that a caller that
+// mapped the model file can give back the pages read (check.MeasureFile).
+func weights(inf *Inference, read func(stored []byte)) ([]ParamTensor, error) {
 	g := inf.Model.Graph
-	// The constants: initializers and Constant outputs of the main graph
-	// and of every subgraph (a branch or loop body may hold its own).
-	consts := make(map[string]*model.Tensor, len(g.Initializers))
-	addConsts := func(g *model.Graph) {
+	x := inf.index(g, inf.Values)
+	// The constants: initializers and Constant outputs of the main graph,
+	// by number, and of every subgraph (a branch or loop body may hold its
+	// own), by name. A subgraph's constant hides a main-graph one of the
+	// same name wherever the name is read, and a later one an earlier one.
+	mainConsts := make([]*model.Tensor, len(x.names))
+	byName := map[string]*model.Tensor{}
+	addConsts := func(g *model.Graph, main bool) {
+		set := func(name string, t *model.Tensor) {
+			if id := x.lookup(name); main && id >= 0 {
+				mainConsts[id] = t
+			} else {
+				byName[name] = t
+			}
+		}
 		for _, t := range g.Initializers {
-			consts[t.Name] = t
+			set(t.Name, t)
 		}
 		for _, n := range g.Nodes {
 			if n.Op == "Constant" && len(n.Outputs) == 1 {
 				if a := n.Attr("value"); a != nil && a.Tensor != nil {
 					t := *a.Tensor
 					t.Name = n.Outputs[0]
-					consts[n.Outputs[0]] = &t
+					set(n.Outputs[0], &t)
 				}
 			}
 		}
 	}
-	addConsts(g)
+	addConsts(g, true)
 	// The nodes of the main graph and of its subgraphs, each subgraph's
 	// after the node that holds it, with the values they see.
 	type step struct {
 		n      *model.Node
-		folded bool // inference knows every output's values
+		main   int32 // the node's number in the main graph, -1 in a subgraph
+		folded bool  // inference knows every output's values
 	}
 	steps := make([]step, 0, len(g.Nodes))
 	// A subgraph sees its own values, then its enclosing graphs' (a chain
 	// of scopes, not a copy per subgraph, which would cost the outer
 	// graph's size once per subgraph).
-	// x numbers the main graph's values (nil in a subgraph), which are
-	// then read by number rather than looked up by name.
+	// In the main graph (x set) values are read by number rather than
+	// looked up by name.
 	var walk func(nodes []*model.Node, sc scopes, x *graphIndex)
 	walk = func(nodes []*model.Node, sc scopes, x *graphIndex) {
 		if len(sc) > maxGraphDepth+1 {
@@ -254,19 +271,23 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 					folded = false
 				}
 			}
-			steps = append(steps, step{n, folded})
+			main := int32(-1)
+			if x != nil {
+				main = int32(i)
+			}
+			steps = append(steps, step{n, main, folded})
 			// Subgraph bodies read outer constants too.
 			for _, a := range n.Attrs {
 				for _, sg := range append([]*model.Graph{a.Graph}, a.Graphs...) {
 					if sg != nil {
-						addConsts(sg)
+						addConsts(sg, false)
 						walk(sg.Nodes, append(sc[:len(sc):len(sc)], inf.Subgraphs[sg]), nil)
 					}
 				}
 			}
 		}
 	}
-	walk(g.Nodes, scopes{inf.Values}, inf.index(g, inf.Values))
+	walk(g.Nodes, scopes{inf.Values}, x)
 
 	// A node's data inputs feed a weight when the node is computed at run
 	// time, or when it is folded (a Transpose, Cast or Identity of a
@@ -302,29 +323,83 @@ func weights(inf *Inference) ([]ParamTensor, error) {
 		}
 	}
 
-	seen := make(map[string]bool, len(consts))
-	out := make([]ParamTensor, 0, len(consts))
-	var readErr error
+	// Each weight once, by name: a name the main graph numbers is marked
+	// by its number, any other in seenName.
+	seen := make([]bool, len(x.names))
+	seenName := map[string]bool{}
+	firstSight := func(id int32, name string) bool {
+		if id >= 0 {
+			was := seen[id]
+			seen[id] = true
+			return !was
+		}
+		was := seenName[name]
+		seenName[name] = true
+		return !was
+	}
+	var out []ParamTensor
+	var stored []*model.Tensor // out's tensors, in turn
 	for k, st := range steps {
 		if !feeds[k] {
 			continue
 		}
+		var ids []int32
+		if st.main >= 0 {
+			ids = x.ins(int(st.main))
+		}
 		for i, name := range st.n.Inputs {
-			t, ok := consts[name]
-			if !ok || seen[name] || isShapeOperand(st.n, i) || t.Elements() <= 1 {
+			id := int32(-1)
+			if ids != nil {
+				id = ids[i]
+			} else if name != "" {
+				id = x.lookup(name)
+			}
+			t, ok := byName[name]
+			if !ok && id >= 0 {
+				t, ok = mainConsts[id], mainConsts[id] != nil
+			}
+			if !ok || isShapeOperand(st.n, i) || t.Elements() <= 1 || !firstSight(id, name) {
 				continue
 			}
-			seen[name] = true
-			zeros, err := countZeros(t)
-			if err != nil && readErr == nil {
-				readErr = err
+			out = append(out, ParamTensor{Name: name, DType: t.DType, Elements: t.Elements(), Bytes: t.StorageBytes()})
+			stored = append(stored, t)
+		}
+	}
+	// Zeros are counted in the order the stored bytes lie, front to back.
+	order := make([]int32, len(stored))
+	for i := range order {
+		order[i] = int32(i)
+	}
+	slices.SortStableFunc(order, func(a, b int32) int { return cmp.Compare(storedAt(stored[a]), storedAt(stored[b])) })
+	// The error reported is that of the first weight in turn.
+	var readErr error
+	errAt := int32(len(stored))
+	for _, i := range order {
+		t := stored[i]
+		zeros, err := countZeros(t)
+		if err != nil && i < errAt {
+			readErr, errAt = err, i
+		}
+		out[i].Zeros = zeros
+		if read != nil {
+			for _, seg := range t.Data.Segments {
+				read(seg)
 			}
-			out = append(out, ParamTensor{Name: name, DType: t.DType, Elements: t.Elements(), Bytes: t.StorageBytes(), Zeros: zeros})
 		}
 	}
 	// Weights computed from constants at load time count too (static.go).
 	out = append(out, generatedWeights(inf)...)
 	return out, readErr
+}
+
+// storedAt is the address of the first stored byte of t (0 when it stores
+// none in memory): the order of weights in their model file when it is
+// mapped, or a decoder's buffer of it.
+func storedAt(t *model.Tensor) uintptr {
+	if len(t.Data.Segments) == 0 {
+		return 0
+	}
+	return uintptr(unsafe.Pointer(unsafe.SliceData(t.Data.Segments[0])))
 }
 
 // ParamsByDType sums parameter bytes per dtype, for reports.

@@ -223,3 +223,54 @@ func TestDeployedArenaQuantized(t *testing.T) {
 		t.Errorf("int8/float32 deployed arena ratio %.3f, want about 0.25", ratio)
 	}
 }
+
+// TestWeightsReadInStoredOrder: the weights' zeros are counted front to
+// back in memory, whatever order their consumers come in, and each
+// weight's stored bytes are handed to Options.WeightsRead once, in that
+// order; the list of weights keeps its consumers' order. Hand-worked: w0,
+// read first, lies after w1 in one buffer; w0 holds 3 zeros of 4 elements,
+// w1 holds 1 (1.0 is 0x3f800000).
+func TestWeightsReadInStoredOrder(t *testing.T) {
+	b := build.New("order", 13)
+	x := b.Input("x", model.Float32, 1, 2)
+	x = b.MatMul("mm0", x, b.Weight("w0", model.Float32, 2, 2))
+	x = b.MatMul("mm1", x, b.Weight("w1", model.Float32, 2, 2))
+	b.Output(x)
+	m, err := b.Model()
+	if err != nil {
+		t.Fatal(err)
+	}
+	buf := make([]byte, 32)
+	place := func(name string, at int, vals ...uint32) {
+		for i, v := range vals {
+			binary.LittleEndian.PutUint32(buf[at+4*i:], v)
+		}
+		w := m.Graph.Initializer(name)
+		if w == nil {
+			t.Fatalf("no initializer %s", name)
+		}
+		w.Data = model.TensorData{Encoding: model.EncodingRaw, Segments: [][]byte{buf[at : at+16]}}
+	}
+	place("w1", 0, 0x3f800000, 0x3f800000, 0, 0x3f800000)
+	place("w0", 16, 0, 0, 0x3f800000, 0)
+	inf, err := Infer(m, InferOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var offsets []int
+	ws, err := weights(inf, func(b []byte) {
+		offsets = append(offsets, len(buf)-cap(b)) // b is buf[at:...], so cap(b) = 32 − at
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(ws) != 2 || ws[0].Name != "w0" || ws[1].Name != "w1" {
+		t.Fatalf("weights %+v, want w0 then w1 (their consumers' order)", ws)
+	}
+	if ws[0].Zeros != 3 || ws[1].Zeros != 1 {
+		t.Errorf("zeros w0 %d, w1 %d; want 3 and 1", ws[0].Zeros, ws[1].Zeros)
+	}
+	if len(offsets) != 2 || offsets[0] != 0 || offsets[1] != 16 {
+		t.Errorf("stored bytes handed on at offsets %v, want [0 16] (front to back)", offsets)
+	}
+}
