@@ -40,16 +40,17 @@ func MeasureFiles(paths []string, opts measure.Options) []*measure.Metrics {
 
 // MeasureFile decodes and measures one model file.
 func MeasureFile(path string, opts measure.Options) (m *measure.Metrics) {
-	data, release, err := mapFile(path)
+	f, err := mapFile(path)
 	if err != nil {
 		return failed(path, err)
 	}
-	defer release()
+	defer f.release()
+	opts.WeightsRead = f.readBehind
 	// The file is memory-mapped: if it is truncated while being read, the
 	// read faults. Turn that fault into an error for this file instead of
 	// a crash of the whole run; any other panic is a bug and goes on up.
 	return onMapped(path, func() *measure.Metrics {
-		return decodeAndMeasure(path, data, format.Options{}, opts)
+		return decodeAndMeasure(path, f.data, format.Options{}, opts)
 	})
 }
 
