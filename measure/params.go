@@ -218,8 +218,10 @@ func weights(inf *Inference, read func(stored []byte)) ([]ParamTensor, error) {
 	// same name wherever the name is read, and a later one an earlier one.
 	mainConsts := make([]*model.Tensor, len(x.names))
 	byName := map[string]*model.Tensor{}
+	nConsts := 0 // at most, for sizing the list of weights
 	addConsts := func(g *model.Graph, main bool) {
 		set := func(name string, t *model.Tensor) {
+			nConsts++
 			if id := x.lookup(name); main && id >= 0 {
 				mainConsts[id] = t
 			} else {
@@ -337,8 +339,8 @@ func weights(inf *Inference, read func(stored []byte)) ([]ParamTensor, error) {
 		seenName[name] = true
 		return !was
 	}
-	var out []ParamTensor
-	var stored []*model.Tensor // out's tensors, in turn
+	out := make([]ParamTensor, 0, nConsts)
+	stored := make([]*model.Tensor, 0, nConsts) // out's tensors, in turn
 	for k, st := range steps {
 		if !feeds[k] {
 			continue
