@@ -397,7 +397,7 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 	if buffers {
 		plan.BufferOf = bufferOf(x, order, fused, recs)
 	}
-	plan.finish(g, steps, live, lts, bodyPeak, bodyArena)
+	plan.finish(g, steps, live, lts, bodyPeak, bodyArena, buffers && depth == 0)
 	return plan
 }
 

@@ -94,7 +94,9 @@ type MemoryPlan struct {
 	// Placements gives every counted tensor's offset in the arena, graph
 	// inputs first, then node outputs in step order, then one block per
 	// node with subgraphs ("node (subgraph)"). In the deployed view a
-	// placement is a buffer, named by the first tensor it holds.
+	// placement is a buffer, named by the first tensor it holds. Only
+	// the placements live at PeakStep are kept when the plan was made
+	// without the per-layer view (Options.Layers).
 	Placements []Placement
 	// LiveBytesByStep is the sum of live bytes at each step.
 	LiveBytesByStep []int64
@@ -129,7 +131,7 @@ var randomOps = map[string]bool{
 // PlanMemory computes the graph view of the activation memory of the
 // inferred model's main graph.
 func PlanMemory(inf *Inference) *MemoryPlan {
-	return planGraph(inf, inf.Model.Graph, inf.Values, 0)
+	return planGraph(inf, inf.Model.Graph, inf.Values, 0, true)
 }
 
 // tensorRec is what planGraph learns of one tensor while walking the nodes.
@@ -139,7 +141,9 @@ type tensorRec struct {
 	producer    int // node index, -1 for a graph input
 }
 
-func planGraph(inf *Inference, g *model.Graph, vals *Values, depth int) *MemoryPlan {
+// planGraph plans graph g; all keeps every placement (else only those
+// live at the peak: MemoryPlan.finish).
+func planGraph(inf *Inference, g *model.Graph, vals *Values, depth int, all bool) *MemoryPlan {
 	plan := &MemoryPlan{}
 	steps := max(1, len(g.Nodes))
 	lastStep := steps - 1
@@ -180,7 +184,7 @@ func planGraph(inf *Inference, g *model.Graph, vals *Values, depth int) *MemoryP
 	for i, n := range g.Nodes {
 		outs, _ = planStep(plan, inf, x, static, n, i, depth, bodyPeak, bodyArena, touch(i),
 			func(body *model.Graph, bv *Values) *MemoryPlan {
-				return planGraph(inf, body, bv, depth+1)
+				return planGraph(inf, body, bv, depth+1, false)
 			}, outs[:0])
 		for _, id := range outs {
 			add(id, i, i)
@@ -213,7 +217,7 @@ func planGraph(inf *Inference, g *model.Graph, vals *Values, depth int) *MemoryP
 	lts = append(lts, held...)
 	plan.Unresolved = append(plan.Unresolved, unres...)
 
-	plan.finish(g, steps, lts, lts, bodyPeak, bodyArena)
+	plan.finish(g, steps, lts, lts, bodyPeak, bodyArena, all)
 	return plan
 }
 
@@ -274,8 +278,10 @@ func (plan *MemoryPlan) bodies(n *model.Node, i, depth int, cond *Value, subs ma
 // finish computes the live bytes per step and the peak from the sized
 // lifetimes live over steps steps of g, and the arena from the buffers
 // lts (the same list, except where a buffer holds two tensors in turn), with
-// the subgraph bodies' peaks and arenas at their nodes' steps.
-func (plan *MemoryPlan) finish(g *model.Graph, steps int, live, lts []Lifetime, bodyPeak, bodyArena map[int]int64) {
+// the subgraph bodies' peaks and arenas at their nodes' steps. It keeps
+// every buffer's placement when all is set (the per-layer view), else only
+// those live at the peak step, which the figures read (viewDetail).
+func (plan *MemoryPlan) finish(g *model.Graph, steps int, live, lts []Lifetime, bodyPeak, bodyArena map[int]int64, all bool) {
 	// Live bytes per step: a difference array over the steps.
 	diff := make([]int64, steps+1)
 	for _, lt := range live {
@@ -301,7 +307,20 @@ func (plan *MemoryPlan) finish(g *model.Graph, steps int, live, lts []Lifetime, 
 			blocks = append(blocks, Lifetime{Name: nodeLabel(n, i) + " (subgraph)", Size: b, First: i, Last: i})
 		}
 	}
-	plan.Placements, plan.ArenaBytes = PlanArena(append(lts[:len(lts):len(lts)], blocks...))
+	buffers := append(lts[:len(lts):len(lts)], blocks...)
+	if all {
+		plan.Placements, plan.ArenaBytes = PlanArena(buffers)
+	} else {
+		// The placements the figures read (viewDetail): those live at
+		// the peak.
+		var offsets []int64
+		offsets, plan.ArenaBytes = placeArena(buffers)
+		for i, t := range buffers {
+			if p := placement(t, offsets[i]); p.First <= plan.PeakStep && plan.PeakStep <= p.Last {
+				plan.Placements = append(plan.Placements, p)
+			}
+		}
+	}
 	var atPeak []Lifetime
 	for _, lt := range append(live[:len(live):len(live)], blocks...) {
 		if lt.First <= plan.PeakStep && plan.PeakStep <= lt.Last {
@@ -402,18 +421,37 @@ func tensorBytes(v *Value) (int64, string) {
 // merely touch, which the runs do not keep, so they are placed by looking
 // at each overlapping tensor as the method states it.
 func PlanArena(tensors []Lifetime) (placements []Placement, arena int64) {
-	n := len(tensors)
-	placements = make([]Placement, n)
-	if n == 0 {
-		return placements, 0
+	offsets, arena := placeArena(tensors)
+	placements = make([]Placement, len(tensors))
+	for i, t := range tensors {
+		placements[i] = placement(t, offsets[i])
 	}
+	return placements, arena
+}
+
+// placement is tensor t placed at offset; a negative size counts as 0 and
+// a last step before the first as the first.
+func placement(t Lifetime, offset int64) Placement {
+	return Placement{Name: t.Name, Size: max(t.Size, 0), Offset: offset, First: t.First, Last: max(t.Last, t.First)}
+}
+
+// placeArena is PlanArena's method, giving each tensor's offset alone: the
+// planners keep the placements of a few tensors only, unless the per-layer
+// view asks for all (MemoryPlan.finish), and on a graph of 100,000
+// nodes a full list made twice was 12 MB for nothing.
+func placeArena(tensors []Lifetime) (offsets []int64, arena int64) {
+	n := len(tensors)
+	offsets = make([]int64, n)
+	if n == 0 {
+		return offsets, 0
+	}
+	size := func(i int32) int64 { return max(tensors[i].Size, 0) }
+	last := func(i int32) int { return max(tensors[i].Last, tensors[i].First) }
 	// The trees run over the ranks of the distinct step values, so that
 	// steps far apart cost nothing.
 	stepVals := make([]int, 0, 2*n)
 	for i, t := range tensors {
-		last := max(t.Last, t.First)
-		placements[i] = Placement{Name: t.Name, Size: max(t.Size, 0), First: t.First, Last: last}
-		stepVals = append(stepVals, t.First, last)
+		stepVals = append(stepVals, t.First, last(int32(i)))
 	}
 	slices.Sort(stepVals)
 	stepVals = slices.Compact(stepVals)
@@ -421,21 +459,21 @@ func PlanArena(tensors []Lifetime) (placements []Placement, arena int64) {
 		r, _ := slices.BinarySearch(stepVals, step)
 		return r
 	}
-	idx := make([]int, n)
+	idx := make([]int32, n)
 	for i := range idx {
-		idx[i] = i
+		idx[i] = int32(i)
 	}
-	slices.SortFunc(idx, func(a, b int) int {
-		x, y := &placements[a], &placements[b]
+	slices.SortFunc(idx, func(a, b int32) int {
+		x, y := &tensors[a], &tensors[b]
 		switch {
-		case x.Size != y.Size:
-			return cmp.Compare(y.Size, x.Size)
+		case size(a) != size(b):
+			return cmp.Compare(size(b), size(a))
 		case x.First != y.First:
 			return cmp.Compare(x.First, y.First)
 		case x.Name != y.Name:
 			return cmp.Compare(x.Name, y.Name)
-		case x.Last != y.Last:
-			return cmp.Compare(x.Last, y.Last)
+		case last(a) != last(b):
+			return cmp.Compare(last(a), last(b))
 		}
 		return cmp.Compare(a, b)
 	})
@@ -446,28 +484,27 @@ func PlanArena(tensors []Lifetime) (placements []Placement, arena int64) {
 	var buf []byteRun
 	var cand []int32
 	for q, i := range idx {
-		p := &placements[i]
-		a, b := rank(p.First), rank(p.Last)
-		if p.Size > 0 {
+		a, b := rank(tensors[i].First), rank(last(i))
+		sz := size(i)
+		if sz > 0 {
 			buf = runs.query(a, b, buf[:0])
-			p.Offset = smallestGap(buf, p.Size)
-			runs.insert(a, b, byteRun{p.Offset, p.Offset + p.Size})
+			offsets[i] = smallestGap(buf, sz)
+			runs.insert(a, b, byteRun{offsets[i], offsets[i] + sz})
 		} else {
 			if tree == nil {
 				tree = newStepTree(len(stepVals), n-q)
 				stamp = make([]int32, n)
 				for _, j := range idx[:q] {
-					pj := &placements[j]
-					tree.insert(rank(pj.First), rank(pj.Last), int32(j))
+					tree.insert(rank(tensors[j].First), rank(last(j)), j)
 				}
 			}
 			cand = tree.query(a, b, int32(q+1), stamp, cand[:0])
-			p.Offset = smallestGapAmong(placements, cand, p.Size)
-			tree.insert(a, b, int32(i))
+			offsets[i] = smallestGapAmong(tensors, offsets, cand, sz)
+			tree.insert(a, b, i)
 		}
-		arena = max(arena, p.Offset+p.Size)
+		arena = max(arena, offsets[i]+sz)
 	}
-	return placements, arena
+	return offsets, arena
 }
 
 // smallestGap is where greedy by size puts a tensor of size bytes (size >
@@ -496,9 +533,9 @@ func smallestGap(runs []byteRun, size int64) int64 {
 // smallestGapAmong is the method as stated, over the placed tensors cand:
 // in offset order, each gap between a tensor's offset and the highest end
 // before it is a candidate.
-func smallestGapAmong(placements []Placement, cand []int32, size int64) int64 {
+func smallestGapAmong(tensors []Lifetime, offsets []int64, cand []int32, size int64) int64 {
 	slices.SortFunc(cand, func(x, y int32) int {
-		if c := cmp.Compare(placements[x].Offset, placements[y].Offset); c != 0 {
+		if c := cmp.Compare(offsets[x], offsets[y]); c != 0 {
 			return c
 		}
 		return cmp.Compare(x, y)
@@ -506,11 +543,10 @@ func smallestGapAmong(placements []Placement, cand []int32, size int64) int64 {
 	var prevEnd int64
 	best, bestGap := int64(-1), int64(-1)
 	for _, j := range cand {
-		o := &placements[j]
-		if gap := o.Offset - prevEnd; gap >= size && (bestGap < 0 || gap < bestGap) {
+		if gap := offsets[j] - prevEnd; gap >= size && (bestGap < 0 || gap < bestGap) {
 			best, bestGap = prevEnd, gap
 		}
-		prevEnd = max(prevEnd, o.Offset+o.Size)
+		prevEnd = max(prevEnd, offsets[j]+max(tensors[j].Size, 0))
 	}
 	if best < 0 {
 		return prevEnd
@@ -549,10 +585,11 @@ type runList struct{ c, at, n int32 }
 // than that has a chunk of its own.
 const runChunk = 1 << 13
 
-// roomFor is the room given to a list of n runs: the next power of two,
-// at least 2 (most lists hold one or two runs).
+// roomFor is the room given to a list of n runs: the next power of two.
+// Most lists hold a single run (the tensors under a node pack into one),
+// so a list starts with room for one.
 func roomFor(n int32) int32 {
-	return max(2, int32(1)<<bits.Len32(uint32(n-1)))
+	return max(1, int32(1)<<bits.Len32(uint32(n-1)))
 }
 
 func newRunTree(size int) *runTree {

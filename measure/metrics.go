@@ -184,7 +184,7 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	)
 	weightsAndGraph := func() {
 		ws, wsErr = weights(inf, opts.WeightsRead)
-		plan := PlanMemory(inf)
+		plan := planGraph(inf, m.Graph, inf.Values, 0, opts.Layers)
 		out.Memory.Graph = MemoryView{PeakLiveBytes: plan.PeakLiveBytes, ArenaBytes: plan.ArenaBytes}
 		out.MemoryDetail = MemoryDetail{PeakStep: plan.PeakStep, LiveAtPeak: plan.LiveAtPeak, ArenaRatio: plan.Ratio()}
 		graphDetail = viewDetail(plan, opts.Layers)
