@@ -124,15 +124,15 @@ func noOpView(n *model.Node, vals *Values) bool {
 // dropped tensor is never stored.
 type dtensor struct {
 	id          int32
+	dropped     bool
+	isOut       bool // root buffers only: the buffer holds a graph output
 	first, last int
 	producer    int // node whose output it is; -1 for a graph input
 	head        int // node heading its fused group (the step it is written at)
-	dropped     bool
 	parent      *dtensor
 	// Root buffers only, set once lifetimes are gathered.
 	size   int64
 	reason string
-	isOut  bool       // the buffer holds a graph output
 	segs   []Lifetime // the tensors the buffer holds, in turn
 }
 
@@ -274,10 +274,8 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 	hasBody := make([]bool, len(g.Nodes))
 	st := &deployState{g: g, x: x, recs: recs, readers: readers, isOutput: isOutput, static: static,
 		hasBody: hasBody, views: views, groupOut: groupOut, add: add, fused: &fused}
+	st.slab = make([]dtensor, 0, len(x.out))
 	var outs []int32
-	// The records of node outputs come from one block: one each was most
-	// of this pass's allocations on a large graph.
-	slab := make([]dtensor, 0, len(x.out))
 	for i, n := range g.Nodes {
 		outs, hasBody[i] = planStep(plan, inf, x, static, n, i, depth, bodyPeak, bodyArena,
 			func(id int32) {
@@ -299,8 +297,7 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 			continue
 		}
 		for _, id := range outs {
-			slab = append(slab, dtensor{id: id, first: i, last: i, producer: i, head: i})
-			t := &slab[len(slab)-1]
+			t := st.newTensor(dtensor{id: id, first: i, last: i, producer: i, head: i})
 			add(t)
 			groupOut[i] = t
 		}
@@ -454,6 +451,17 @@ type deployState struct {
 	groupOut []*dtensor
 	add      func(*dtensor)
 	fused    *[]fusion
+	// slab holds the records of node outputs, taken one after another
+	// (newTensor): one allocation each was most of this pass's on a large
+	// graph. Sized for every output; were it ever to grow, the records
+	// already taken stay where they are, as nothing reads them through it.
+	slab []dtensor
+}
+
+// newTensor is a record of the graph's tensors holding t.
+func (st *deployState) newTensor(t dtensor) *dtensor {
+	st.slab = append(st.slab, t)
+	return &st.slab[len(st.slab)-1]
 }
 
 // fusable returns the buffer a node reading x can be fused into: x itself,
@@ -493,7 +501,7 @@ func (st *deployState) fuseInto(root *dtensor, chain []*dtensor, out int32, i in
 		c.dropped = true
 		*st.fused = append(*st.fused, fusion{c.id, out})
 	}
-	t := &dtensor{id: out, first: root.first, last: root.first, producer: i, head: root.head}
+	t := st.newTensor(dtensor{id: out, first: root.first, last: root.first, producer: i, head: root.head})
 	st.add(t)
 	st.groupOut[root.head] = t
 }
@@ -516,7 +524,7 @@ func (st *deployState) rewrite(i int, n *model.Node, out int32, opts DeployOptio
 		}
 	}
 	alias := func() bool {
-		st.add(&dtensor{id: out, first: i, last: i, producer: i, head: i, parent: x})
+		st.add(st.newTensor(dtensor{id: out, first: i, last: i, producer: i, head: i, parent: x}))
 		return true
 	}
 	// fuse writes out at x's step instead of x, when nothing else reads x.
