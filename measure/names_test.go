@@ -43,7 +43,7 @@ func TestNameTableAsMap(t *testing.T) {
 	if _, _, ok := tab.find(names, "absent"); ok {
 		t.Error(`find("absent") found a name never added`)
 	}
-	if 2*len(names) >= len(tab.slots) {
-		t.Errorf("%d names in %d slots: more than half full", len(names), len(tab.slots))
+	if 3*len(names) >= 2*len(tab.slots) {
+		t.Errorf("%d names in %d slots: more than two thirds full", len(names), len(tab.slots))
 	}
 }
