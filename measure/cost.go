@@ -1016,10 +1016,10 @@ func (k *coster) tripCount(n *model.Node, c *costCtx) (int64, string) {
 		return -1, "a TFLite WHILE runs until its condition subgraph says stop"
 	case "SequenceMap":
 		s := c.in(0)
-		if s == nil || !s.SeqKnown {
+		if s == nil || !s.SeqKnown() {
 			return -1, "the sequence's length is known only at run time"
 		}
-		return int64(len(s.Seq)), ""
+		return int64(len(s.Seq())), ""
 	}
 	return -1, "not a loop"
 }

@@ -259,7 +259,7 @@ func TestHostileSplitToSequenceHugeAxis(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			if v := res.Values.Get("s"); v == nil || v.Type.Kind != model.KindSequence || v.SeqKnown {
+			if v := res.Values.Get("s"); v == nil || v.Type.Kind != model.KindSequence || v.SeqKnown() {
 				t.Errorf("s: want a sequence of unknown length, got %+v", v)
 			}
 		})
@@ -286,7 +286,7 @@ func TestHostileSequenceMapUnequalLengths(t *testing.T) {
 		Outputs: []*model.ValueInfo{{Name: "out"}},
 	}
 	res, err := Infer(graphModel(g), InferOptions{})
-	if err == nil && (res.Values.Get("out") == nil || res.Values.Get("out").SeqKnown) {
+	if err == nil && (res.Values.Get("out") == nil || res.Values.Get("out").SeqKnown()) {
 		t.Errorf("out: want an error or a sequence of unknown length, got %+v", res.Values.Get("out"))
 	}
 }

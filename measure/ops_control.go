@@ -62,12 +62,12 @@ func mergeValues(a, b *Value, name string) *Value {
 		return a
 	}
 	if a.Type.Kind == model.KindSequence || b.Type.Kind == model.KindSequence {
-		if a.SeqKnown && b.SeqKnown && len(a.Seq) == len(b.Seq) {
-			out := &Value{Type: a.Type, SeqKnown: true}
-			for i := range a.Seq {
-				out.Seq = append(out.Seq, mergeValues(a.Seq[i], b.Seq[i], fmt.Sprintf("%s_%d", name, i)))
+		if a.SeqKnown() && b.SeqKnown() && len(a.Seq()) == len(b.Seq()) {
+			seq := &sequence{known: true}
+			for i := range a.Seq() {
+				seq.items = append(seq.items, mergeValues(a.Seq()[i], b.Seq()[i], fmt.Sprintf("%s_%d", name, i)))
 			}
-			return out
+			return &Value{Type: a.Type, seq: seq}
 		}
 		return &Value{Type: a.Type}
 	}
@@ -464,7 +464,7 @@ func inferScan(c *ctx) ([]*Value, error) {
 
 func seqValue(el model.Type, items []*Value, known bool) *Value {
 	e := el
-	return &Value{Type: model.Type{Kind: model.KindSequence, DType: el.DType, Elem: &e}, Seq: items, SeqKnown: known}
+	return &Value{Type: model.Type{Kind: model.KindSequence, DType: el.DType, Elem: &e}, seq: &sequence{items, known}}
 }
 
 // seqElemType merges the element types of a known sequence.
@@ -549,11 +549,11 @@ func inferSequenceInsert(c *ctx) ([]*Value, error) {
 	if err != nil {
 		return nil, err
 	}
-	if s.SeqKnown {
-		if pos, ok := seqPos(c, 2, len(s.Seq), true); ok {
-			items := append(append(append([]*Value{}, s.Seq[:pos]...), t), s.Seq[pos:]...)
+	if s.SeqKnown() {
+		if pos, ok := seqPos(c, 2, len(s.Seq()), true); ok {
+			items := append(append(append([]*Value{}, s.Seq()[:pos]...), t), s.Seq()[pos:]...)
 			el := t.Type
-			if len(s.Seq) > 0 {
+			if len(s.Seq()) > 0 {
 				el = mergeValues(&Value{Type: elemOf(s)}, t, "seq").Type
 			}
 			return []*Value{seqValue(el, items, true)}, nil
@@ -567,9 +567,9 @@ func inferSequenceErase(c *ctx) ([]*Value, error) {
 	if err != nil {
 		return nil, err
 	}
-	if s.SeqKnown && len(s.Seq) > 0 {
-		if pos, ok := seqPos(c, 1, len(s.Seq), false); ok {
-			items := append(append([]*Value{}, s.Seq[:pos]...), s.Seq[pos+1:]...)
+	if s.SeqKnown() && len(s.Seq()) > 0 {
+		if pos, ok := seqPos(c, 1, len(s.Seq()), false); ok {
+			items := append(append([]*Value{}, s.Seq()[:pos]...), s.Seq()[pos+1:]...)
 			return []*Value{seqValue(seqElemType(items, elemOf(s)), items, true)}, nil
 		}
 	}
@@ -581,9 +581,9 @@ func inferSequenceAt(c *ctx) ([]*Value, error) {
 	if err != nil {
 		return nil, err
 	}
-	if s.SeqKnown && len(s.Seq) > 0 {
-		if pos, ok := seqPos(c, 1, len(s.Seq), false); ok {
-			return []*Value{s.Seq[pos]}, nil
+	if s.SeqKnown() && len(s.Seq()) > 0 {
+		if pos, ok := seqPos(c, 1, len(s.Seq()), false); ok {
+			return []*Value{s.Seq()[pos]}, nil
 		}
 	}
 	return []*Value{{Type: elemOf(s)}}, nil
@@ -595,8 +595,8 @@ func inferSequenceLength(c *ctx) ([]*Value, error) {
 		return nil, err
 	}
 	v := tensor(model.Int64, model.Shape{})
-	if s.SeqKnown {
-		v.held = intData(int64(len(s.Seq)))
+	if s.SeqKnown() {
+		v.held = intData(int64(len(s.Seq())))
 	}
 	return []*Value{v}, nil
 }
@@ -661,7 +661,7 @@ func inferConcatFromSequence(c *ctx) ([]*Value, error) {
 		return nil, err
 	}
 	newAxis := c.attrInt("new_axis", 0) == 1
-	if !s.SeqKnown || len(s.Seq) == 0 {
+	if !s.SeqKnown() || len(s.Seq()) == 0 {
 		el := elemOf(s)
 		if !el.RankKnown {
 			return []*Value{unknownRank(el.DType)}, nil
@@ -682,7 +682,7 @@ func inferConcatFromSequence(c *ctx) ([]*Value, error) {
 		}
 		return []*Value{tensor(el.DType, out)}, nil
 	}
-	first := s.Seq[0]
+	first := s.Seq()[0]
 	if !first.Type.RankKnown {
 		return []*Value{unknownRank(first.Type.DType)}, nil
 	}
@@ -695,11 +695,11 @@ func inferConcatFromSequence(c *ctx) ([]*Value, error) {
 		return nil, err
 	}
 	if newAxis {
-		return []*Value{stackShape(model.Known(int64(len(s.Seq))), first, axis)}, nil
+		return []*Value{stackShape(model.Known(int64(len(s.Seq()))), first, axis)}, nil
 	}
 	out := first.Type.Shape.Clone()
 	out[axis] = model.Known(0)
-	for _, it := range s.Seq {
+	for _, it := range s.Seq() {
 		if !it.Type.RankKnown || len(it.Type.Shape) != len(out) {
 			return nil, fmt.Errorf("sequence elements differ in rank")
 		}
@@ -722,14 +722,14 @@ func inferSequenceMap(c *ctx) ([]*Value, error) {
 	length := -1
 	for _, v := range c.in {
 		if v != nil && v.Type.Kind == model.KindSequence {
-			if !v.SeqKnown {
+			if !v.SeqKnown() {
 				length = -1
 				break
 			}
-			if length >= 0 && len(v.Seq) != length {
-				return nil, fmt.Errorf("input sequences have %d and %d items; SequenceMap needs equal lengths", length, len(v.Seq))
+			if length >= 0 && len(v.Seq()) != length {
+				return nil, fmt.Errorf("input sequences have %d and %d items; SequenceMap needs equal lengths", length, len(v.Seq()))
 			}
-			length = len(v.Seq)
+			length = len(v.Seq())
 		}
 	}
 	if length < 0 {
@@ -756,7 +756,7 @@ func inferSequenceMap(c *ctx) ([]*Value, error) {
 		bound := make([]*Value, len(c.in))
 		for i, v := range c.in {
 			if v != nil && v.Type.Kind == model.KindSequence {
-				bound[i] = v.Seq[k]
+				bound[i] = v.Seq()[k]
 			} else {
 				bound[i] = v
 			}

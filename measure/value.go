@@ -21,9 +21,10 @@ type Value struct {
 	// converting each to float64s up front costs time and memory for
 	// nothing.
 	lazy *storedContents
-	Seq  []*Value // elements of a sequence whose length is known
-	// SeqKnown reports that Seq lists every element of a sequence value.
-	SeqKnown bool
+	// seq is what is known of a sequence value's elements, nil when
+	// nothing is: a pointer, as few values are sequences and a list and
+	// flag in every value made each a quarter larger.
+	seq *sequence
 	// Weight marks a value that comes straight from an initializer or a
 	// Constant node: stored in the model file, not computed at run time.
 	Weight bool
@@ -34,6 +35,23 @@ type Value struct {
 	// activation; the runtime view counts it as persistent bytes.
 	State bool
 }
+
+// sequence is what is known of the elements of a sequence value.
+type sequence struct {
+	items []*Value
+	known bool // items lists every element
+}
+
+// Seq is the elements of a sequence value whose length is known.
+func (v *Value) Seq() []*Value {
+	if v.seq == nil {
+		return nil
+	}
+	return v.seq.items
+}
+
+// SeqKnown reports that Seq lists every element of a sequence value.
+func (v *Value) SeqKnown() bool { return v.seq != nil && v.seq.known }
 
 // Data holds the contents of a small constant tensor in row-major order.
 // Integer and bool tensors keep their elements as dims, so that a shape read

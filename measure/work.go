@@ -130,7 +130,7 @@ func valuesSize(vs []*Value) int64 {
 		if v == nil {
 			continue
 		}
-		n += int64(len(v.Type.Shape)) + int64(len(v.Seq))
+		n += int64(len(v.Type.Shape)) + int64(len(v.Seq()))
 		if d := v.heldData(); d != nil {
 			n += int64(d.Len())
 		}
@@ -260,7 +260,7 @@ func appendValue(b []byte, v *Value, depth int) []byte {
 		return append(b, 0)
 	}
 	flags := byte(1)
-	if v.SeqKnown {
+	if v.SeqKnown() {
 		flags |= 2
 	}
 	if v.Weight {
@@ -286,9 +286,9 @@ func appendValue(b []byte, v *Value, depth int) []byte {
 	} else {
 		b = append(b, 0)
 	}
-	b = appendInt(b, int64(len(v.Seq)))
+	b = appendInt(b, int64(len(v.Seq())))
 	if depth < maxGraphDepth {
-		for _, it := range v.Seq {
+		for _, it := range v.Seq() {
 			b = appendValue(b, it, depth+1)
 		}
 	}

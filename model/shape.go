@@ -140,9 +140,9 @@ func (k TypeKind) String() string {
 // Type is the type of a value flowing through a graph.
 type Type struct {
 	Kind      TypeKind
+	RankKnown bool  // beside Kind, so that the small fields pack in 8 bytes
 	DType     DType // element type of a tensor, or of a sequence's tensors
 	Shape     Shape // meaningful when RankKnown
-	RankKnown bool
 	Elem      *Type // element type of a sequence or optional
 }
 
