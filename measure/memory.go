@@ -576,14 +576,23 @@ type runTree struct {
 	chunkSize   int // the size of the last regular chunk
 }
 
-// runList is the runs chunks[c][at : at+n]. Its room is implicit: a list
-// is given roomFor(n) runs when it is placed, and as joining runs only
-// shortens it, roomFor of its current length never exceeds what it has.
-type runList struct{ c, at, n int32 }
+// runList is the runs chunks[c][at : at+n], with c and at packed in pos
+// (c<<13 | at: a regular chunk holds runChunk runs, and a list with a
+// chunk of its own starts at 0), so that a list takes 8 bytes. Its room is
+// implicit: a list is given roomFor(n) runs when it is placed, and as
+// joining runs only shortens it, roomFor of its current length never
+// exceeds what it has.
+type runList struct{ pos, n int32 }
+
+func (l runList) chunk() int32 { return l.pos >> runChunkBits }
+func (l runList) at() int32    { return l.pos & (runChunk - 1) }
 
 // runChunk is the largest size of a chunk of runs; a list with more room
 // than that has a chunk of its own.
-const runChunk = 1 << 13
+const (
+	runChunkBits = 13
+	runChunk     = 1 << runChunkBits
+)
 
 // roomFor is the room given to a list of n runs: the next power of two.
 // Most lists hold a single run (the tensors under a node pack into one),
@@ -592,9 +601,11 @@ func roomFor(n int32) int32 {
 	return max(1, int32(1)<<bits.Len32(uint32(n-1)))
 }
 
+// newRunTree is an empty tree over size steps. Only a node with children
+// holds part lists, and those are numbered below half of treeNodes.
 func newRunTree(size int) *runTree {
 	n := treeNodes(size)
-	return &runTree{size: size, cover: make([]runList, n), part: make([]runList, n)}
+	return &runTree{size: size, cover: make([]runList, n), part: make([]runList, n/2)}
 }
 
 // treeNodes is the length of the node arrays of a segment tree over size
@@ -633,6 +644,9 @@ func (t *runTree) q(node, l, h, a, b int, out []byteRun) []byteRun {
 	}
 	out = append(out, t.runs(t.cover[node])...)
 	if a <= l && h <= b {
+		if l == h {
+			return out // a single step: no part list
+		}
 		return append(out, t.runs(t.part[node])...)
 	}
 	mid := (l + h) / 2
@@ -645,7 +659,7 @@ func (t *runTree) runs(l runList) []byteRun {
 	if l.n == 0 {
 		return nil
 	}
-	return t.chunks[l.c][l.at : l.at+l.n]
+	return t.chunks[l.chunk()][l.at() : l.at()+l.n]
 }
 
 // place finds room for a list of n runs and returns the list, its runs
@@ -665,7 +679,7 @@ func (t *runTree) place(n int32) (runList, []byteRun) {
 	}
 	at := len(t.chunks[c])
 	t.chunks[c] = t.chunks[c][:at+room]
-	return runList{int32(c), int32(at), n}, t.chunks[c][at : at+int(n)]
+	return runList{int32(c)<<runChunkBits | int32(at), n}, t.chunks[c][at : at+int(n)]
 }
 
 // add adds r to list l, joining the runs it overlaps or touches, and
@@ -689,12 +703,12 @@ func (t *runTree) add(l runList, r byteRun) runList {
 		copy(to[i+1:], rs[j:])
 		return moved
 	}
-	rs = t.chunks[l.c][l.at : l.at+max(l.n, n)]
+	rs = t.chunks[l.chunk()][l.at() : l.at()+max(l.n, n)]
 	if j != i+1 {
 		copy(rs[i+1:], rs[j:l.n])
 	}
 	rs[i] = r
-	return runList{l.c, l.at, n}
+	return runList{l.pos, n}
 }
 
 // stepTree is a segment tree over steps 0..size-1 holding intervals of
