@@ -3,6 +3,7 @@ package measure
 import (
 	"fmt"
 	"math"
+	"slices"
 
 	"github.com/loadline/loadline/model"
 )
@@ -216,12 +217,26 @@ func foldBinary(a, b *Value, out model.Shape, op binaryOp) *Data {
 	return &Data{Floats: res}
 }
 
+// sameShape is an input's shape when out equals it, else out: most
+// elementwise results have the shape of an input, and values share their
+// shapes as they do their types (no rule changes a shape it did not make),
+// so a large graph keeps one shape where it kept two.
+func sameShape(out model.Shape, ins []model.Shape) model.Shape {
+	for _, s := range ins {
+		if slices.Equal(s, out) {
+			return s[:len(s):len(s)]
+		}
+	}
+	return out
+}
+
 func binaryRule(op string, b binaryOp) func(c *ctx) ([]*Value, error) {
 	return func(c *ctx) ([]*Value, error) {
 		if len(c.in) == 0 {
 			return nil, fmt.Errorf("%s needs at least one input", op)
 		}
-		var shapes []model.Shape
+		var buf [2]model.Shape
+		shapes := buf[:0]
 		for i := range c.in {
 			s, err := c.shape(i)
 			if err != nil {
@@ -233,6 +248,7 @@ func binaryRule(op string, b binaryOp) func(c *ctx) ([]*Value, error) {
 		if err != nil {
 			return nil, err
 		}
+		out = sameShape(out, shapes)
 		dt := c.dtype(0)
 		if b.bool {
 			dt = model.Bool

@@ -71,7 +71,7 @@ func matmulShape(as, bs model.Shape) (model.Shape, error) {
 	if err != nil {
 		return nil, fmt.Errorf("batch dims of A %v and B %v do not broadcast", as, bs)
 	}
-	out := batch
+	out := append(make(model.Shape, 0, len(batch)+2), batch...)
 	if len(as) > 1 {
 		out = append(out, a[len(a)-2])
 	}
