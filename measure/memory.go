@@ -455,10 +455,17 @@ func placeArena(tensors []Lifetime) (offsets []int64, arena int64) {
 	}
 	slices.Sort(stepVals)
 	stepVals = slices.Compact(stepVals)
-	rank := func(step int) int {
-		r, _ := slices.BinarySearch(stepVals, step)
-		return r
+	// Each tensor's first and last step as ranks, found once; the step
+	// values are not needed after.
+	ranks := make([]int32, 2*n)
+	for i, t := range tensors {
+		r, _ := slices.BinarySearch(stepVals, t.First)
+		ranks[2*i] = int32(r)
+		r, _ = slices.BinarySearch(stepVals, last(int32(i)))
+		ranks[2*i+1] = int32(r)
 	}
+	steps := len(stepVals)
+	stepVals = nil
 	idx := make([]int32, n)
 	for i := range idx {
 		idx[i] = int32(i)
@@ -478,13 +485,13 @@ func placeArena(tensors []Lifetime) (offsets []int64, arena int64) {
 		return cmp.Compare(a, b)
 	})
 
-	runs := newRunTree(len(stepVals))
+	runs := newRunTree(steps)
 	var tree *stepTree // built for the zero-sized tensors only
 	var stamp []int32
 	var buf []byteRun
 	var cand []int32
 	for q, i := range idx {
-		a, b := rank(tensors[i].First), rank(last(i))
+		a, b := int(ranks[2*i]), int(ranks[2*i+1])
 		sz := size(i)
 		if sz > 0 {
 			buf = runs.query(a, b, buf[:0])
@@ -492,10 +499,10 @@ func placeArena(tensors []Lifetime) (offsets []int64, arena int64) {
 			runs.insert(a, b, byteRun{offsets[i], offsets[i] + sz})
 		} else {
 			if tree == nil {
-				tree = newStepTree(len(stepVals), n-q)
+				tree = newStepTree(steps, n-q)
 				stamp = make([]int32, n)
 				for _, j := range idx[:q] {
-					tree.insert(rank(tensors[j].First), rank(last(j)), j)
+					tree.insert(int(ranks[2*j]), int(ranks[2*j+1]), j)
 				}
 			}
 			cand = tree.query(a, b, int32(q+1), stamp, cand[:0])
