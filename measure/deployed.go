@@ -124,13 +124,19 @@ func noOpView(n *model.Node, vals *Values) bool {
 // dropped tensor is never stored.
 type dtensor struct {
 	id          int32
+	buf         int32 // 1 + a root buffer's number among the bufInfos; 0 for none yet
 	dropped     bool
 	isOut       bool // root buffers only: the buffer holds a graph output
 	first, last int
 	producer    int // node whose output it is; -1 for a graph input
 	head        int // node heading its fused group (the step it is written at)
 	parent      *dtensor
-	// Root buffers only, set once lifetimes are gathered.
+}
+
+// bufInfo is what the deployed view learns of a root buffer once
+// lifetimes are gathered: kept apart from the tensors' records, as few
+// tensors are roots.
+type bufInfo struct {
 	size   int64
 	reason string
 	segs   []Lifetime // the tensors the buffer holds, in turn
@@ -310,6 +316,7 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 
 	// Gather each buffer's lifetime over the tensors sharing it.
 	var roots []*dtensor
+	var bufs []bufInfo // by root, in turn
 	for _, t := range order {
 		if t.dropped {
 			continue
@@ -317,7 +324,9 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 		r := t.root()
 		if r == t {
 			roots = append(roots, t)
-			t.size, t.reason = tensorBytes(x.vals[t.id])
+			size, reason := tensorBytes(x.vals[t.id])
+			bufs = append(bufs, bufInfo{size: size, reason: reason})
+			t.buf = int32(len(bufs))
 			continue
 		}
 		r.first, r.last = min(r.first, t.first), max(r.last, t.last)
@@ -331,8 +340,17 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 
 	segs := make([]Lifetime, len(roots))
 	for k, r := range roots {
-		segs[k] = Lifetime{Name: x.names[r.id], Size: r.size, First: r.first, Last: r.last}
-		r.segs = segs[k : k+1 : k+1]
+		segs[k] = Lifetime{Name: x.names[r.id], Size: bufs[k].size, First: r.first, Last: r.last}
+		bufs[k].segs = segs[k : k+1 : k+1]
+	}
+	// infoOf is the number of t's bufInfo, a zero one made for a buffer
+	// not gathered above (one that was dropped).
+	infoOf := func(t *dtensor) int {
+		if t.buf == 0 {
+			bufs = append(bufs, bufInfo{})
+			t.buf = int32(len(bufs))
+		}
+		return int(t.buf - 1)
 	}
 
 	if opts.InPlaceDepthwise {
@@ -346,22 +364,24 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 				continue
 			}
 			rx, ry := xt.root(), y.root()
-			if rx == ry || rx.last != i || ry.first != i || rx.reason != "" || ry.reason != "" || rx.isOut || ry.size > rx.size {
+			kx, ky := infoOf(rx), infoOf(ry)
+			bx, by := &bufs[kx], &bufs[ky]
+			if rx == ry || rx.last != i || ry.first != i || bx.reason != "" || by.reason != "" || rx.isOut || by.size > bx.size {
 				continue
 			}
 			// The output takes over the input's buffer: at step i the
 			// buffer counts once, at the input's size; after it, at the
 			// output's. In the arena it stays one block of the input's
 			// size until the output dies.
-			for _, sg := range ry.segs {
+			for _, sg := range by.segs {
 				if sg.First == i {
 					sg.First = i + 1
 				}
 				if sg.First <= sg.Last {
-					rx.segs = append(rx.segs, sg)
+					bx.segs = append(bx.segs, sg)
 				}
 			}
-			ry.parent, ry.segs = rx, nil
+			ry.parent, by.segs = rx, nil
 			rx.last = max(rx.last, ry.last)
 		}
 	}
@@ -372,8 +392,9 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 			continue // merged in place into another buffer
 		}
 		name := x.names[r.id]
-		if r.reason != "" {
-			u := Unresolved{Node: name, Reason: fmt.Sprintf("memory unknown: %s (tensor %q)", r.reason, name)}
+		b := &bufs[r.buf-1]
+		if b.reason != "" {
+			u := Unresolved{Node: name, Reason: fmt.Sprintf("memory unknown: %s (tensor %q)", b.reason, name)}
 			if r.producer >= 0 {
 				n := g.Nodes[r.producer]
 				u.Node, u.Op = nodeLabel(n, r.producer), n.Op
@@ -381,8 +402,8 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 			plan.Unresolved = append(plan.Unresolved, u)
 			continue
 		}
-		lts = append(lts, Lifetime{Name: name, Size: r.size, First: r.first, Last: r.last})
-		live = append(live, r.segs...)
+		lts = append(lts, Lifetime{Name: name, Size: b.size, First: r.first, Last: r.last})
+		live = append(live, b.segs...)
 	}
 	// Tensors computed from constants at load time and held for the whole
 	// run (static.go), as in the graph view.
