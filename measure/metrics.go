@@ -184,6 +184,12 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 	)
 	weightsAndGraph := func() {
 		ws, wsErr = weights(inf, opts.WeightsRead)
+		addParams(out, ws)
+		if !opts.Digests {
+			// The figures are taken: the list of weights (megabytes on
+			// a large graph) need not be held while the graph is planned.
+			ws = nil
+		}
 		plan := planGraph(inf, m.Graph, inf.Values, 0, opts.Layers)
 		out.Memory.Graph = MemoryView{PeakLiveBytes: plan.PeakLiveBytes, ArenaBytes: plan.ArenaBytes}
 		out.MemoryDetail = MemoryDetail{PeakStep: plan.PeakStep, LiveAtPeak: plan.LiveAtPeak, ArenaRatio: plan.Ratio()}
@@ -203,15 +209,6 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 		return nil, wsErr
 	}
 	out.ExternalBytes = externalBytes(m.Graph, 0)
-	for _, w := range ws {
-		out.Params += w.Elements
-		out.ParamBytes += w.Bytes
-		if w.Generated {
-			out.GeneratedParamBytes += w.Bytes
-		}
-	}
-	out.ParamsByDType = ParamsByDType(ws)
-	out.Sparsity = sparsity(ws)
 	out.MACs, out.FLOPs = costs.MACs, costs.FLOPs
 	out.Unresolved = appendUnresolved(out.Unresolved, costs.Unresolved)
 	if opts.Layers {
@@ -253,6 +250,19 @@ func Measure(m *model.Model, fileBytes int64, opts Options) (*Metrics, error) {
 		out.Outputs = append(out.Outputs, ioInfo(o))
 	}
 	return out, nil
+}
+
+// addParams sets the parameter figures of out from the weights ws.
+func addParams(out *Metrics, ws []ParamTensor) {
+	for _, w := range ws {
+		out.Params += w.Elements
+		out.ParamBytes += w.Bytes
+		if w.Generated {
+			out.GeneratedParamBytes += w.Bytes
+		}
+	}
+	out.ParamsByDType = ParamsByDType(ws)
+	out.Sparsity = sparsity(ws)
 }
 
 func ioInfo(nv NamedValue) IOInfo {
