@@ -137,8 +137,8 @@ func PlanMemory(inf *Inference) *MemoryPlan {
 // tensorRec is what planGraph learns of one tensor while walking the nodes.
 type tensorRec struct {
 	id          int32
-	first, last int
-	producer    int // node index, -1 for a graph input
+	first, last int32
+	producer    int32 // node index, -1 for a graph input
 }
 
 // planGraph plans graph g; all keeps every placement (else only those
@@ -158,9 +158,9 @@ func planGraph(inf *Inference, g *model.Graph, vals *Values, depth int, all bool
 		if old := recs[id]; old != nil {
 			// A name defined twice (not valid ONNX): the later definition
 			// wins; the earlier one ends where it was redefined.
-			old.last = max(old.last, step)
+			old.last = max(old.last, int32(step))
 		}
-		order = append(order, tensorRec{id: id, first: step, last: step, producer: producer})
+		order = append(order, tensorRec{id: id, first: int32(step), last: int32(step), producer: int32(producer)})
 		recs[id] = &order[len(order)-1]
 	}
 	// order never grows past its capacity, so that recs keeps pointing
@@ -176,7 +176,7 @@ func planGraph(inf *Inference, g *model.Graph, vals *Values, depth int, all bool
 	touch := func(i int) func(int32) {
 		return func(id int32) {
 			if recs[id] != nil {
-				recs[id].last = i
+				recs[id].last = int32(i)
 			}
 		}
 	}
@@ -192,7 +192,7 @@ func planGraph(inf *Inference, g *model.Graph, vals *Values, depth int, all bool
 	}
 	for _, o := range g.Outputs {
 		if id := x.lookup(o.Name); id >= 0 && recs[id] != nil {
-			recs[id].last = lastStep
+			recs[id].last = int32(lastStep)
 		}
 	}
 
@@ -204,12 +204,12 @@ func planGraph(inf *Inference, g *model.Graph, vals *Values, depth int, all bool
 			u := Unresolved{Node: name, Reason: fmt.Sprintf("memory unknown: %s (tensor %q)", reason, name)}
 			if r.producer >= 0 {
 				n := g.Nodes[r.producer]
-				u.Node, u.Op = nodeLabel(n, r.producer), n.Op
+				u.Node, u.Op = nodeLabel(n, int(r.producer)), n.Op
 			}
 			plan.Unresolved = append(plan.Unresolved, u)
 			continue
 		}
-		lts = append(lts, Lifetime{Name: name, Size: size, First: r.first, Last: r.last})
+		lts = append(lts, Lifetime{Name: name, Size: size, First: int(r.first), Last: int(r.last)})
 	}
 	// Tensors computed from constants at load time and held for the whole
 	// run (static.go).
