@@ -2,7 +2,6 @@ package measure
 
 import (
 	"fmt"
-	"sync"
 	"sync/atomic"
 
 	"github.com/loadline/loadline/model"
@@ -243,17 +242,37 @@ func tensorValue(t *model.Tensor) *Value {
 // storedContents is a stored tensor's contents, read on first use. Values
 // that re-view the tensor (shareContents) share it, so it is read once,
 // and the passes after inference, which may run side by side (Measure),
-// read it without a lock on the way once it is read.
+// read it without a lock on the way once it is read. Two passes asking at
+// once may both convert it (the conversion is the same); the first to
+// finish is kept, so every caller sees one Data. No sync.Once: a large
+// model has tens of thousands of these, and it made each twice the size.
 type storedContents struct {
 	tensor *model.Tensor
-	once   sync.Once
-	data   atomic.Pointer[Data] // nil until read, or when unreadable or too large
+	data   atomic.Pointer[Data] // nil until read; noContents when unreadable or too large
 }
+
+// noContents marks stored contents read and found unreadable or too large.
+var noContents = &Data{}
 
 // read is the contents, read on the first call.
 func (s *storedContents) read() *Data {
-	s.once.Do(func() { s.data.Store(dataFromTensor(s.tensor)) })
-	return s.data.Load()
+	d := s.data.Load()
+	if d == nil {
+		if d = dataFromTensor(s.tensor); d == nil {
+			d = noContents
+		}
+		s.data.CompareAndSwap(nil, d)
+		d = s.data.Load()
+	}
+	return s.loaded(d)
+}
+
+// loaded is d, a stored contents' data, with noContents as nil.
+func (s *storedContents) loaded(d *Data) *Data {
+	if d == noContents {
+		return nil
+	}
+	return d
 }
 
 // Const is the known contents of v: nil when unknown or too large to hold
@@ -272,7 +291,7 @@ func (v *Value) heldData() *Data {
 	if v.held != nil || v.lazy == nil {
 		return v.held
 	}
-	return v.lazy.data.Load()
+	return v.lazy.loaded(v.lazy.data.Load())
 }
 
 // shareContents makes v's contents those of src, in the same element order,
