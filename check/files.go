@@ -50,7 +50,7 @@ func MeasureFile(path string, opts measure.Options) (m *measure.Metrics) {
 	// read faults. Turn that fault into an error for this file instead of
 	// a crash of the whole run; any other panic is a bug and goes on up.
 	return onMapped(path, func() *measure.Metrics {
-		return decodeAndMeasure(path, f.data, format.Options{}, opts)
+		return decodeThenMeasure(path, f.data, format.Options{}, opts, f.decoded)
 	})
 }
 
@@ -97,9 +97,18 @@ func failed(path string, err error) *measure.Metrics {
 // door that reads every format (model/format) and measures it; errors come
 // back as a failed entry named path.
 func decodeAndMeasure(path string, data []byte, dec format.Options, opts measure.Options) *measure.Metrics {
+	return decodeThenMeasure(path, data, dec, opts, nil)
+}
+
+// decodeThenMeasure is decodeAndMeasure, calling decoded (when set) between
+// the two.
+func decodeThenMeasure(path string, data []byte, dec format.Options, opts measure.Options, decoded func()) *measure.Metrics {
 	m, err := format.Open(path, data, dec)
 	if err != nil {
 		return failed(path, err)
+	}
+	if decoded != nil {
+		decoded()
 	}
 	met, err := measure.Measure(m, int64(len(data)), opts)
 	if err != nil {

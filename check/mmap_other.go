@@ -14,6 +14,7 @@ type mappedFile struct {
 	data       []byte
 	release    func()
 	readBehind func(b []byte) // nil: nothing to give back
+	decoded    func()         // nil: nothing to give back
 }
 
 // mapFile reads the whole file where memory mapping is not available.

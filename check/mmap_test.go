@@ -45,9 +45,9 @@ func TestMappedFileTruncated(t *testing.T) {
 var faultSink byte
 
 // TestMappedFileGivesBackPagesBehind: once the reading has moved past
-// them, the pages of a mapped model file leave the process's resident
-// memory (/proc/self/smaps, Linux), and reading them again gives the file's
-// bytes as before.
+// them, or the model is decoded, the pages of a mapped model file leave the
+// process's resident memory (/proc/self/smaps, Linux), and reading them
+// again gives the file's bytes as before.
 func TestMappedFileGivesBackPagesBehind(t *testing.T) {
 	const size = 8 << 20
 	want := make([]byte, size)
@@ -85,6 +85,24 @@ func TestMappedFileGivesBackPagesBehind(t *testing.T) {
 		t.Error("the pages read again differ from the file")
 	}
 	f.readBehind(make([]byte, 10)) // not in the mapping: ignored
+
+	// Decoding done: every page goes; reading the weights front to back
+	// brings them back, and the pages behind go again.
+	f.decoded()
+	if after, _ := residentKiB(t, f.data); after > 64 {
+		t.Errorf("resident %d KiB after giving back every page", after)
+	}
+	for i := 0; i < size; i += 4096 {
+		sum += f.data[i]
+	}
+	faultSink = sum
+	f.readBehind(f.data[4<<20:])
+	if after, _ := residentKiB(t, f.data); after > 4<<10+64 {
+		t.Errorf("resident %d KiB after reading the file again and giving back its first 4 MiB", after)
+	}
+	if !bytes.Equal(f.data, want) {
+		t.Error("the pages read again differ from the file")
+	}
 }
 
 // residentKiB is the resident size of the mapping that starts at data, from

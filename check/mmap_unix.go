@@ -21,6 +21,9 @@ type mappedFile struct {
 	// that lie wholly before b (a slice of data), once they are no longer
 	// read (measure.Options.WeightsRead); nil for a file read whole.
 	readBehind func(b []byte)
+	// decoded, for a mapped file, gives back every page read so far, once
+	// the model is decoded; nil for a file read whole.
+	decoded func()
 }
 
 // mapFile maps a file read-only, so that decoding touches only the pages it
@@ -40,7 +43,8 @@ func mapFile(path string) (*mappedFile, error) {
 	if err != nil {
 		return readWhole(path)
 	}
-	return &mappedFile{data: b, release: func() { syscall.Munmap(b) }, readBehind: pagesBehind(b)}, nil
+	g := &pageGiver{data: b, page: os.Getpagesize()}
+	return &mappedFile{data: b, release: func() { syscall.Munmap(b) }, readBehind: g.behind, decoded: g.all}, nil
 }
 
 func readWhole(path string) (*mappedFile, error) {
@@ -52,28 +56,40 @@ func readWhole(path string) (*mappedFile, error) {
 // given back before more are: one system call per step, not per weight.
 const giveBackStep = 1 << 20
 
-// pagesBehind returns readBehind for the mapping data. Pages given back
-// (MADV_DONTNEED) leave the process's resident memory; the kernel keeps
-// them in its page cache as it would after a read(2), and reading them
-// again maps them back in from the file. Without this, a measurement holds
-// every page of the file it has read, the whole file once the weights'
-// zeros are counted: 41 MiB of the resident memory of a 42 MB model of
-// 100,000 nodes, and all of a weights file of gigabytes.
-func pagesBehind(data []byte) func(b []byte) {
-	page := os.Getpagesize()
-	done := 0 // data[:done] is given back
-	base := uintptr(unsafe.Pointer(unsafe.SliceData(data)))
-	return func(b []byte) {
-		at := uintptr(unsafe.Pointer(unsafe.SliceData(b)))
-		if len(b) == 0 || at < base || at >= base+uintptr(len(data)) {
-			return
-		}
-		upTo := int(at-base) &^ (page - 1)
-		if upTo-done < giveBackStep {
-			return
-		}
-		// Advice only: a failure leaves the pages resident, nothing else.
-		_ = syscall.Madvise(data[done:upTo], syscall.MADV_DONTNEED)
-		done = upTo
+// pageGiver gives back pages of the mapping data once they are read.
+// Pages given back (MADV_DONTNEED) leave the process's resident memory; the
+// kernel keeps them in its page cache as it would after a read(2), and
+// reading them again maps them back in from the file. Without it, a
+// measurement holds every page of the file it has read, the whole file:
+// 41 MiB of the resident memory of a 42 MB model of 100,000 nodes at the
+// moment inference ends, and all of a weights file of gigabytes.
+type pageGiver struct {
+	data []byte
+	page int
+	done int // data[:done] is given back since the last all
+}
+
+// all gives back every page: decoding has read them all, and what is read
+// after (small constants during inference, then the weights front to back)
+// comes back on demand.
+func (g *pageGiver) all() {
+	// Advice only: a failure leaves the pages resident, nothing else.
+	_ = syscall.Madvise(g.data, syscall.MADV_DONTNEED)
+	g.done = 0
+}
+
+// behind gives back the pages that lie wholly before b, a slice of data,
+// in steps of giveBackStep.
+func (g *pageGiver) behind(b []byte) {
+	base := uintptr(unsafe.Pointer(unsafe.SliceData(g.data)))
+	at := uintptr(unsafe.Pointer(unsafe.SliceData(b)))
+	if len(b) == 0 || at < base || at >= base+uintptr(len(g.data)) {
+		return
 	}
+	upTo := int(at-base) &^ (g.page - 1)
+	if upTo-g.done < giveBackStep {
+		return
+	}
+	_ = syscall.Madvise(g.data[g.done:upTo], syscall.MADV_DONTNEED)
+	g.done = upTo
 }
