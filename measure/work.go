@@ -352,9 +352,6 @@ type trail struct {
 	node int    // ≥ 0: the link is ".node[node]"
 }
 
-// at is the trail of node i of the graph at t.
-func (t *trail) at(i int) *trail { return &trail{up: t, node: i} }
-
 // in is the trail of a subgraph or function body seg of the node at t.
 func (t *trail) in(seg string) *trail { return &trail{up: t, seg: seg, node: -1} }
 
