@@ -315,8 +315,14 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 	}
 
 	// Gather each buffer's lifetime over the tensors sharing it.
-	var roots []*dtensor
-	var bufs []bufInfo // by root, in turn
+	nRoots := 0
+	for _, t := range order {
+		if !t.dropped && t.root() == t {
+			nRoots++
+		}
+	}
+	roots := make([]*dtensor, 0, nRoots)
+	bufs := make([]bufInfo, 0, nRoots) // by root, in turn
 	for _, t := range order {
 		if t.dropped {
 			continue
