@@ -2,6 +2,7 @@ package measure
 
 import (
 	"fmt"
+	"slices"
 
 	"github.com/loadline/loadline/model"
 )
@@ -186,11 +187,21 @@ func same(c *ctx) ([]*Value, error) {
 
 // broadcast applies the multidirectional broadcasting rule to shapes.
 func broadcast(shapes ...model.Shape) (model.Shape, error) {
+	return broadcastInto(nil, shapes...)
+}
+
+// broadcastInto is broadcast, built in dst's storage when it has room (a
+// caller's buffer on the stack, for a result it may not keep).
+func broadcastInto(dst model.Shape, shapes ...model.Shape) (model.Shape, error) {
 	rank := 0
 	for _, s := range shapes {
 		rank = max(rank, len(s))
 	}
-	out := make(model.Shape, rank)
+	out := dst[:0]
+	if cap(out) < rank {
+		out = make(model.Shape, rank)
+	}
+	out = out[:rank]
 	for i := range out {
 		out[i] = model.Known(1)
 	}
@@ -204,7 +215,9 @@ func broadcast(shapes ...model.Shape) (model.Shape, error) {
 				out[off+i] = d
 			case o == d:
 			case o.IsKnown() && d.IsKnown():
-				return nil, fmt.Errorf("shapes %v cannot be broadcast together (dim %d: %d vs %d)", shapes, off+i, o.Value, d.Value)
+				// A copy in the message, so that shapes does not escape:
+				// callers pass it from the stack.
+				return nil, fmt.Errorf("shapes %v cannot be broadcast together (dim %d: %d vs %d)", slices.Clone(shapes), off+i, o.Value, d.Value)
 			case d.IsKnown():
 				// A symbol meeting a known size >1 must equal it.
 				out[off+i] = d

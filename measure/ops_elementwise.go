@@ -217,17 +217,20 @@ func foldBinary(a, b *Value, out model.Shape, op binaryOp) *Data {
 	return &Data{Floats: res}
 }
 
-// sameShape is an input's shape when out equals it, else out: most
-// elementwise results have the shape of an input, and values share their
-// shapes as they do their types (no rule changes a shape it did not make),
-// so a large graph keeps one shape where it kept two.
+// sameShape is an input's shape when out equals it, else a copy of out
+// (which may be a caller's buffer): most elementwise results have the
+// shape of an input, and values share their shapes as they do their types
+// (no rule changes a shape it did not make), so a large graph keeps one
+// shape where it kept two.
 func sameShape(out model.Shape, ins []model.Shape) model.Shape {
 	for _, s := range ins {
 		if slices.Equal(s, out) {
 			return s[:len(s):len(s)]
 		}
 	}
-	return out
+	kept := make(model.Shape, len(out))
+	copy(kept, out)
+	return kept
 }
 
 func binaryRule(op string, b binaryOp) func(c *ctx) ([]*Value, error) {
@@ -244,7 +247,8 @@ func binaryRule(op string, b binaryOp) func(c *ctx) ([]*Value, error) {
 			}
 			shapes = append(shapes, s)
 		}
-		out, err := broadcast(shapes...)
+		var dims [4]model.Dim
+		out, err := broadcastInto(dims[:0], shapes...)
 		if err != nil {
 			return nil, err
 		}
