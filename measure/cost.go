@@ -311,6 +311,9 @@ func (c *costCtx) inDims(i int) ([]int64, error) {
 }
 
 func (c *costCtx) outElems(i int) (int64, error) {
+	if n, ok := costElems(c.out(i)); ok {
+		return n, nil
+	}
 	d, err := knownDims(c.out(i), "output")
 	if err != nil {
 		return 0, err
@@ -319,11 +322,34 @@ func (c *costCtx) outElems(i int) (int64, error) {
 }
 
 func (c *costCtx) inElems(i int) (int64, error) {
+	if n, ok := costElems(c.in(i)); ok {
+		return n, nil
+	}
 	d, err := c.inDims(i)
 	if err != nil {
 		return 0, err
 	}
 	return product(d...)
+}
+
+// costElems is product(knownDims(v)) when both succeed, found without
+// building the list of dims (one per node costed, on a large graph); the
+// callers take the long way for the error otherwise.
+func costElems(v *Value) (int64, bool) {
+	if v == nil || v.Absent || v.Type.Kind != model.KindTensor || !v.Type.RankKnown {
+		return 0, false
+	}
+	n := int64(1)
+	for _, d := range v.Type.Shape {
+		var ok bool
+		if !d.IsKnown() || d.Value < 0 {
+			return 0, false
+		}
+		if n, ok = checkedMul(n, d.Value); !ok {
+			return 0, false
+		}
+	}
+	return n, true
 }
 
 // The MAC formulas. Each is defined once, here, on layout-neutral

@@ -248,11 +248,11 @@ func binaryRule(op string, b binaryOp) func(c *ctx) ([]*Value, error) {
 			shapes = append(shapes, s)
 		}
 		var dims [4]model.Dim
-		out, err := broadcastInto(dims[:0], shapes...)
+		broadcasted, err := broadcastInto(dims[:0], shapes...)
 		if err != nil {
 			return nil, err
 		}
-		out = sameShape(out, shapes)
+		out := sameShape(broadcasted, shapes)
 		dt := c.dtype(0)
 		if b.bool {
 			dt = model.Bool
