@@ -261,6 +261,10 @@ func binaryRule(op string, b binaryOp) func(c *ctx) ([]*Value, error) {
 		if b.ints != nil || b.floats != nil {
 			acc := c.in[0]
 			for i := 1; i < len(c.in) && acc != nil; i++ {
+				if acc.Const() == nil || c.in[i].Const() == nil {
+					acc = nil // nothing to fold (foldBinary's own first test)
+					break
+				}
 				s, _ := broadcast(acc.Type.Shape, c.in[i].Type.Shape)
 				d := foldBinary(acc, c.in[i], s, b)
 				if d == nil {

@@ -95,13 +95,13 @@ func isShapeOperand(n *model.Node, i int) bool {
 
 // ParamTensor is one weight with its figures.
 type ParamTensor struct {
-	Name     string      `json:"name"`
-	DType    model.DType `json:"-"`
-	Elements int64       `json:"elements"`
-	Bytes    int64       `json:"bytes"`
+	Name     string `json:"name"`
+	Elements int64  `json:"elements"`
+	Bytes    int64  `json:"bytes"`
 	// Zeros is the count of elements exactly zero, -1 when not scanned
 	// (the tensor is declared without values, or its bytes cannot be read).
-	Zeros int64 `json:"-"`
+	Zeros int64       `json:"-"`
+	DType model.DType `json:"-"` // beside Generated, so that the two pack
 	// Generated marks a weight the file does not store: computed from
 	// constants at load time (static.go).
 	Generated bool `json:"-"`
