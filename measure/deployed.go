@@ -646,6 +646,7 @@ const (
 // (nested subgraphs included, at the control-flow node).
 func decomposedActivations(g *model.Graph, x *graphIndex, static *staticSet, readBy *readerLists, isOutput []bool, views []bool) []*actRegion {
 	out := make([]*actRegion, len(g.Nodes))
+	var buf []int // one candidate's members at a time, the storage reused
 	for p, n := range g.Nodes {
 		if out[p] != nil || storedOutputs(n) != 1 || len(n.Outputs) == 0 || views[p] {
 			continue
@@ -658,7 +659,10 @@ func decomposedActivations(g *model.Graph, x *graphIndex, static *staticSet, rea
 		if xv == nil || !xv.shapeKnown() {
 			continue
 		}
-		members, last, ok := growRegion(g, p, xid, xv, x, static, readBy, isOutput)
+		members, last, ok := growRegion(g, p, xid, xv, x, static, readBy, isOutput, buf)
+		if cap(members) > cap(buf) {
+			buf = members[:0]
+		}
 		if !ok {
 			continue
 		}
@@ -683,20 +687,19 @@ func decomposedActivations(g *model.Graph, x *graphIndex, static *staticSet, rea
 // output) and constants alone, and checks that they form a decomposed
 // activation: at least two members, one a nonlinearity, every tensor of
 // the group of x's shape and dtype, x and every intermediate tensor read by
-// members only, and exactly one result, made by the last member.
+// members only, and exactly one result, made by the last member. The
+// members are appended to buf, whose storage they may share.
 func growRegion(g *model.Graph, p int, xid int32, xv *Value, x *graphIndex, static *staticSet,
-	readBy *readerLists, isOutput []bool) (members []int, last int, ok bool) {
-	// A group holds at most maxRegionNodes + 1 values: short lists.
-	inRegion := []int32{xid}
+	readBy *readerLists, isOutput []bool, buf []int) (members []int, last int, ok bool) {
+	members = buf[:0]
+	// A group holds at most maxRegionNodes + 1 values: short lists, kept
+	// on the stack (this runs once for most nodes of a graph).
+	var inBuf, escBuf, readBuf [maxRegionNodes + 2]int32
+	inRegion := append(inBuf[:0], xid)
 	pending := int(readBy.count[xid])
-	var escapes []int32
-	escape := func(id int32) {
-		if !slices.Contains(escapes, id) {
-			escapes = append(escapes, id)
-		}
-	}
+	escapes := escBuf[:0]
 	nonlinear := false
-	var reads []int32
+	reads := readBuf[:0]
 	for j := p + 1; j < len(g.Nodes) && j <= p+maxRegionScan && pending > 0; j++ {
 		n := g.Nodes[j]
 		reads = reads[:0]
@@ -727,8 +730,8 @@ func growRegion(g *model.Graph, p int, xid int32, xv *Value, x *graphIndex, stat
 				}
 				pending += int(readBy.count[o])
 				nonlinear = nonlinear || regionNonlinear[n.Op]
-				if isOutput[o] {
-					escape(o)
+				if isOutput[o] && !slices.Contains(escapes, o) {
+					escapes = append(escapes, o)
 				}
 				if len(members) > maxRegionNodes {
 					return nil, 0, false
@@ -737,7 +740,9 @@ func growRegion(g *model.Graph, p int, xid int32, xv *Value, x *graphIndex, stat
 		}
 		if !member {
 			for _, v := range reads {
-				escape(v)
+				if !slices.Contains(escapes, v) {
+					escapes = append(escapes, v)
+				}
 			}
 		}
 	}
