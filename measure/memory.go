@@ -3,6 +3,7 @@ package measure
 import (
 	"cmp"
 	"fmt"
+	"math"
 	"math/bits"
 	"slices"
 	"sort"
@@ -282,13 +283,14 @@ func (plan *MemoryPlan) bodies(n *model.Node, i, depth int, cond *Value, subs ma
 // every buffer's placement when all is set (the per-layer view), else only
 // those live at the peak step, which the figures read (viewDetail).
 func (plan *MemoryPlan) finish(g *model.Graph, steps int, live, lts []Lifetime, bodyPeak, bodyArena map[int]int64, all bool) {
-	// Live bytes per step: a difference array over the steps.
+	// Live bytes per step: a difference array over the steps, summed in
+	// place into the list.
 	diff := make([]int64, steps+1)
 	for _, lt := range live {
 		diff[lt.First] += lt.Size
 		diff[lt.Last+1] -= lt.Size
 	}
-	plan.LiveBytesByStep = make([]int64, steps)
+	plan.LiveBytesByStep = diff[:steps:steps]
 	var run int64
 	for s := range steps {
 		run += diff[s]
@@ -485,33 +487,69 @@ func placeArena(tensors []Lifetime) (offsets []int64, arena int64) {
 		return cmp.Compare(a, b)
 	})
 
-	runs := newRunTree(steps)
+	// The tensors of positive size come first in idx; they are placed by
+	// the run tree, at 32-bit offsets when every tensor together fits
+	// (half the tree's memory), else at 64-bit ones.
+	sized := 0
+	var total int64
+	narrow := true // every offset and end fits an int32
+	for _, i := range idx {
+		if size(i) == 0 {
+			break
+		}
+		sized++
+		if size(i) > math.MaxInt32-total {
+			narrow = false
+		} else {
+			total += size(i)
+		}
+	}
+	if narrow {
+		arena = placeSized[int32](tensors, idx[:sized], ranks, steps, offsets)
+	} else {
+		arena = placeSized[int64](tensors, idx[:sized], ranks, steps, offsets)
+	}
 	var tree *stepTree // built for the zero-sized tensors only
 	var stamp []int32
-	var buf []byteRun
 	var cand []int32
-	for q, i := range idx {
+	for q := sized; q < n; q++ {
+		i := idx[q]
 		a, b := int(ranks[2*i]), int(ranks[2*i+1])
-		sz := size(i)
-		if sz > 0 {
-			buf = runs.query(a, b, buf[:0])
-			offsets[i] = smallestGap(buf, sz)
-			runs.insert(a, b, byteRun{offsets[i], offsets[i] + sz})
-		} else {
-			if tree == nil {
-				tree = newStepTree(steps, n-q)
-				stamp = make([]int32, n)
-				for _, j := range idx[:q] {
-					tree.insert(int(ranks[2*j]), int(ranks[2*j+1]), j)
-				}
+		if tree == nil {
+			tree = newStepTree(steps, n-q)
+			stamp = make([]int32, n)
+			for _, j := range idx[:q] {
+				tree.insert(int(ranks[2*j]), int(ranks[2*j+1]), j)
 			}
-			cand = tree.query(a, b, int32(q+1), stamp, cand[:0])
-			offsets[i] = smallestGapAmong(tensors, offsets, cand, sz)
-			tree.insert(a, b, i)
 		}
-		arena = max(arena, offsets[i]+sz)
+		cand = tree.query(a, b, int32(q+1), stamp, cand[:0])
+		offsets[i] = smallestGapAmong(tensors, offsets, cand, 0)
+		tree.insert(a, b, i)
+		arena = max(arena, offsets[i])
 	}
 	return offsets, arena
+}
+
+// offset is the type of the byte offsets a run tree keeps.
+type offset interface{ ~int32 | ~int64 }
+
+// placeSized places the tensors idx, all of positive size, in turn at the
+// smallest gap among those placed before them that overlap them in time
+// (ranks), setting offsets, and returns the arena's end. O must hold the
+// sum of their sizes.
+func placeSized[O offset](tensors []Lifetime, idx []int32, ranks []int32, steps int, offsets []int64) (arena int64) {
+	runs := newRunTree[O](steps)
+	var buf []byteRun[O]
+	for _, i := range idx {
+		a, b := int(ranks[2*i]), int(ranks[2*i+1])
+		sz := O(tensors[i].Size)
+		buf = runs.query(a, b, buf[:0])
+		at := smallestGap(buf, sz)
+		runs.insert(a, b, byteRun[O]{at, at + sz})
+		offsets[i] = int64(at)
+		arena = max(arena, int64(at+sz))
+	}
+	return arena
 }
 
 // smallestGap is where greedy by size puts a tensor of size bytes (size >
@@ -521,10 +559,10 @@ func placeArena(tensors []Lifetime) (offsets []int64, arena int64) {
 // between the overlapping tensors taken in offset order: a hole is a gap
 // between one tensor's offset and the highest end below it, and gaps of
 // zero or less never fit a tensor of size > 0.
-func smallestGap(runs []byteRun, size int64) int64 {
-	slices.SortFunc(runs, func(x, y byteRun) int { return cmp.Compare(x.lo, y.lo) })
-	var prevEnd int64
-	best, bestGap := int64(-1), int64(-1)
+func smallestGap[O offset](runs []byteRun[O], size O) O {
+	slices.SortFunc(runs, func(x, y byteRun[O]) int { return cmp.Compare(x.lo, y.lo) })
+	var prevEnd O
+	best, bestGap := O(-1), O(-1)
 	for _, r := range runs {
 		if gap := r.lo - prevEnd; gap >= size && (bestGap < 0 || gap < bestGap) {
 			best, bestGap = prevEnd, gap
@@ -562,7 +600,7 @@ func smallestGapAmong(tensors []Lifetime, offsets []int64, cand []int32, size in
 }
 
 // byteRun is the bytes lo through hi-1 of the arena.
-type byteRun struct{ lo, hi int64 }
+type byteRun[O offset] struct{ lo, hi O }
 
 // runTree is a segment tree over steps 0..size-1. A tensor live over steps
 // [a, b] is stored at the nodes of the canonical decomposition of [a, b]
@@ -576,10 +614,10 @@ type byteRun struct{ lo, hi int64 }
 // three int32s: a tree over 200,000 steps has a million lists, most of
 // them empty, and a slice header each (24 bytes) was most of a large
 // graph's planning memory. Chunks are never copied as the tree grows.
-type runTree struct {
+type runTree[O offset] struct {
 	size        int
 	cover, part []runList
-	chunks      [][]byteRun
+	chunks      [][]byteRun[O]
 	chunkSize   int // the size of the last regular chunk
 }
 
@@ -610,9 +648,9 @@ func roomFor(n int32) int32 {
 
 // newRunTree is an empty tree over size steps. Only a node with children
 // holds part lists, and those are numbered below half of treeNodes.
-func newRunTree(size int) *runTree {
+func newRunTree[O offset](size int) *runTree[O] {
 	n := treeNodes(size)
-	return &runTree{size: size, cover: make([]runList, n), part: make([]runList, n/2)}
+	return &runTree[O]{size: size, cover: make([]runList, n), part: make([]runList, n/2)}
 }
 
 // treeNodes is the length of the node arrays of a segment tree over size
@@ -624,9 +662,9 @@ func treeNodes(size int) int {
 	return 2 << bits.Len(uint(max(size, 1)-1))
 }
 
-func (t *runTree) insert(a, b int, r byteRun) { t.ins(1, 0, t.size-1, a, b, r) }
+func (t *runTree[O]) insert(a, b int, r byteRun[O]) { t.ins(1, 0, t.size-1, a, b, r) }
 
-func (t *runTree) ins(node, l, h, a, b int, r byteRun) {
+func (t *runTree[O]) ins(node, l, h, a, b int, r byteRun[O]) {
 	if b < l || h < a {
 		return
 	}
@@ -641,11 +679,11 @@ func (t *runTree) ins(node, l, h, a, b int, r byteRun) {
 }
 
 // query appends the runs of every node whose tensors overlap [a, b].
-func (t *runTree) query(a, b int, out []byteRun) []byteRun {
+func (t *runTree[O]) query(a, b int, out []byteRun[O]) []byteRun[O] {
 	return t.q(1, 0, t.size-1, a, b, out)
 }
 
-func (t *runTree) q(node, l, h, a, b int, out []byteRun) []byteRun {
+func (t *runTree[O]) q(node, l, h, a, b int, out []byteRun[O]) []byteRun[O] {
 	if b < l || h < a {
 		return out
 	}
@@ -662,7 +700,7 @@ func (t *runTree) q(node, l, h, a, b int, out []byteRun) []byteRun {
 }
 
 // runs is the runs of list l.
-func (t *runTree) runs(l runList) []byteRun {
+func (t *runTree[O]) runs(l runList) []byteRun[O] {
 	if l.n == 0 {
 		return nil
 	}
@@ -671,17 +709,17 @@ func (t *runTree) runs(l runList) []byteRun {
 
 // place finds room for a list of n runs and returns the list, its runs
 // to be written.
-func (t *runTree) place(n int32) (runList, []byteRun) {
+func (t *runTree[O]) place(n int32) (runList, []byteRun[O]) {
 	room := int(roomFor(n))
 	c := len(t.chunks) - 1
 	if room > runChunk {
-		t.chunks = append(t.chunks, make([]byteRun, 0, room))
+		t.chunks = append(t.chunks, make([]byteRun[O], 0, room))
 		c++
 	} else if c < 0 || cap(t.chunks[c])-len(t.chunks[c]) < room {
 		// Chunks double from a small first one: a small graph's tree,
 		// planned twice for each model a check reads, needs a few runs.
 		t.chunkSize = min(runChunk, max(64, room, 2*t.chunkSize))
-		t.chunks = append(t.chunks, make([]byteRun, 0, t.chunkSize))
+		t.chunks = append(t.chunks, make([]byteRun[O], 0, t.chunkSize))
 		c++
 	}
 	at := len(t.chunks[c])
@@ -692,7 +730,7 @@ func (t *runTree) place(n int32) (runList, []byteRun) {
 // add adds r to list l, joining the runs it overlaps or touches, and
 // returns the list: in place when it has room, else moved to a new place
 // with twice the room (what it leaves behind is not reused).
-func (t *runTree) add(l runList, r byteRun) runList {
+func (t *runTree[O]) add(l runList, r byteRun[O]) runList {
 	rs := t.runs(l)
 	// The first run that ends at or after r begins, and the first that
 	// begins after r ends: those between are joined with r.

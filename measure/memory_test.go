@@ -4,6 +4,7 @@ import (
 	"cmp"
 	"encoding/json"
 	"fmt"
+	"math"
 	"math/rand"
 	"reflect"
 	"slices"
@@ -925,13 +926,13 @@ func TestPlanArenaFanInBounded(t *testing.T) {
 	}
 	// The same insertions and queries on the tree itself (steps 0..n are
 	// their own ranks): count the runs each query meets.
-	tree := newRunTree(n + 1)
-	var buf []byteRun
+	tree := newRunTree[int64](n + 1)
+	var buf []byteRun[int64]
 	most, total := 0, 0
 	for i := range ts {
 		buf = tree.query(i, n, buf[:0])
 		most, total = max(most, len(buf)), total+len(buf)
-		tree.insert(i, n, byteRun{int64(64 * i), int64(64 * (i + 1))})
+		tree.insert(i, n, byteRun[int64]{int64(64 * i), int64(64 * (i + 1))})
 	}
 	// A query visits at most 2·⌈log2(20001)⌉ + 2 = 32 nodes, a run or two each.
 	if most > 64 {
@@ -947,7 +948,7 @@ func TestPlanArenaFanInBounded(t *testing.T) {
 // moving in the pool all keep their runs sorted, disjoint and joined.
 func TestRunListAdd(t *testing.T) {
 	rng := rand.New(rand.NewSource(7))
-	tree := newRunTree(4)
+	tree := newRunTree[int64](4)
 	const lists = 3
 	var ls [lists]runList
 	var bytes [lists][256]bool
@@ -958,11 +959,11 @@ func TestRunListAdd(t *testing.T) {
 		if step%500 == 0 {
 			ls[k], bytes[k] = runList{}, [256]bool{} // start again: lists long and short
 		}
-		ls[k] = tree.add(ls[k], byteRun{lo, hi})
+		ls[k] = tree.add(ls[k], byteRun[int64]{lo, hi})
 		for b := lo; b < hi; b++ {
 			bytes[k][b] = true
 		}
-		var want []byteRun
+		var want []byteRun[int64]
 		for b := int64(0); b < 256; b++ {
 			if !bytes[k][b] {
 				continue
@@ -970,11 +971,36 @@ func TestRunListAdd(t *testing.T) {
 			if n := len(want); n > 0 && want[n-1].hi == b {
 				want[n-1].hi++
 			} else {
-				want = append(want, byteRun{b, b + 1})
+				want = append(want, byteRun[int64]{b, b + 1})
 			}
 		}
 		if got := tree.runs(ls[k]); !slices.Equal(got, want) {
 			t.Fatalf("step %d, list %d: runs %v, want %v", step, k, got, want)
+		}
+	}
+}
+
+// TestPlanArenaWideOffsets: when the tensors together pass 2^31 bytes the
+// planner keeps 64-bit offsets (below, 32-bit ones halve its memory); the
+// placements are still the naive greedy's. Hand-worked edge: two tensors
+// live at once of 2^31−11 and 20 bytes are stacked, the second at
+// 2^31−11, arena 2^31+9, which a 32-bit offset cannot hold.
+func TestPlanArenaWideOffsets(t *testing.T) {
+	const big = math.MaxInt32 - 10
+	ps, arena := PlanArena([]Lifetime{{Name: "a", Size: big, First: 0, Last: 1}, {Name: "b", Size: 20, First: 1, Last: 2}})
+	if arena != big+20 || ps[1].Offset != big {
+		t.Fatalf("arena %d, b at %d; want %d, %d", arena, ps[1].Offset, int64(big)+20, int64(big))
+	}
+	for seed := range int64(60) {
+		ts := randomLifetimes(rand.New(rand.NewSource(seed)))
+		for i := range ts {
+			ts[i].Size <<= 26 // a few tensors of 2^26 scale pass 2^31
+		}
+		ps, arena := PlanArena(ts)
+		checkPlacements(t, ps, arena)
+		nps, narena := naiveArena(ts)
+		if narena != arena || !reflect.DeepEqual(nps, ps) {
+			t.Fatalf("seed %d: planner arena %d, naive greedy %d (or layouts differ)", seed, arena, narena)
 		}
 	}
 }
