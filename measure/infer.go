@@ -166,6 +166,8 @@ type engine struct {
 	// the call's signature (work.go), so that a body called again with the
 	// same inputs is not inferred again.
 	memo map[string]*callResult
+	// shapes shares the storage of equal known shapes (shapes.go).
+	shapes shapeCache
 	// opsetKey is the signature of the operator sets in force, "" for the
 	// model's own.
 	opsetKey string
@@ -220,19 +222,21 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 	// The initializers' values in one block: a large model has tens of
 	// thousands, and an allocation each would cost more than their use.
 	inits := make([]Value, len(g.Initializers))
-	nDims := 0
-	for _, t := range g.Initializers {
-		nDims += len(t.Dims)
-	}
-	shapes := make(model.Shape, 0, nDims)
+	// The shapes e.shapes does not share, one after another (a shape
+	// handed out keeps its storage when the list grows).
+	shapes := model.Shape{}
 	stored := make([]storedContents, len(g.Initializers))
 	for i, t := range g.Initializers {
-		k := len(shapes)
-		for _, d := range t.Dims {
-			shapes = append(shapes, model.Known(d))
+		shape, ok := e.shapes.fromDims(t.Dims)
+		if !ok {
+			k := len(shapes)
+			for _, d := range t.Dims {
+				shapes = append(shapes, model.Known(d))
+			}
+			shape = shapes[k:len(shapes):len(shapes)]
 		}
 		stored[i].tensor = t
-		inits[i] = Value{Type: model.TensorType(t.DType, shapes[k:len(shapes):len(shapes)]), lazy: &stored[i], Weight: true}
+		inits[i] = Value{Type: model.TensorType(t.DType, shape), lazy: &stored[i], Weight: true}
 		sc.vals.set(t.Name, &inits[i])
 	}
 	for _, sp := range g.Sparse {
@@ -464,6 +468,9 @@ func (e *engine) inferNodes(g *model.Graph, sc *scope, path *trail) error {
 			}
 			if t, ok := decl[name]; ok {
 				v = withDeclared(v, t)
+			}
+			if v.Type.RankKnown {
+				v.Type.Shape = e.shapes.intern(v.Type.Shape)
 			}
 			if x != nil {
 				x.vals[x.outs(i)[j]] = v
