@@ -305,26 +305,6 @@ func (d *decoder) stringPair(lo, hi int) (key, value string, err error) {
 	}
 }
 
-// countGraphFields counts the node (1) and initializer (5) fields of the
-// GraphProto at lo:hi, up to the first malformed field (which the decoding
-// proper reports).
-func (d *decoder) countGraphFields(lo, hi int) (nodes, inits int) {
-	r := d.reader(lo, hi)
-	var f field
-	for {
-		ok, err := r.next(&f)
-		if err != nil || !ok {
-			return nodes, inits
-		}
-		switch f.num {
-		case 1:
-			nodes++
-		case 5:
-			inits++
-		}
-	}
-}
-
 // GraphProto at the given nesting depth (0 for the main graph); off is the
 // offset of the field that holds it, for the depth error.
 func (d *decoder) graph(lo, hi, depth, off int) (*model.Graph, error) {
@@ -332,17 +312,6 @@ func (d *decoder) graph(lo, hi, depth, off int) (*model.Graph, error) {
 		return nil, d.errAt(off, "subgraphs nested more than %d deep (Options.MaxDepth)", d.maxDepth)
 	}
 	g := &model.Graph{}
-	// The lists of nodes and initializers are sized by a first look at
-	// the fields, not grown by doubling: on a graph of 100,000 nodes the
-	// copies left behind were 7 MB. Each field takes at least two bytes,
-	// so the sizes are bounded by the graph's own.
-	nodes, inits := d.countGraphFields(lo, hi)
-	if nodes > 0 {
-		g.Nodes = make([]*model.Node, 0, nodes)
-	}
-	if inits > 0 {
-		g.Initializers = make([]*model.Tensor, 0, inits)
-	}
 	var nNode, nInit, nSparse, nIn, nOut, nVI int
 	r := d.reader(lo, hi)
 	r.names = graphFields
