@@ -109,12 +109,12 @@ type Options struct {
 	// caller with a core to spare (one model measured alone); the
 	// figures are the same either way.
 	Parallel bool
-	// WeightsRead, when set, is called with the stored bytes of each
-	// weight once its zeros are counted, in the order they lie in memory:
-	// the last read of them a measurement makes on its usual path, so that
-	// a caller that mapped the model file can give those pages back
-	// (check.MeasureFile). Constant digests (Digests) read them again.
-	// It is not part of the figures.
+	// WeightsRead, when set, is called with the stored bytes of the
+	// weights as their zeros are counted, in pieces of at most 4 MiB, in
+	// the order they lie in memory: the last read of them a measurement
+	// makes on its usual path, so that a caller that mapped the model file
+	// can give those pages back (check.MeasureFile). Constant digests
+	// (Digests) read them again. It is not part of the figures.
 	WeightsRead func(stored []byte)
 }
 

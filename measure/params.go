@@ -120,6 +120,18 @@ type ParamTensor struct {
 // stored values cannot be read (a missing or short external data file) is
 // an error: the model cannot be deployed as it is.
 func countZeros(t *model.Tensor) (int64, error) {
+	return countZerosInPieces(t, nil)
+}
+
+// zeroPiece is how many bytes of a weight countZerosInPieces reads before
+// it hands them on: a multiple of every element's width.
+const zeroPiece = 4 << 20
+
+// countZerosInPieces is countZeros, calling done (when set) with each
+// piece of the stored bytes it has read, front to back, so that a caller
+// that mapped the file can give those pages back before the rest of a
+// large weight is read.
+func countZerosInPieces(t *model.Tensor, done func(read []byte)) (int64, error) {
 	n := t.Elements()
 	if n < 0 || !t.HasData() || t.DType.Bits() == 0 {
 		return -1, nil
@@ -132,7 +144,28 @@ func countZeros(t *model.Tensor) (int64, error) {
 		return -1, nil
 	}
 	var zeros int64
-	switch t.DType {
+	for lo := 0; lo < len(b); lo += zeroPiece {
+		hi := min(len(b), lo+zeroPiece)
+		// Elements in the piece: for 4-bit types two a byte, the last
+		// byte's high nibble padding when n is odd.
+		elems := min(n-2*int64(lo), 2*int64(hi-lo))
+		z, ok := zerosIn(t.DType, b[lo:hi], elems)
+		if !ok {
+			return -1, nil
+		}
+		zeros += z
+		if done != nil {
+			done(b[lo:hi])
+		}
+	}
+	return zeros, nil
+}
+
+// zerosIn counts the zero elements of dt in b, whose 4-bit elements number
+// elems (other widths fill b); false for a width it cannot count.
+func zerosIn(dt model.DType, b []byte, elems int64) (int64, bool) {
+	var zeros int64
+	switch dt {
 	case model.Float32:
 		zeros = zeros32(b, 0x7fffffff)
 	case model.Float64:
@@ -169,10 +202,10 @@ func countZeros(t *model.Tensor) (int64, error) {
 		// Two elements a byte, the first in the low nibble; float4e2m1's
 		// sign is bit 3 of its nibble.
 		mask := byte(0xf)
-		if t.DType == model.Float4E2M1 {
+		if dt == model.Float4E2M1 {
 			mask = 0x7
 		}
-		for i := int64(0); i < n; i++ {
+		for i := int64(0); i < elems; i++ {
 			if (b[i/2]>>(4*(i%2)))&mask == 0 {
 				zeros++
 			}
@@ -180,7 +213,7 @@ func countZeros(t *model.Tensor) (int64, error) {
 	default:
 		// Integers, bool and the float8 types without negative zero
 		// (FNUZ: 0x80 is NaN): an element is zero when all its bytes are.
-		switch t.DType.Bits() {
+		switch dt.Bits() {
 		case 8:
 			zeros = int64(bytes.Count(b, []byte{0}))
 		case 16:
@@ -198,17 +231,18 @@ func countZeros(t *model.Tensor) (int64, error) {
 				}
 			}
 		default:
-			return -1, nil
+			return 0, false
 		}
 	}
-	return zeros, nil
+	return zeros, true
 }
 
 // weights finds the constants of the model (main graph and subgraphs) used
 // as weights, in the order their first consumer appears. When read is set,
-// it is called with each weight's stored bytes once its zeros are counted,
-// in the order those bytes lie in memory (storedAt), so that a caller that
-// mapped the model file can give back the pages read (check.MeasureFile).
+// it is called with the weights' stored bytes as their zeros are counted,
+// piece by piece, in the order those bytes lie in memory (storedAt), so
+// that a caller that mapped the model file can give back the pages read
+// (check.MeasureFile).
 func weights(inf *Inference, read func(stored []byte)) ([]ParamTensor, error) {
 	g := inf.Model.Graph
 	x := inf.index(g, inf.Values)
@@ -378,16 +412,11 @@ func weights(inf *Inference, read func(stored []byte)) ([]ParamTensor, error) {
 	errAt := int32(len(stored))
 	for _, i := range order {
 		t := stored[i]
-		zeros, err := countZeros(t)
+		zeros, err := countZerosInPieces(t, read)
 		if err != nil && i < errAt {
 			readErr, errAt = err, i
 		}
 		out[i].Zeros = zeros
-		if read != nil {
-			for _, seg := range t.Data.Segments {
-				read(seg)
-			}
-		}
 	}
 	// Weights computed from constants at load time count too (static.go).
 	out = append(out, generatedWeights(inf)...)

@@ -274,3 +274,61 @@ func TestWeightsReadInStoredOrder(t *testing.T) {
 		t.Errorf("stored bytes handed on at offsets %v, want [0 16] (front to back)", offsets)
 	}
 }
+
+// TestCountZerosInPieces: a weight larger than a piece is counted piece by
+// piece, front to back, with the same count as element by element
+// (hand-checkable reference: the loop below), and every stored byte is
+// handed on once, in order. An int4 weight of an odd count spans pieces
+// with its padding nibble (0, which must not count) at the very end.
+func TestCountZerosInPieces(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 4))
+	cases := []struct {
+		dt    model.DType
+		elems int64
+	}{
+		{model.Float32, zeroPiece/4 + 1000},
+		{model.Int4, 2*zeroPiece + 2*1000 + 1},
+		{model.Int8, 2*zeroPiece + 7},
+	}
+	for _, c := range cases {
+		b := make([]byte, c.dt.StorageBytes(c.elems))
+		for i := range b {
+			if rng.IntN(3) > 0 {
+				b[i] = byte(rng.IntN(256))
+			}
+		}
+		if c.dt == model.Int4 {
+			b[len(b)-1] &= 0x0f // the padding nibble is 0
+		}
+		var want int64
+		for i := int64(0); i < c.elems; i++ {
+			switch c.dt {
+			case model.Float32:
+				if binary.LittleEndian.Uint32(b[4*i:])&0x7fffffff == 0 {
+					want++
+				}
+			case model.Int4:
+				if (b[i/2]>>(4*(i%2)))&0xf == 0 {
+					want++
+				}
+			case model.Int8:
+				if b[i] == 0 {
+					want++
+				}
+			}
+		}
+		var seen int
+		got, err := countZerosInPieces(rawTensor(c.dt, []int64{c.elems}, b), func(p []byte) {
+			if &p[0] != &b[seen] {
+				t.Errorf("%v: a piece starts at byte %d of the weight, want %d", c.dt, len(b)-cap(p), seen)
+			}
+			seen += len(p)
+		})
+		if err != nil || got != want {
+			t.Errorf("%v: %d zeros (%v), want %d", c.dt, got, err, want)
+		}
+		if seen != len(b) {
+			t.Errorf("%v: %d bytes handed on, want %d", c.dt, seen, len(b))
+		}
+	}
+}
