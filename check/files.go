@@ -50,7 +50,7 @@ func MeasureFile(path string, opts measure.Options) (m *measure.Metrics) {
 	// read faults. Turn that fault into an error for this file instead of
 	// a crash of the whole run; any other panic is a bug and goes on up.
 	return onMapped(path, func() *measure.Metrics {
-		return decodeThenMeasure(path, f.data, format.Options{}, opts, f.decoded)
+		return decodeThenMeasure(path, f.data, format.Options{Passed: f.passed}, opts, f.decoded)
 	})
 }
 

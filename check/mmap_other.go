@@ -13,8 +13,9 @@ import (
 type mappedFile struct {
 	data       []byte
 	release    func()
-	readBehind func(b []byte) // nil: nothing to give back
-	decoded    func()         // nil: nothing to give back
+	readBehind func(b []byte)   // nil: nothing to give back
+	passed     func(offset int) // nil: nothing to give back
+	decoded    func()           // nil: nothing to give back
 }
 
 // mapFile reads the whole file where memory mapping is not available.

@@ -75,12 +75,12 @@ func TestMappedFileGivesBackPagesBehind(t *testing.T) {
 	if !ok {
 		t.Skip("no /proc/self/smaps here; the pages given back cannot be counted")
 	}
-	f.readBehind(f.data[6<<20+5:]) // the reading is past the first 6 MiB
+	f.readBehind(f.data[6<<20-100 : 6<<20+5]) // the reading is past the first 6 MiB
 	after, _ := residentKiB(t, f.data)
 	if before-after < 6<<10-4 || after > before {
 		t.Errorf("resident %d KiB before, %d KiB after giving back 6 MiB", before, after)
 	}
-	f.readBehind(f.data[6<<20+100:]) // not a step further: nothing to do
+	f.readBehind(f.data[6<<20+5 : 6<<20+100]) // not a step further: nothing to do
 	if !bytes.Equal(f.data, want) {
 		t.Error("the pages read again differ from the file")
 	}
@@ -96,7 +96,7 @@ func TestMappedFileGivesBackPagesBehind(t *testing.T) {
 		sum += f.data[i]
 	}
 	faultSink = sum
-	f.readBehind(f.data[4<<20:])
+	f.readBehind(f.data[4<<20-10 : 4<<20])
 	if after, _ := residentKiB(t, f.data); after > 4<<10+64 {
 		t.Errorf("resident %d KiB after reading the file again and giving back its first 4 MiB", after)
 	}

@@ -18,11 +18,15 @@ type mappedFile struct {
 	// release unmaps the file; sub-slices of data must not be kept past it.
 	release func()
 	// readBehind, for a mapped file, gives back to the kernel the pages
-	// that lie wholly before b (a slice of data), once they are no longer
-	// read (measure.Options.WeightsRead); nil for a file read whole.
+	// that lie wholly before the end of b (a slice of data), once the
+	// reading has passed them (measure.Options.WeightsRead); nil for a
+	// file read whole.
 	readBehind func(b []byte)
-	// decoded, for a mapped file, gives back every page read so far, once
-	// the model is decoded; nil for a file read whole.
+	// passed, for a mapped file, gives back the pages before offset, once
+	// decoding has passed them (format.Options.Passed); decoded gives back
+	// every page read so far, once the model is decoded. Both nil for a
+	// file read whole.
+	passed  func(offset int)
 	decoded func()
 }
 
@@ -44,7 +48,7 @@ func mapFile(path string) (*mappedFile, error) {
 		return readWhole(path)
 	}
 	g := &pageGiver{data: b, page: os.Getpagesize()}
-	return &mappedFile{data: b, release: func() { syscall.Munmap(b) }, readBehind: g.behind, decoded: g.all}, nil
+	return &mappedFile{data: b, release: func() { syscall.Munmap(b) }, readBehind: g.behind, passed: g.upTo, decoded: g.all}, nil
 }
 
 func readWhole(path string) (*mappedFile, error) {
@@ -78,18 +82,24 @@ func (g *pageGiver) all() {
 	g.done = 0
 }
 
-// behind gives back the pages that lie wholly before b, a slice of data,
-// in steps of giveBackStep.
+// behind gives back the pages that lie wholly before the end of b, a
+// slice of data just read, in steps of giveBackStep.
 func (g *pageGiver) behind(b []byte) {
 	base := uintptr(unsafe.Pointer(unsafe.SliceData(g.data)))
 	at := uintptr(unsafe.Pointer(unsafe.SliceData(b)))
 	if len(b) == 0 || at < base || at >= base+uintptr(len(g.data)) {
 		return
 	}
-	upTo := int(at-base) &^ (g.page - 1)
-	if upTo-g.done < giveBackStep {
+	g.upTo(int(at-base) + len(b))
+}
+
+// upTo gives back the pages that lie wholly before offset, in steps of
+// giveBackStep.
+func (g *pageGiver) upTo(offset int) {
+	end := min(offset, len(g.data)) &^ (g.page - 1)
+	if end-g.done < giveBackStep {
 		return
 	}
-	_ = syscall.Madvise(g.data[g.done:upTo], syscall.MADV_DONTNEED)
-	g.done = upTo
+	_ = syscall.Madvise(g.data[g.done:end], syscall.MADV_DONTNEED)
+	g.done = end
 }

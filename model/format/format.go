@@ -41,6 +41,8 @@ type Options struct {
 	// ReadFile reads external data files; by default the operating
 	// system's file system.
 	ReadFile func(name string) ([]byte, error)
+	// Passed is onnx.Options.Passed, for an ONNX model.
+	Passed func(offset int)
 }
 
 // tfliteIdentifier is the FlatBuffers file identifier of a TFLite model,
@@ -86,7 +88,7 @@ func Open(name string, data []byte, opts Options) (*model.Model, error) {
 	if hint == TFLite {
 		return nil, fmt.Errorf("%s: not a TFLite model: no %q identifier at byte 4 (loadline reads %s files)", name, tfliteIdentifier, Readable)
 	}
-	m, err := onnx.Decode(data, onnx.Options{Path: name, Dir: opts.Dir, ReadFile: opts.ReadFile})
+	m, err := onnx.Decode(data, onnx.Options{Path: name, Dir: opts.Dir, ReadFile: opts.ReadFile, Passed: opts.Passed})
 	if err != nil {
 		if hint == "" {
 			return nil, fmt.Errorf("%s: %w: neither a TFLite FlatBuffer nor an ONNX protobuf (loadline reads %s files): %w", name, ErrUnknown, Readable, err)

@@ -31,6 +31,14 @@ type Options struct {
 	// MaxDepth limits how deeply subgraphs (and type protos) may nest;
 	// 0 means DefaultMaxDepth.
 	MaxDepth int
+	// Passed, when set, is called as decoding passes each field of the
+	// main graph, with the offset in data it has read up to. Decoding
+	// does not read the bytes before it again (the model keeps the
+	// tensors' values as sub-slices, which others may read): a caller that
+	// mapped the file may give back their pages, which keeps a file of
+	// large weights from being mapped in whole (the kernel maps a page
+	// cache folio of up to 2 MiB around each header read).
+	Passed func(offset int)
 }
 
 // Decode decodes an ONNX ModelProto. data stays owned by the caller and
@@ -77,6 +85,7 @@ type decoder struct {
 	dir      string
 	readFile func(string) ([]byte, error)
 	maxDepth int
+	passed   func(offset int) // Options.Passed
 
 	fresh  []*model.Dim    // dims with neither dim_value nor dim_param, in file order
 	params map[string]bool // every dim_param the file uses
@@ -151,7 +160,7 @@ func (c *chunks[T]) copyOf(list ...T) []T {
 }
 
 func newDecoder(data []byte, opts Options) *decoder {
-	d := &decoder{data: data, path: opts.Path, dir: opts.Dir, readFile: opts.ReadFile, maxDepth: opts.MaxDepth}
+	d := &decoder{data: data, path: opts.Path, dir: opts.Dir, readFile: opts.ReadFile, maxDepth: opts.MaxDepth, passed: opts.Passed}
 	if d.dir == "" {
 		d.dir = filepath.Dir(opts.Path)
 	}
@@ -317,6 +326,9 @@ func (d *decoder) graph(lo, hi, depth, off int) (*model.Graph, error) {
 	r.names = graphFields
 	var f field
 	for {
+		if depth == 0 && d.passed != nil {
+			d.passed(r.pos) // the fields before are decoded
+		}
 		ok, err := r.next(&f)
 		if err != nil {
 			return nil, err
