@@ -47,7 +47,8 @@ run() {
 median() { sort -g | awk '{a[NR]=$1} END {print a[int((NR+1)/2)]}'; }
 
 # pair NAME_A NAME_B -- CMD_A... -- CMD_B...: RUNS runs of each in turn;
-# sets ${NAME}_s (median wall seconds) and ${NAME}_mib (median peak MiB).
+# sets ${NAME}_s (median wall seconds), ${NAME}_mib (median peak MiB) and
+# ${NAME}_kib (the same in KiB, for ratios).
 pair() {
   local a=$1 b=$2; shift 3
   local cmd_a=() cmd_b=()
@@ -61,11 +62,16 @@ pair() {
   done
   printf -v "${a}_s" '%s' "$(cut -d' ' -f1 "$work/a" | median)"
   printf -v "${a}_mib" '%s' "$(cut -d' ' -f2 "$work/a" | median | awk '{printf "%.0f", $1/1024}')"
+  printf -v "${a}_kib" '%s' "$(cut -d' ' -f2 "$work/a" | median)"
   printf -v "${b}_s" '%s' "$(cut -d' ' -f1 "$work/b" | median)"
   printf -v "${b}_mib" '%s' "$(cut -d' ' -f2 "$work/b" | median | awk '{printf "%.0f", $1/1024}')"
+  printf -v "${b}_kib" '%s' "$(cut -d' ' -f2 "$work/b" | median)"
 }
 ratio() { awk -v a="$1" -v b="$2" 'BEGIN {printf "%.2f", (b > 0 ? a / b : 0)}'; }
 mb() { awk -v n="$(stat -c %s "$1")" 'BEGIN {printf "%.0f", n / 1e6}'; }
+# times_file KIB FILE: peak memory of KIB KiB as a multiple of FILE's size,
+# both in bytes.
+times_file() { awk -v k="$1" -v n="$(stat -c %s "$2")" 'BEGIN {printf "%.2f", k * 1024 / n}'; }
 
 echo "generating inputs in $work" >&2
 "$work/benchgen" -mb 200 "$work/large.onnx" >/dev/null
@@ -97,16 +103,16 @@ machine="$(nproc) cores ($(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | s
 section=$(cat <<EOF
 Measured by \`scripts/bench-speed.sh\` on $(date -u +%Y-%m-%d), on $machine, with
 $(go version | cut -d' ' -f3) and onnx $("$py" -c 'import onnx; print(onnx.__version__)'): medians of $runs runs of the whole
-process, commands compared run in turn, peak resident memory from \`/usr/bin/time\`. Peak
-resident memory counts the pages of a memory-mapped model file that were read: they are the
-page cache's, shared, not memory loadline allocated (on the large model they are nearly all
-of it). The machine is shared, so quote the ratios rather than the seconds.
+process, commands compared run in turn, peak resident memory from \`/usr/bin/time\`. loadline
+maps a model file and gives its pages back as it reads past them, so its peak resident memory is
+mostly what it allocated; the kernel keeps the pages in its page cache, as for any reader. The
+machine is shared, so quote the ratios rather than the seconds.
 
 | what | loadline | beside it | ratio |
 | --- | --- | --- | --- |
-| \`measure\`, a generated $(mb "$work/large.onnx") MB model | ${llL_s} s, ${llL_mib} MiB | \`cat\` ${cat_s} s | $(ratio "$llL_s" "$cat_s")× cat |
+| \`measure\`, a generated $(mb "$work/large.onnx") MB model | ${llL_s} s, ${llL_mib} MiB | \`cat\` ${cat_s} s | $(ratio "$llL_s" "$cat_s")× cat; memory $(times_file "$llL_kib" "$work/large.onnx")× the file |
 | same file | ${llL2_s} s | Python \`onnx.load\` + \`infer_shapes\` ${pyL_s} s | $(ratio "$llL2_s" "$pyL_s")× Python |
-| \`measure\`, 100,000 small nodes ($(mb "$work/nodes.onnx") MB) | ${llN_s} s, ${llN_mib} MiB | Python ${pyN_s} s, ${pyN_mib} MiB | $(ratio "$llN_s" "$pyN_s")× Python; memory $(ratio "$llN_mib" "$(mb "$work/nodes.onnx")")× the file |
+| \`measure\`, 100,000 small nodes ($(mb "$work/nodes.onnx") MB) | ${llN_s} s, ${llN_mib} MiB | Python ${pyN_s} s, ${pyN_mib} MiB | $(ratio "$llN_s" "$pyN_s")× Python; memory $(times_file "$llN_kib" "$work/nodes.onnx")× the file |
 | cold \`check\`, 20 changed models of 20 MB (40 blobs) | ${cold_s} s, ${cold_mib} MiB | \`git cat-file --batch\` on the 40 blobs ${catfile_s} s | $(ratio "$cold_s" "$catfile_s")× git |
 | warm \`check\`, 2,000 changed models | ${warm2000_s} s | 500 changed models ${warm500_s} s | $(ratio "$warm2000_s" "$warm500_s")× |
 
