@@ -152,20 +152,26 @@ func planGraph(inf *Inference, g *model.Graph, vals *Values, depth int, all bool
 	x := inf.index(g, vals)
 	static := newStaticSet(g, x)
 
-	// recs[id] is the latest tensor named id; order keeps every one.
-	recs := make([]*tensorRec, len(x.names))
+	// order keeps every tensor; latest[id] is the latest named id, as
+	// 1 + its place in order (0 for none: numbers, not pointers, take
+	// half the room).
+	latest := make([]int32, len(x.names))
 	order := make([]tensorRec, 0, len(g.Inputs)+len(x.out))
+	rec := func(id int32) *tensorRec {
+		if k := latest[id]; k > 0 {
+			return &order[k-1]
+		}
+		return nil
+	}
 	add := func(id int32, step, producer int) {
-		if old := recs[id]; old != nil {
+		if old := rec(id); old != nil {
 			// A name defined twice (not valid ONNX): the later definition
 			// wins; the earlier one ends where it was redefined.
 			old.last = max(old.last, int32(step))
 		}
 		order = append(order, tensorRec{id: id, first: int32(step), last: int32(step), producer: int32(producer)})
-		recs[id] = &order[len(order)-1]
+		latest[id] = int32(len(order))
 	}
-	// order never grows past its capacity, so that recs keeps pointing
-	// into it: one tensor per graph input and node output at most.
 	for _, in := range g.Inputs {
 		if id := x.lookup(in.Name); id >= 0 && !static.has(id) {
 			add(id, 0, -1)
@@ -176,8 +182,8 @@ func planGraph(inf *Inference, g *model.Graph, vals *Values, depth int, all bool
 	bodyArena := map[int]int64{}
 	touch := func(i int) func(int32) {
 		return func(id int32) {
-			if recs[id] != nil {
-				recs[id].last = int32(i)
+			if r := rec(id); r != nil {
+				r.last = int32(i)
 			}
 		}
 	}
@@ -192,8 +198,8 @@ func planGraph(inf *Inference, g *model.Graph, vals *Values, depth int, all bool
 		}
 	}
 	for _, o := range g.Outputs {
-		if id := x.lookup(o.Name); id >= 0 && recs[id] != nil {
-			recs[id].last = int32(lastStep)
+		if id := x.lookup(o.Name); id >= 0 && rec(id) != nil {
+			rec(id).last = int32(lastStep)
 		}
 	}
 
