@@ -126,10 +126,10 @@ type dtensor struct {
 	id          int32
 	buf         int32 // 1 + a root buffer's number among the bufInfos; 0 for none yet
 	dropped     bool
-	isOut       bool // root buffers only: the buffer holds a graph output
-	first, last int
-	producer    int // node whose output it is; -1 for a graph input
-	head        int // node heading its fused group (the step it is written at)
+	isOut       bool  // root buffers only: the buffer holds a graph output
+	first, last int32 // steps: node indices of one graph
+	producer    int32 // node whose output it is; -1 for a graph input
+	head        int32 // node heading its fused group (the step it is written at)
 	parent      *dtensor
 }
 
@@ -286,7 +286,7 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 		outs, hasBody[i] = planStep(plan, inf, x, static, n, i, depth, bodyPeak, bodyArena,
 			func(id int32) {
 				if recs[id] != nil {
-					recs[id].last = i
+					recs[id].last = int32(i)
 				}
 			},
 			func(body *model.Graph, bv *Values) *MemoryPlan {
@@ -303,14 +303,14 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 			continue
 		}
 		for _, id := range outs {
-			t := st.newTensor(dtensor{id: id, first: i, last: i, producer: i, head: i})
+			t := st.newTensor(dtensor{id: id, first: int32(i), last: int32(i), producer: int32(i), head: int32(i)})
 			add(t)
 			groupOut[i] = t
 		}
 	}
 	for _, o := range g.Outputs {
 		if id := x.lookup(o.Name); id >= 0 && recs[id] != nil {
-			recs[id].last = lastStep
+			recs[id].last = int32(lastStep)
 		}
 	}
 
@@ -339,14 +339,14 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 	}
 	for _, t := range order {
 		if !t.dropped && isOutput[t.id] {
-			t.root().last = lastStep
+			t.root().last = int32(lastStep)
 			t.root().isOut = true
 		}
 	}
 
 	segs := make([]Lifetime, len(roots))
 	for k, r := range roots {
-		segs[k] = Lifetime{Name: x.names[r.id], Size: bufs[k].size, First: r.first, Last: r.last}
+		segs[k] = Lifetime{Name: x.names[r.id], Size: bufs[k].size, First: int(r.first), Last: int(r.last)}
 		bufs[k].segs = segs[k : k+1 : k+1]
 	}
 	// infoOf is the number of t's bufInfo, a zero one made for a buffer
@@ -372,7 +372,7 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 			rx, ry := xt.root(), y.root()
 			kx, ky := infoOf(rx), infoOf(ry)
 			bx, by := &bufs[kx], &bufs[ky]
-			if rx == ry || rx.last != i || ry.first != i || bx.reason != "" || by.reason != "" || rx.isOut || by.size > bx.size {
+			if rx == ry || int(rx.last) != i || int(ry.first) != i || bx.reason != "" || by.reason != "" || rx.isOut || by.size > bx.size {
 				continue
 			}
 			// The output takes over the input's buffer: at step i the
@@ -403,12 +403,12 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 			u := Unresolved{Node: name, Reason: fmt.Sprintf("memory unknown: %s (tensor %q)", b.reason, name)}
 			if r.producer >= 0 {
 				n := g.Nodes[r.producer]
-				u.Node, u.Op = nodeLabel(n, r.producer), n.Op
+				u.Node, u.Op = nodeLabel(n, int(r.producer)), n.Op
 			}
 			plan.Unresolved = append(plan.Unresolved, u)
 			continue
 		}
-		lts = append(lts, Lifetime{Name: name, Size: b.size, First: r.first, Last: r.last})
+		lts = append(lts, Lifetime{Name: name, Size: b.size, First: int(r.first), Last: int(r.last)})
 		live = append(live, b.segs...)
 	}
 	// Tensors computed from constants at load time and held for the whole
@@ -528,7 +528,7 @@ func (st *deployState) fuseInto(root *dtensor, chain []*dtensor, out int32, i in
 		c.dropped = true
 		*st.fused = append(*st.fused, fusion{c.id, out})
 	}
-	t := st.newTensor(dtensor{id: out, first: root.first, last: root.first, producer: i, head: root.head})
+	t := st.newTensor(dtensor{id: out, first: root.first, last: root.first, producer: int32(i), head: root.head})
 	st.add(t)
 	st.groupOut[root.head] = t
 }
@@ -551,7 +551,7 @@ func (st *deployState) rewrite(i int, n *model.Node, out int32, opts DeployOptio
 		}
 	}
 	alias := func() bool {
-		st.add(st.newTensor(dtensor{id: out, first: i, last: i, producer: i, head: i, parent: x}))
+		st.add(st.newTensor(dtensor{id: out, first: int32(i), last: int32(i), producer: int32(i), head: int32(i), parent: x}))
 		return true
 	}
 	// fuse writes out at x's step instead of x, when nothing else reads x.
