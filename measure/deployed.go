@@ -344,10 +344,20 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 		}
 	}
 
-	segs := make([]Lifetime, len(roots))
-	for k, r := range roots {
-		segs[k] = Lifetime{Name: x.names[r.id], Size: bufs[k].size, First: int(r.first), Last: int(r.last)}
-		bufs[k].segs = segs[k : k+1 : k+1]
+	// Each buffer's segments, its own lifetime at first, are listed only
+	// once a buffer takes over another (in-place depthwise): until then
+	// the segments live are the buffers, and one list serves both.
+	segsMade := false
+	makeSegs := func() {
+		if segsMade {
+			return
+		}
+		segsMade = true
+		segs := make([]Lifetime, len(roots))
+		for k, r := range roots {
+			segs[k] = Lifetime{Name: x.names[r.id], Size: bufs[k].size, First: int(r.first), Last: int(r.last)}
+			bufs[k].segs = segs[k : k+1 : k+1]
+		}
 	}
 	// infoOf is the number of t's bufInfo, a zero one made for a buffer
 	// not gathered above (one that was dropped).
@@ -379,6 +389,7 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 			// buffer counts once, at the input's size; after it, at the
 			// output's. In the arena it stays one block of the input's
 			// size until the output dies.
+			makeSegs()
 			for _, sg := range by.segs {
 				if sg.First == i {
 					sg.First = i + 1
@@ -392,7 +403,11 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 		}
 	}
 
-	live, lts := make([]Lifetime, 0, len(roots)), make([]Lifetime, 0, len(roots))
+	lts := make([]Lifetime, 0, len(roots))
+	var live []Lifetime
+	if segsMade {
+		live = make([]Lifetime, 0, len(roots))
+	}
 	for _, r := range roots {
 		if r.parent != nil {
 			continue // merged in place into another buffer
@@ -409,12 +424,19 @@ func planDeployedGraph(inf *Inference, g *model.Graph, vals *Values, opts Deploy
 			continue
 		}
 		lts = append(lts, Lifetime{Name: name, Size: b.size, First: int(r.first), Last: int(r.last)})
-		live = append(live, b.segs...)
+		if segsMade {
+			live = append(live, b.segs...)
+		}
 	}
 	// Tensors computed from constants at load time and held for the whole
 	// run (static.go), as in the graph view.
 	held, unres := heldConstants(inf, g, vals, steps)
-	lts, live = append(lts, held...), append(live, held...)
+	lts = append(lts, held...)
+	if segsMade {
+		live = append(live, held...)
+	} else {
+		live = lts
+	}
 	plan.Unresolved = append(plan.Unresolved, unres...)
 	// Where each tensor's values end up: a view or in-place output in its
 	// root's buffer, a fused-away tensor in the buffer of what replaced it.
