@@ -18,7 +18,7 @@ import (
 // AnalyzerVersion names the rules that produce the figures. It is part of
 // every cache key: bump it whenever a change to a decoder or measure can
 // change a figure, so that no stale figure survives an upgrade.
-const AnalyzerVersion = "loadline-figures-14"
+const AnalyzerVersion = "loadline-figures-15"
 
 // entryFormat names the form of the cache's entries (entry.go). It is part
 // of every cache key beside AnalyzerVersion: change it whenever that form

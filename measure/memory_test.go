@@ -1004,3 +1004,26 @@ func TestPlanArenaWideOffsets(t *testing.T) {
 		}
 	}
 }
+
+// TestMemoryUnnamedInitializer: an initializer with an empty name (not
+// valid ONNX, but decoded) marks nothing static; it once marked the graph's
+// first value, here the input. Hand-worked: Relu on float32[1,4] holds x
+// and y at its step, 16 + 16 = 32 bytes, in both views.
+func TestMemoryUnnamedInitializer(t *testing.T) {
+	f32 := func(name string) *model.ValueInfo {
+		return &model.ValueInfo{Name: name, Type: model.TensorType(model.Float32, model.KnownShape(1, 4))}
+	}
+	m := &model.Model{Format: "onnx", IRVersion: 8, Opsets: map[string]int64{"": 13}, Graph: &model.Graph{
+		Nodes:        []*model.Node{{Name: "relu", Op: "Relu", Inputs: []string{"x"}, Outputs: []string{"y"}}},
+		Inputs:       []*model.ValueInfo{f32("x")},
+		Outputs:      []*model.ValueInfo{f32("y")},
+		Initializers: []*model.Tensor{{Name: "", DType: model.Float32, Dims: []int64{4}}},
+	}}
+	met, err := Measure(m, 0, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if met.Memory.Graph.PeakLiveBytes != 32 || met.Memory.Deployed.PeakLiveBytes != 32 {
+		t.Errorf("peak live %d (graph), %d (deployed); want 32 and 32", met.Memory.Graph.PeakLiveBytes, met.Memory.Deployed.PeakLiveBytes)
+	}
+}
