@@ -198,8 +198,8 @@ func broadcastInto(dst model.Shape, shapes ...model.Shape) (model.Shape, error) 
 		rank = max(rank, len(s))
 	}
 	out := dst[:0]
-	if cap(out) < rank {
-		out = make(model.Shape, rank)
+	if dst == nil || cap(out) < rank {
+		out = make(model.Shape, rank) // as before: a scalar's shape is empty, not nil
 	}
 	out = out[:rank]
 	for i := range out {
