@@ -237,7 +237,7 @@ func boundInputs(g *model.Graph, ins []*model.ValueInfo, opts InferOptions, stri
 		dt := v.Type.DType
 		switch {
 		case dt.IsFloat():
-			v.held = &Data{Floats: append([]float64{}, x...)}
+			v.setHeld(&Data{Floats: append([]float64{}, x...)})
 		case dt == model.String || dt == model.Complex64 || dt == model.Complex128 || dt == model.Undefined:
 			bad("value", name, false, "input %s is %s; a value binding holds numbers", name, dt)
 			continue
@@ -255,7 +255,7 @@ func boundInputs(g *model.Graph, ins []*model.ValueInfo, opts InferOptions, stri
 				bad("value", name, false, "input %s is %s; the value must be a whole number", name, dt)
 				continue
 			}
-			v.held = intData(ints...)
+			v.setHeld(intData(ints...))
 		}
 	}
 	if strict && len(issues) > 0 {

@@ -137,7 +137,7 @@ func tensor(dt model.DType, s model.Shape) *Value {
 func tensorConst(dt model.DType, s model.Shape, d *Data) *Value {
 	v := tensor(dt, s)
 	if d != nil && d.Len() <= maxFoldElements {
-		v.held = d
+		v.setHeld(d)
 	}
 	return v
 }

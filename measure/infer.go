@@ -236,7 +236,7 @@ func Infer(m *model.Model, opts InferOptions) (*Inference, error) {
 			shape = shapes[k:len(shapes):len(shapes)]
 		}
 		stored[i].tensor = t
-		inits[i] = Value{Type: model.TensorType(t.DType, shape), lazy: &stored[i], Weight: true}
+		inits[i] = Value{Type: model.TensorType(t.DType, shape), contents: &stored[i], Weight: true}
 		sc.vals.set(t.Name, &inits[i])
 	}
 	for _, sp := range g.Sparse {

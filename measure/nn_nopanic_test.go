@@ -45,7 +45,7 @@ func TestNNRulesNoPanic(t *testing.T) {
 		if rng.Intn(2) == 0 {
 			n := rng.Intn(9)
 			if rng.Intn(2) == 0 {
-				v.held = intData(randInts(n)...)
+				v.setHeld(intData(randInts(n)...))
 				if rng.Intn(4) == 0 && n > 0 {
 					v.Const().Ints[0] = model.Sym("N")
 				}
@@ -54,7 +54,7 @@ func TestNNRulesNoPanic(t *testing.T) {
 				for i := range f {
 					f[i] = []float64{-1, 0, 0.5, 1, 2, 1e30, 1e-30}[rng.Intn(7)]
 				}
-				v.held = &Data{Floats: f}
+				v.setHeld(&Data{Floats: f})
 			}
 		}
 		return v

@@ -596,7 +596,7 @@ func inferSequenceLength(c *ctx) ([]*Value, error) {
 	}
 	v := tensor(model.Int64, model.Shape{})
 	if s.SeqKnown() {
-		v.held = intData(int64(len(s.Seq())))
+		v.setHeld(intData(int64(len(s.Seq()))))
 	}
 	return []*Value{v}, nil
 }

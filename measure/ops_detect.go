@@ -63,7 +63,7 @@ func inferNMS(c *ctx) ([]*Value, error) {
 		n = model.Known(int64(len(rows)) / 3)
 		out := tensor(model.Int64, model.Shape{n, model.Known(3)})
 		if len(rows) <= maxFoldElements {
-			out.held = intData(rows...)
+			out.setHeld(intData(rows...))
 		}
 		return []*Value{out}, nil
 	}

@@ -145,14 +145,14 @@ func unaryRule(op string, f func(float64) float64) func(c *ctx) ([]*Value, error
 				for i, x := range in.Const().Floats {
 					fs[i] = f(x)
 				}
-				out.held = &Data{Floats: fs}
+				out.setHeld(&Data{Floats: fs})
 			case in.Const().Ints != nil && f != nil:
 				if xs, ok := in.Const().KnownInts(); ok {
 					r := make([]int64, len(xs))
 					for i, x := range xs {
 						r[i] = int64(f(float64(x)))
 					}
-					out.held = intData(r...)
+					out.setHeld(intData(r...))
 				}
 			}
 		}
@@ -329,7 +329,7 @@ func inferNot(c *ctx) ([]*Value, error) {
 		for i, x := range xs {
 			r[i] = b2i(x == 0)
 		}
-		out.held = intData(r...)
+		out.setHeld(intData(r...))
 	}
 	return []*Value{out}, nil
 }
@@ -380,7 +380,7 @@ func inferWhere(c *ctx) ([]*Value, error) {
 						sel[k] = xs.Len() + yi[k]
 					}
 				}
-				res.held = joined.take(sel)
+				res.setHeld(joined.take(sel))
 			}
 		}
 	}
@@ -419,9 +419,9 @@ func inferClip(c *ctx) ([]*Value, error) {
 				for i, x := range r {
 					ints[i] = int64(x)
 				}
-				out.held = intData(ints...)
+				out.setHeld(intData(ints...))
 			} else {
-				out.held = &Data{Floats: r}
+				out.setHeld(&Data{Floats: r})
 			}
 		}
 	}
@@ -498,7 +498,7 @@ func inferCast(c *ctx) ([]*Value, error) {
 	}
 	to := model.DType(c.attrInt("to", 0))
 	out := tensor(to, in.Type.Shape)
-	out.held = castData(in.Const(), to)
+	out.setHeld(castData(in.Const(), to))
 	return []*Value{out}, nil
 }
 
@@ -509,7 +509,7 @@ func inferCastLike(c *ctx) ([]*Value, error) {
 	}
 	to := c.dtype(1)
 	out := tensor(to, in.Type.Shape)
-	out.held = castData(in.Const(), to)
+	out.setHeld(castData(in.Const(), to))
 	return []*Value{out}, nil
 }
 
@@ -518,7 +518,7 @@ func inferDropout(c *ctx) ([]*Value, error) {
 	if err != nil {
 		return nil, err
 	}
-	return []*Value{{Type: in.Type, held: in.Const()}, tensor(model.Bool, in.Type.Shape)}, nil
+	return []*Value{{Type: in.Type, contents: heldContents(in.Const())}, tensor(model.Bool, in.Type.Shape)}, nil
 }
 
 func inferIdentity(c *ctx) ([]*Value, error) {

@@ -75,7 +75,7 @@ func reduceRule(op string, fold reduceFold) func(c *ctx) ([]*Value, error) {
 				}
 			}
 			if len(axes) == 0 && c.attrInt("noop_with_empty_axes", 0) != 0 {
-				return []*Value{{Type: in.Type, held: in.Const()}}, nil
+				return []*Value{{Type: in.Type, contents: heldContents(in.Const())}}, nil
 			}
 		} else if a, ok := c.attrInts("axes"); ok {
 			axes = a
@@ -105,7 +105,7 @@ func reduceRule(op string, fold reduceFold) func(c *ctx) ([]*Value, error) {
 			}
 		}
 		res := tensor(c.dtype(0), out)
-		res.held = foldReduce(in, reduced, fold)
+		res.setHeld(foldReduce(in, reduced, fold))
 		return []*Value{res}, nil
 	}
 }

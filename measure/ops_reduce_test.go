@@ -75,12 +75,12 @@ func TestReduceShapes(t *testing.T) {
 // symbols kept, as shape subgraphs need.
 func TestReduceFold(t *testing.T) {
 	ivals := func(s ...model.Dim) *Value {
-		return &Value{Type: model.TensorType(model.Int64, model.KnownShape(int64(len(s)))), held: &Data{Ints: s}}
+		return &Value{Type: model.TensorType(model.Int64, model.KnownShape(int64(len(s)))), contents: heldContents(&Data{Ints: s})}
 	}
 	n := model.Sym("N")
 	k := model.Known
-	m22 := &Value{Type: model.TensorType(model.Int64, model.KnownShape(2, 2)), held: intData(1, 2, 3, 4)}
-	f23 := &Value{Type: model.TensorType(f32, model.KnownShape(2, 3)), held: &Data{Floats: []float64{1, 5, 2, 4, 0, 3}}}
+	m22 := &Value{Type: model.TensorType(model.Int64, model.KnownShape(2, 2)), contents: heldContents(intData(1, 2, 3, 4))}
+	f23 := &Value{Type: model.TensorType(f32, model.KnownShape(2, 3)), contents: heldContents(&Data{Floats: []float64{1, 5, 2, 4, 0, 3}})}
 	cases := []struct {
 		name  string
 		op    string

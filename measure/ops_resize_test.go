@@ -76,7 +76,7 @@ func TestResizeShapes(t *testing.T) {
 // symbols must reach the output rather than the node going unresolved.
 func TestResizeSymbolicSizes(t *testing.T) {
 	sym := func(dims ...model.Dim) *Value {
-		return &Value{Type: model.TensorType(model.Int64, model.KnownShape(int64(len(dims)))), held: &Data{Ints: dims}}
+		return &Value{Type: model.TensorType(model.Int64, model.KnownShape(int64(len(dims)))), contents: heldContents(&Data{Ints: dims})}
 	}
 	x := &Value{Type: model.TensorType(f32, model.Shape{model.Sym("N"), model.Known(3), model.Known(8), model.Known(8)})}
 	n, h := model.Sym("N"), model.Sym("H")

@@ -391,7 +391,7 @@ func inferTranspose(c *ctx) ([]*Value, error) {
 			}
 			idx[k] = int(src)
 		}
-		v.held = moveData(in, idx)
+		v.setHeld(moveData(in, idx))
 	}
 	return []*Value{v}, nil
 }
@@ -445,9 +445,9 @@ func inferConcat(c *ctx) ([]*Value, error) {
 		foldable = false
 	}
 	if foldable && r == 1 {
-		v.held = concatData(parts)
+		v.setHeld(concatData(parts))
 	} else if foldable {
-		v.held = concatAxis(c, axis, out)
+		v.setHeld(concatAxis(c, axis, out))
 	}
 	return []*Value{v}, nil
 }
@@ -683,7 +683,7 @@ func inferSlice(c *ctx) ([]*Value, error) {
 			}
 			idx[k] = int(src)
 		}
-		v.held = moveData(in, idx)
+		v.setHeld(moveData(in, idx))
 	}
 	return []*Value{v}, nil
 }
@@ -745,7 +745,7 @@ func inferGather(c *ctx) ([]*Value, error) {
 			}
 			idx[k] = int(src)
 		}
-		v.held = moveData(data, idx)
+		v.setHeld(moveData(data, idx))
 	}
 	return []*Value{v}, nil
 }
@@ -812,7 +812,7 @@ func inferExpand(c *ctx) ([]*Value, error) {
 	if od, ok := out.Ints(); ok && in.Const() != nil {
 		if id, ok := in.Type.Shape.Ints(); ok {
 			if _, fits := knownElems(out); fits {
-				v.held = moveData(in, broadcastIndex(od, id))
+				v.setHeld(moveData(in, broadcastIndex(od, id)))
 			}
 		}
 	}
@@ -851,7 +851,7 @@ func inferTile(c *ctx) ([]*Value, error) {
 				}
 				idx[k] = int(src)
 			}
-			v.held = moveData(in, idx)
+			v.setHeld(moveData(in, idx))
 		}
 	}
 	return []*Value{v}, nil
@@ -883,13 +883,13 @@ func inferRange(c *ctx) ([]*Value, error) {
 			for i := range f {
 				f[i] = start[0] + float64(i)*delta[0]
 			}
-			v.held = &Data{Floats: f}
+			v.setHeld(&Data{Floats: f})
 		} else {
 			r := make([]int64, n)
 			for i := range r {
 				r[i] = int64(start[0]) + int64(i)*int64(delta[0])
 			}
-			v.held = intData(r...)
+			v.setHeld(intData(r...))
 		}
 	}
 	return []*Value{v}, nil
@@ -929,7 +929,7 @@ func inferConstantOfShape(c *ctx) ([]*Value, error) {
 				fill = intData(0)
 			}
 		}
-		v.held = fill.take(make([]int, n))
+		v.setHeld(fill.take(make([]int, n)))
 	}
 	return []*Value{v}, nil
 }
@@ -948,21 +948,21 @@ func inferConstant(c *ctx) ([]*Value, error) {
 			}
 			return []*Value{{Type: model.TensorType(a.Sparse.Values.DType, model.KnownShape(a.Sparse.Dims...)), Weight: true}}, nil
 		case "value_float":
-			return []*Value{{Type: model.TensorType(model.Float32, model.Shape{}), held: &Data{Floats: []float64{float64(a.Float)}}, Weight: true}}, nil
+			return []*Value{{Type: model.TensorType(model.Float32, model.Shape{}), contents: heldContents(&Data{Floats: []float64{float64(a.Float)}}), Weight: true}}, nil
 		case "value_floats":
 			f := make([]float64, len(a.Floats))
 			for i, x := range a.Floats {
 				f[i] = float64(x)
 			}
-			return []*Value{{Type: model.TensorType(model.Float32, model.KnownShape(int64(len(f)))), held: &Data{Floats: f}, Weight: true}}, nil
+			return []*Value{{Type: model.TensorType(model.Float32, model.KnownShape(int64(len(f)))), contents: heldContents(&Data{Floats: f}), Weight: true}}, nil
 		case "value_int":
-			return []*Value{{Type: model.TensorType(model.Int64, model.Shape{}), held: intData(a.Int), Weight: true}}, nil
+			return []*Value{{Type: model.TensorType(model.Int64, model.Shape{}), contents: heldContents(intData(a.Int)), Weight: true}}, nil
 		case "value_ints":
-			return []*Value{{Type: model.TensorType(model.Int64, model.KnownShape(int64(len(a.Ints)))), held: intData(a.Ints...), Weight: true}}, nil
+			return []*Value{{Type: model.TensorType(model.Int64, model.KnownShape(int64(len(a.Ints)))), contents: heldContents(intData(a.Ints...)), Weight: true}}, nil
 		case "value_string":
-			return []*Value{{Type: model.TensorType(model.String, model.Shape{}), held: &Data{Strings: []string{a.String}}, Weight: true}}, nil
+			return []*Value{{Type: model.TensorType(model.String, model.Shape{}), contents: heldContents(&Data{Strings: []string{a.String}}), Weight: true}}, nil
 		case "value_strings":
-			return []*Value{{Type: model.TensorType(model.String, model.KnownShape(int64(len(a.Strings)))), held: &Data{Strings: append([]string{}, a.Strings...)}, Weight: true}}, nil
+			return []*Value{{Type: model.TensorType(model.String, model.KnownShape(int64(len(a.Strings)))), contents: heldContents(&Data{Strings: append([]string{}, a.Strings...)}), Weight: true}}, nil
 		}
 	}
 	return nil, fmt.Errorf("Constant has no value attribute")

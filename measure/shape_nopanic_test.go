@@ -41,19 +41,19 @@ func TestShapeRulesNoPanic(t *testing.T) {
 		if n >= 0 && n <= 64 && rng.Intn(2) == 0 {
 			switch {
 			case dt == model.String:
-				v.held = &Data{Strings: make([]string, n)}
+				v.setHeld(&Data{Strings: make([]string, n)})
 			case dt == f32:
 				f := make([]float64, n)
 				for i := range f {
 					f[i] = []float64{-1, 0, 0.5, 3, 1e30}[rng.Intn(5)]
 				}
-				v.held = &Data{Floats: f}
+				v.setHeld(&Data{Floats: f})
 			default:
 				x := make([]int64, n)
 				for i := range x {
 					x[i] = ints[rng.Intn(len(ints))]
 				}
-				v.held = intData(x...)
+				v.setHeld(intData(x...))
 				if n > 0 && rng.Intn(4) == 0 {
 					v.Const().Ints[0] = model.Sym("N")
 				}

@@ -12,14 +12,13 @@ import (
 // lets exporter output such as Shape→Gather→Concat→Reshape resolve to numbers.
 type Value struct {
 	Type model.Type
-	// held is the contents a rule found, nil when unknown or too large to
-	// hold; rules set it while inference runs (one goroutine).
-	held *Data
-	// lazy is a stored tensor's contents, read only when a rule asks for
-	// them (Const): most weights are never read element by element, and
-	// converting each to float64s up front costs time and memory for
-	// nothing.
-	lazy *storedContents
+	// contents is what is known of the value's elements, nil when
+	// nothing is: the contents a rule found (setHeld; rules set them while
+	// inference runs, one goroutine), or a stored tensor's, read only when
+	// a rule asks for them (Const): most weights are never read element by
+	// element, and converting each to float64s up front costs time and
+	// memory for nothing. One field for both keeps a value at 64 bytes.
+	contents *storedContents
 	// seq is what is known of a sequence value's elements, nil when
 	// nothing is: a pointer, as few values are sequences and a list and
 	// flag in every value made each a quarter larger.
@@ -233,13 +232,14 @@ func dataFromTensor(t *model.Tensor) *Data {
 // tensorValue is the Value of a constant tensor.
 func tensorValue(t *model.Tensor) *Value {
 	return &Value{
-		Type:   model.TensorType(t.DType, t.Shape()),
-		lazy:   &storedContents{tensor: t},
-		Weight: true,
+		Type:     model.TensorType(t.DType, t.Shape()),
+		contents: &storedContents{tensor: t},
+		Weight:   true,
 	}
 }
 
-// storedContents is a stored tensor's contents, read on first use. Values
+// storedContents is a value's contents: a stored tensor's, read on first
+// use, or those a rule found (tensor nil, data set: heldContents). Values
 // that re-view the tensor (shareContents) share it, so it is read once,
 // and the passes after inference, which may run side by side (Measure),
 // read it without a lock on the way once it is read. Two passes asking at
@@ -253,6 +253,19 @@ type storedContents struct {
 
 // noContents marks stored contents read and found unreadable or too large.
 var noContents = &Data{}
+
+// heldContents holds d, contents a rule found; nil for none.
+func heldContents(d *Data) *storedContents {
+	if d == nil {
+		return nil
+	}
+	s := &storedContents{}
+	s.data.Store(d)
+	return s
+}
+
+// setHeld makes d, contents a rule found, v's contents.
+func (v *Value) setHeld(d *Data) { v.contents = heldContents(d) }
 
 // read is the contents, read on the first call.
 func (s *storedContents) read() *Data {
@@ -279,25 +292,25 @@ func (s *storedContents) loaded(d *Data) *Data {
 // (more than maxFoldElements). A stored tensor's contents are read on the
 // first call.
 func (v *Value) Const() *Data {
-	if v.held != nil || v.lazy == nil {
-		return v.held
+	if v.contents == nil {
+		return nil
 	}
-	return v.lazy.read()
+	return v.contents.read()
 }
 
 // heldData is the contents of v a rule has found or read so far, without
 // reading a stored tensor's: what inference work counts (work.go).
 func (v *Value) heldData() *Data {
-	if v.held != nil || v.lazy == nil {
-		return v.held
+	if v.contents == nil {
+		return nil
 	}
-	return v.lazy.loaded(v.lazy.data.Load())
+	return v.contents.loaded(v.contents.data.Load())
 }
 
 // shareContents makes v's contents those of src, in the same element order,
 // without reading them.
 func (v *Value) shareContents(src *Value) {
-	v.held, v.lazy = src.held, src.lazy
+	v.contents = src.contents
 }
 
 // String prints the type and, for small known contents, the values.
