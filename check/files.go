@@ -5,10 +5,12 @@ package check
 
 import (
 	"fmt"
+	"math"
 	"runtime"
 	"runtime/debug"
 	"sync"
 
+	"github.com/loadline/loadline/internal/regular"
 	"github.com/loadline/loadline/measure"
 	"github.com/loadline/loadline/model/format"
 )
@@ -38,6 +40,31 @@ func MeasureFiles(paths []string, opts measure.Options) []*measure.Metrics {
 	return out
 }
 
+// mappedFile is a model file's bytes: mapped read-only where the system
+// allows it, else read whole.
+type mappedFile struct {
+	data []byte
+	// release unmaps the file; sub-slices of data must not be kept past it.
+	release func()
+	// readBehind, for a mapped file, gives back to the kernel the pages
+	// that lie wholly before the end of b (a slice of data), once the
+	// reading has passed them (measure.Options.WeightsRead); nil for a
+	// file read whole.
+	readBehind func(b []byte)
+	// passed, for a mapped file, gives back the pages before offset, once
+	// decoding has passed them (format.Options.Passed); decoded gives back
+	// every page read so far, once the model is decoded. Both nil for a
+	// file read whole.
+	passed  func(offset int)
+	decoded func()
+}
+
+// readWhole reads a model file whole, where it is not mapped.
+func readWhole(path string) (*mappedFile, error) {
+	b, err := regular.ReadFile(path, math.MaxInt64)
+	return &mappedFile{data: b, release: func() {}}, err
+}
+
 // MeasureFile decodes and measures one model file.
 func MeasureFile(path string, opts measure.Options) (m *measure.Metrics) {
 	f, err := mapFile(path)
@@ -50,7 +77,7 @@ func MeasureFile(path string, opts measure.Options) (m *measure.Metrics) {
 	// read faults. Turn that fault into an error for this file instead of
 	// a crash of the whole run; any other panic is a bug and goes on up.
 	return onMapped(path, func() *measure.Metrics {
-		return decodeThenMeasure(path, f.data, format.Options{Passed: f.passed}, opts, f.decoded)
+		return decodeAndMeasure(path, f.data, format.Options{Passed: f.passed}, opts, f.decoded)
 	})
 }
 
@@ -94,15 +121,10 @@ func failed(path string, err error) *measure.Metrics {
 }
 
 // decodeAndMeasure opens the model file path held in data through the one
-// door that reads every format (model/format) and measures it; errors come
-// back as a failed entry named path.
-func decodeAndMeasure(path string, data []byte, dec format.Options, opts measure.Options) *measure.Metrics {
-	return decodeThenMeasure(path, data, dec, opts, nil)
-}
-
-// decodeThenMeasure is decodeAndMeasure, calling decoded (when set) between
-// the two.
-func decodeThenMeasure(path string, data []byte, dec format.Options, opts measure.Options, decoded func()) *measure.Metrics {
+// door that reads every format (model/format) and measures it, calling
+// decoded (when set) between the two; errors come back as a failed entry
+// named path.
+func decodeAndMeasure(path string, data []byte, dec format.Options, opts measure.Options, decoded func()) *measure.Metrics {
 	m, err := format.Open(path, data, dec)
 	if err != nil {
 		return failed(path, err)

@@ -38,7 +38,7 @@ func fuzzEntries(f *testing.F) (cacheKey, []byte, []byte) {
 		f.Fatal(err)
 	}
 	opts := measure.Options{Layers: true}
-	met := decodeAndMeasure("small.onnx", data, format.Options{}, opts)
+	met := decodeAndMeasure("small.onnx", data, format.Options{}, opts, nil)
 	if met.Error != "" || len(met.Layers) == 0 {
 		f.Fatalf("the seed model does not measure: %q, %d layers", met.Error, len(met.Layers))
 	}

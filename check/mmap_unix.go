@@ -3,32 +3,12 @@
 package check
 
 import (
-	"math"
 	"os"
 	"syscall"
 	"unsafe"
 
 	"github.com/loadline/loadline/internal/regular"
 )
-
-// mappedFile is a model file's bytes: mapped read-only where the system
-// allows it, else read whole.
-type mappedFile struct {
-	data []byte
-	// release unmaps the file; sub-slices of data must not be kept past it.
-	release func()
-	// readBehind, for a mapped file, gives back to the kernel the pages
-	// that lie wholly before the end of b (a slice of data), once the
-	// reading has passed them (measure.Options.WeightsRead); nil for a
-	// file read whole.
-	readBehind func(b []byte)
-	// passed, for a mapped file, gives back the pages before offset, once
-	// decoding has passed them (format.Options.Passed); decoded gives back
-	// every page read so far, once the model is decoded. Both nil for a
-	// file read whole.
-	passed  func(offset int)
-	decoded func()
-}
 
 // mapFile maps a file read-only, so that decoding touches only the pages it
 // reads: the weights of a large model are skipped, not copied.
@@ -49,11 +29,6 @@ func mapFile(path string) (*mappedFile, error) {
 	}
 	g := &pageGiver{data: b, page: os.Getpagesize()}
 	return &mappedFile{data: b, release: func() { syscall.Munmap(b) }, readBehind: g.behind, passed: g.upTo, decoded: g.all}, nil
-}
-
-func readWhole(path string) (*mappedFile, error) {
-	b, err := regular.ReadFile(path, math.MaxInt64)
-	return &mappedFile{data: b, release: func() {}}, err
 }
 
 // giveBackStep is how far the reading must have moved past the pages last

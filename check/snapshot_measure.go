@@ -119,7 +119,7 @@ func measureBlob(s *Snapshot, p string, opts measure.Options, options string, ca
 			mu.Unlock()
 			return s.Read(rel)
 		},
-	}, opts)
+	}, opts, nil)
 	if met.Error != "" {
 		return measured{Metrics: met}
 	}
